@@ -1,0 +1,1373 @@
+#!/usr/bin/env python3
+"""Generate the invented demo sources for the Tallow Creek Paddle & Trail Co-op.
+
+Everything produced here is fictional: the co-op, its four departments, every
+person, street, postcode, event and exchange rate.  Phone numbers come only from
+ranges reserved for fiction and e-mail addresses only from reserved example
+domains.
+
+The generator builds about 5,000 true people living in households, lets each of
+them appear in one to four department exports (sometimes twice in the same
+one), damages every record at realistic rates (typos, nicknames, swapped name
+order, missing values, moved addresses, changed phones, day/month swaps, dropped
+accents, case and spacing noise) and writes:
+
+    membership.xlsx   Membership office, sheet "Members"
+    webshop.csv       Web shop customers
+    rentals.jsonl     Rentals desk, one JSON object per line
+    events.sqlite     Events team, table "signups"
+    rates.csv         invented dated exchange rates (EUR/USD -> GBP)
+    truth/crosswalk.csv      which record belongs to which true person
+    truth/entities.csv       the true people, including money totals in GBP
+    truth/record_faults.csv  which faults were applied to each record
+
+Output is byte-for-byte deterministic for a given seed.
+
+Usage:  python demo_sources/generate.py [--out DIR]
+"""
+from __future__ import annotations
+
+import argparse
+import csv
+import datetime as dt
+import io
+import json
+import re
+import sqlite3
+import unicodedata
+import zipfile
+from collections import Counter, defaultdict
+from dataclasses import dataclass, field
+from decimal import ROUND_HALF_UP, Decimal
+from pathlib import Path
+
+import numpy as np
+import openpyxl
+from openpyxl.styles import Font
+
+SEED = 20261202
+N_PEOPLE = 5000
+
+BIRTH_FIRST = dt.date(1940, 1, 1)
+BIRTH_LAST = dt.date(2010, 12, 31)
+JOIN_FIRST = dt.date(2005, 1, 1)
+ACTIVITY_FIRST = dt.date(2024, 1, 1)  # web orders, rentals and events start here
+ACTIVITY_LAST = dt.date(2026, 10, 31)
+RATES_FIRST = dt.date(2023, 12, 1)
+RATES_LAST = dt.date(2026, 11, 30)
+FIXED_FILE_TIME = dt.datetime(2026, 12, 2, 0, 0, 0)  # stamped into the xlsx
+
+SOURCES = ("membership", "webshop", "rentals", "events")
+# How many departments a person appears in (1..4) and how attractive each one is.
+N_SOURCES_PROB = (0.50, 0.31, 0.14, 0.05)
+SOURCE_WEIGHT = {"membership": 0.34, "webshop": 0.30, "rentals": 0.20, "events": 0.16}
+# Chance that a person known to a department is registered there a second time.
+WITHIN_SOURCE_DUP = {"membership": 0.045, "webshop": 0.05, "rentals": 0.06, "events": 0.04}
+
+# Per-record fault rates by source.  "missing_*" rates are on top of values the
+# person simply does not have (no e-mail, no phone).
+FAULTS = {
+    "membership": {
+        "typo_given": 0.025, "typo_family": 0.025, "nickname": 0.04, "swap_names": 0.015,
+        "drop_accents": 0.30, "punctuation": 0.20, "case": 0.03, "spaces": 0.04, "dm_swap": 0.02,
+        "first_given_only": 0.10, "missing_birth": 0.03, "missing_phone": 0.05,
+        "missing_address": 0.03, "missing_height": 0.10, "street_style": 0.10,
+        "postcode_style": 0.03, "landline_instead": 0.20,
+    },
+    "webshop": {
+        "typo_given": 0.035, "typo_family": 0.035, "nickname": 0.12, "swap_names": 0.02,
+        "drop_accents": 0.60, "punctuation": 0.25, "case": 0.07, "spaces": 0.05, "dm_swap": 0.02,
+        "first_given_only": 0.80, "missing_birth": 0.55, "missing_phone": 0.08,
+        "landline_in_mobile": 0.40, "missing_email": 0.02, "email_case": 0.04,
+        "postcode_style": 0.25, "missing_postcode": 0.05,
+    },
+    "rentals": {
+        "typo_given": 0.05, "typo_family": 0.05, "nickname": 0.10, "swap_names": 0.03,
+        "drop_accents": 0.50, "punctuation": 0.25, "case": 0.05, "spaces": 0.04, "dm_swap": 0.05,
+        "first_given_only": 0.85, "missing_birth": 0.20, "missing_phone": 0.08,
+        "missing_title": 0.25, "missing_height": 0.12, "missing_weight": 0.18,
+    },
+    "events": {
+        "typo_given": 0.04, "typo_family": 0.04, "nickname": 0.15, "swap_names": 0.02,
+        "drop_accents": 0.50, "punctuation": 0.25, "case": 0.08, "spaces": 0.05,
+        "first_given_only": 0.85, "missing_birth": 0.35, "missing_email": 0.12,
+        "email_case": 0.04,
+    },
+}
+MEMBERSHIP_INCH_SLIPS = 3  # membership heights typed in inches
+RENTALS_CM_SLIPS = 2       # rentals heights typed in centimetres
+
+# --------------------------------------------------------------------------
+# Invented word lists.  "Name*N" gives the word N times the usual weight.
+# --------------------------------------------------------------------------
+
+GIVEN_FEMALE = """
+Anna*5, Sarah*7, Emma*6, Olivia*3, Sophie*3, Chloé*2, Zoë*2, Renée, Elizabeth*5,
+Margaret*4, Katherine*3, Catherine*3, Jennifer*3, Patricia*2, Susan*3, Deborah*2,
+Rebecca*3, Samantha*2, Victoria*2, Alexandra*2, Christine*2, Josephine, Jacqueline,
+Abigail, Eleanor*2, Penelope, Isabella*2, Dorothy, Gwendolyn, Frances, Mary*4, Helen*3,
+Ruth*2, Alice*2, Grace*2, Lucy*3, Hannah*3, Charlotte*3, Amelia*2, Emily*3, Jessica*2,
+Laura*4, Rachel*2, Claire*2, Fiona*2, Niamh, Siobhán, Aoife, Orla, Máiréad, Eilidh,
+Morag, Catriona, Isla, Freya, Ingrid, Astrid, Sigrid, Maja, Elin, Greta, Heidi,
+Katarzyna, Agnieszka, Małgorzata, Zofia, Marta, Ewa, Giulia, Chiara, Francesca, Lucía,
+María, Carmen, Inés, Pilar, Beatriz, Ana, Marisol, Priya*2, Anjali, Deepa, Kavita,
+Sunita, Aisha*2, Fatima*2, Leila, Yasmin, Noor, Amira, Mei, Lian, Xiu, Yuki, Hana,
+Aiko, Ngozi, Chioma, Adaeze, Funmilayo, Amara, Zainab, Nadia, Irina, Olga, Svetlana,
+Tatiana, Hélène, Éloïse, Margot, Camille, Amélie, Léa, Manon, Gemma, Kerry, Tracey,
+Nicola*2, Joanne*2, Donna, Julie*2, Karen*2, Linda*2, Barbara, Carol, Janet, Sandra,
+Pauline, Valerie, Wendy, Brenda, Sheila, Maureen, Gillian, Louise*2, Natalie, Kirsty,
+Megan*2, Bethan, Ffion, Carys, Seren, Rhiannon, Ellie*2, Poppy, Daisy, Rosie, Molly,
+Phoebe, Imogen, Harriet, Matilda, Evie, Ava*2, Mia*2, Lily*2, Ruby*2, Zara, Maya,
+Nina, Vera, Edith, Ivy, Florence, Beatrice, Theresa, Monique
+"""
+
+GIVEN_MALE = """
+James*8, John*6, Robert*5, William*5, Michael*5, Thomas*5, Alexander*3, Richard*4,
+Edward*3, Christopher*4, Daniel*4, Joseph*3, Samuel*3, Benjamin*3, Matthew*4,
+Nicholas*2, Jonathan*2, Anthony*2, Andrew*4, Charles*2, Frederick, Henry*2, Stephen*3,
+Steven*2, Peter*3, Timothy, David*7, Gregory, Theodore, Zachary, Lawrence, Raymond,
+Ronald, Donald, Kenneth, Gerald, Francis, George*3, Paul*4, Mark*3, Simon*2, Adam*2,
+Oliver*3, Harry*2, Jack*3, Oscar, Leo, Arthur, Alfie, Noah, Ethan, Lewis, Callum,
+Ewan, Hamish, Angus, Alasdair, Rhys, Dafydd, Gareth, Owain, Iwan, Seán, Séamus,
+Ciarán, Declan, Pádraig, Eoin, Cormac, Björn, Lars, Erik, Nils, Anders, Henrik, Sven,
+Jens, Piotr, Tomasz, Krzysztof, Paweł, Marek, Jakub, Luca, Marco, Giovanni, Matteo,
+Alessandro, José*2, Carlos, Javier, Miguel, Andrés, Raúl, Diego, Pablo, Rajesh,
+Arjun, Vikram, Sanjay, Rohan, Amit, Omar*2, Ahmed*2, Yusuf, Tariq, Hassan, Karim,
+Wei, Jun, Hao, Kenji, Hiroshi, Takeshi, Chinedu, Emeka, Oluwaseun, Tunde, Kwame,
+Kofi, Dmitri, Sergei, Ivan, Mikhail, François, Étienne, Jérôme, Benoît, Théo, Hugo,
+Louis, Antoine, Gavin, Darren, Wayne, Craig, Neil, Keith, Brian*2, Colin, Derek,
+Trevor, Graham, Malcolm, Nigel, Barry, Dennis, Roy, Stanley, Albert, Walter, Ernest,
+Harold, Leonard, Cyril, Felix, Max, Finn, Jasper, Rory, Toby, Luke*2, Ryan*2, Kieran,
+Connor
+"""
+
+GIVEN_ANY = """
+Alex, Sam, Jamie, Jordan, Morgan, Casey, Robin, Avery, Riley, Quinn, Charlie,
+Frankie, Jesse, Rowan, Sasha, Kim, Ashley, Eden, River, Remy
+"""
+
+FAMILY_NAMES = """
+Smith*25, Jones*18, Brown*15, Taylor*15, Williams*12, Wilson*10, Davies*6, Evans*6,
+Thomas*5, Johnson*6, Roberts*5, Walker*4, Wright*4, Robinson*4, Thompson*4, White*4,
+Hughes*4, Edwards*4, Green*4, Hall*3, Wood*3, Harris*3, Lewis*3, Martin*3, Jackson*3,
+Clarke*3, Clark*2, Turner*2, Hill*2, Scott*2, Cooper*2, Morris*2, Ward*2, Moore*2,
+King*2, Watson*2, Baker*2, Harrison*2, Morgan, Patel*10, Young, Allen, Mitchell,
+James, Anderson, Phillips, Lee*2, Bell, Parker, Davis, Price, Bennett, Griffiths,
+Kelly*3, Cook, Carter, Shaw, Richardson, Collins, Chapman, Marshall, Ellis, Adams,
+Mason, Murphy*5, Graham, Campbell*3, Stewart*3, Murray, Reid, Fraser, MacDonald*3,
+McKenzie, Ross, Henderson, Paterson, Hamilton, Kerr, Sinclair, Gordon, Burns,
+Kennedy, Cunningham, Byrne, Ryan, O'Brien*2, O'Connor*2, O'Neill, Doyle, Gallagher,
+Walsh, McCarthy, Quinn, Nolan, Kavanagh, Ní Bhriain, Ó Súilleabháin, Mac an Bhaird,
+Llewellyn, Pritchard, Vaughan, Bowen, Jenkins, Powell, Rees, Owen, Lloyd, Howells,
+ap Gwilym, Van der Berg*3, Van Dijk, de Vries, Janssen, Bakker, Visser, Smit,
+de Jong, Van den Heuvel, Müller*2, Schmidt, Schneider, Fischer, Weber, Becker,
+Hoffmann, Schäfer, Koch, Richter, Klein, Wolf, Schröder, Neumann, Zimmermann, Krüger,
+Hartmann, Lange, Nyström, Lindqvist, Johansson, Andersson, Karlsson, Nilsson,
+Eriksson, Larsen, Hansen, Pedersen, Jensen, Sørensen, Kowalski*2, Nowak*2,
+Wiśniewski, Wójcik, Lewandowski, Zieliński, Szymański, Woźniak, Dąbrowski, Łukasik,
+Rossi, Russo, Ferrari, Esposito, Bianchi, Romano, Colombo, Ricci, Marino, Greco,
+Bruno, Gallo, Conti, De Luca, García*3, Rodríguez*2, Martínez*2, López, González,
+Hernández, Pérez, Sánchez, Ramírez, Torres, Flores, Díaz, De la Cruz, Da Silva*2,
+Dos Santos, Ferreira, Pereira, Oliveira, Costa, Sousa, Dubois, Lefèvre, Moreau,
+Laurent, Girard, Bonnet, Dupont, Lambert, Fontaine, Rousseau, Vincent, Leroy,
+Fournier, Mercier, Chevalier, Le Gall, Le Roux, Singh*7, Kaur*3, Sharma*3, Gupta*2,
+Khan*7, Ahmed*3, Ali*3, Hussain*3, Shah*2, Begum*2, Rahman*2, Chowdhury, Iyer, Nair,
+Reddy, Menon, Das, Bose, Mehta, Chen*5, Wang*3, Li*3, Zhang*2, Liu*2, Huang, Zhao,
+Wu, Zhou, Lin, Tan, Lim, Ng, Wong*2, Chan*2, Leung, Nguyen*4, Tran*2, Pham, Kim*2,
+Park, Choi, Sato, Suzuki, Takahashi, Tanaka, Watanabe, Okafor, Okonkwo, Adeyemi,
+Balogun, Mensah, Owusu, Boateng, Nwosu, Eze, Abubakar, Haddad, Khoury, Nasser, Aziz,
+El-Amin, Al-Farsi, Ivanov, Petrov, Smirnov, Popescu, Ionescu, Horvat, Novak, Kovács,
+Nagy, Szabó, Papadopoulos, Georgiou, Yilmaz, Demir, Kaya, Smith-Jones*2, Taylor-Reed,
+Brown-Hughes, Lloyd-Evans, Ashworth-Hale, Carter-Blake, Harding-Fox, Wynn-Parry,
+St John, Fitzgerald, FitzWilliam, McAllister, MacLeod, McIntyre, Abbott, Archer,
+Atkinson, Bailey, Barker, Barnes, Bates, Beck, Berry, Bird, Blake, Booth, Bradley,
+Briggs, Brooks, Bull, Burke, Butler, Cartwright, Chambers, Cole, Cross, Dale,
+Dawson, Day, Dixon, Duncan, Fisher, Fleming, Ford, Foster, Fox, Gibson, Goodwin,
+Grant, Gray, Hardy, Harper, Hart, Hayes, Holmes, Hopkins, Howard, Hunt, Hunter,
+Jordan, Knight, Lamb, Lane, Lawson, Little, Lowe, Lucas, Marsh, May, Miles, Mills,
+Moss, Newman, Nichols, Norton, Oakley, Page, Palmer, Pearce, Pearson, Porter, Potter,
+Read, Reynolds, Rose, Russell, Saunders, Sharp, Short, Simpson, Slater, Spencer,
+Stone, Sutton, Swift, Thornton, Tucker, Wade, Wallace, Walters, Warren, Webb, Wells,
+West, Wheeler, Whitehead, Wilkinson, Willis, Woods, Yates, Crowther, Ellwood,
+Fairbairn, Garside, Haworth, Illingworth, Kershaw, Lumb, Midgley, Ormerod, Pickles,
+Rigby, Sugden, Thwaite, Utley, Whiteley, Ackroyd, Birtwistle, Crabtree, Dewhurst,
+Entwistle, Fothergill, Greenhalgh, Hargreaves, Holroyd, Lister, Tallowby, Creekmore,
+Ferriby, Osierfield, Kestleton, Marrowby, Quillan, Rushworth, Penhallow, Treloar,
+Trevithick, Polglase, Annear, Rowe, Nance, Jago, Mabey, Dunmore, Ashby
+"""
+
+# Nicknames an official given name is often replaced by (first given name only).
+NICKNAMES = {
+    "Robert": ["Bob", "Rob", "Bobby"], "Elizabeth": ["Liz", "Beth", "Lizzie"],
+    "William": ["Bill", "Will", "Billy"], "Katherine": ["Kate", "Kathy", "Katie"],
+    "Catherine": ["Cathy", "Kate", "Cath"], "Margaret": ["Maggie", "Peggy", "Meg"],
+    "James": ["Jim", "Jimmy", "Jamie"], "Michael": ["Mike", "Mick"],
+    "Thomas": ["Tom", "Tommy"], "Jennifer": ["Jen", "Jenny"],
+    "Alexander": ["Alex", "Sandy"], "Alexandra": ["Alex", "Sandra"],
+    "Richard": ["Rick", "Richie", "Dick"], "Edward": ["Ed", "Ted", "Eddie"],
+    "Christopher": ["Chris", "Kit"], "Christine": ["Chris", "Chrissie"],
+    "Daniel": ["Dan", "Danny"], "Joseph": ["Joe", "Joey"], "Samuel": ["Sam"],
+    "Samantha": ["Sam", "Sammy"], "Benjamin": ["Ben", "Benji"], "Matthew": ["Matt"],
+    "Nicholas": ["Nick", "Nicky"], "Jonathan": ["Jon", "Jonny"],
+    "Anthony": ["Tony", "Ant"], "Andrew": ["Andy", "Drew"], "Charles": ["Charlie", "Chas"],
+    "Frederick": ["Fred", "Freddie"], "Henry": ["Harry", "Hal"],
+    "Stephen": ["Steve"], "Steven": ["Steve"], "Peter": ["Pete"], "Timothy": ["Tim"],
+    "David": ["Dave", "Davy"], "Gregory": ["Greg"], "Theodore": ["Theo", "Ted"],
+    "Zachary": ["Zach"], "Lawrence": ["Larry", "Laurie"], "Raymond": ["Ray"],
+    "Ronald": ["Ron", "Ronnie"], "Donald": ["Don"], "Kenneth": ["Ken", "Kenny"],
+    "Gerald": ["Gerry"], "Francis": ["Frank"], "Patricia": ["Pat", "Trish"],
+    "Susan": ["Sue", "Susie"], "Deborah": ["Debbie", "Deb"], "Rebecca": ["Becky", "Bex"],
+    "Victoria": ["Vicky", "Tori"], "Josephine": ["Jo", "Josie"],
+    "Jacqueline": ["Jackie"], "Abigail": ["Abby"], "Eleanor": ["Ellie", "Nell"],
+    "Penelope": ["Penny"], "Isabella": ["Bella", "Izzy"], "Dorothy": ["Dot", "Dottie"],
+    "Gwendolyn": ["Gwen"], "Frances": ["Fran"], "Jessica": ["Jess"],
+    "Charlotte": ["Lottie", "Charlie"], "Emily": ["Em"], "Natalie": ["Nat"],
+    "Nicola": ["Nicky"], "José": ["Pepe"], "Oluwaseun": ["Seun"],
+    "Funmilayo": ["Funmi"], "Małgorzata": ["Gosia"], "Katarzyna": ["Kasia"],
+    "Dmitri": ["Dima"], "Mikhail": ["Misha"],
+}
+
+STREET_WORDS = """
+Willow, Kestrel, Heron, Alder, Bracken, Otter, Larch, Sedge, Tallow, Ferry, Mill,
+Weir, Lantern, Copper, Flint, Kingfisher, Curlew, Plover, Osier, Reed, Bramble,
+Hazel, Juniper, Thistle, Foxglove, Meadowsweet, Marsh, Lock, Wharf, Quarry, Chapel,
+Orchard, Beacon, Gorse, Heather, Moss, Coppice, Pebble, Shingle, Drover, Packhorse,
+Tanner, Ropewalk, Boatyard, Paddle, Oarsman, Eddy, Riffle, Sandpiper, Dipper,
+Wagtail, Teasel, Campion, Sorrel, Yarrow, Burdock, Cobble, Millrace, Sluice,
+Towpath, Saltings, Creekside, Fernhill, Stonechat, Skylark, Linnet, Bulrush,
+Water Mint, Little Heron, Old Ferry
+"""
+STREET_TYPES = ("Row", "Lane", "Road", "Street", "Close", "Way", "Terrace", "Drive",
+                "Gardens", "Walk", "Mews", "Crescent", "Place", "Hill", "Court",
+                "Green", "View", "Rise")
+STREET_ABBREVIATIONS = {"Road": "Rd", "Street": "St", "Lane": "Ln", "Drive": "Dr",
+                        "Close": "Cl", "Terrace": "Ter", "Crescent": "Cres",
+                        "Gardens": "Gdns", "Place": "Pl", "Court": "Ct"}
+POSTCODE_AREAS = ("TC", "TK")
+INWARD_LETTERS = "ABDEFGHJLNPQRSTUWXYZ"
+
+EMAIL_DOMAINS = ("example.com", "example.org", "example.net", "mail.example.com",
+                 "post.example.org", "inbox.example.net")
+
+# Invented event programme: (name, standard fee in GBP).
+EVENT_TYPES = (
+    ("Moonlight Paddle", "12.50"), ("Ridge Run 10k", "18.00"),
+    ("Creek Clean-Up Day", "0.00"), ("Dawn Chorus Walk", "5.00"),
+    ("Beginners' Kayak Clinic", "35.00"), ("Winter Solstice Hike", "8.00"),
+    ("Tallow Creek Triathlon", "42.00"), ("Map and Compass Workshop", "15.00"),
+    ("Family Canoe Day", "10.00"), ("Heron Point Open Swim", "7.50"),
+    ("Autumn Trail Half Marathon", "28.00"), ("Bothy Overnighter", "24.00"),
+    ("Stand-Up Paddle Taster", "20.00"), ("Gorge Scramble", "22.50"),
+    ("Members' Annual Gathering", "0.00"), ("Night Navigation Challenge", "16.00"),
+)
+
+# Membership fees in GBP (standard, plus = with boat storage, concession);
+# the fees went up in 2015.
+MEMBERSHIP_FEES = {
+    "before_2015": {"standard": "40.00", "plus": "55.00", "concession": "20.00"},
+    "from_2015": {"standard": "45.00", "plus": "60.00", "concession": "25.00"},
+}
+
+DEPOSIT_AMOUNTS = {
+    "GBP": (20, 25, 30, 40, 50, 75, 100, 150),
+    "EUR": (25, 35, 50, 60, 90, 120, 175),
+    "USD": (30, 40, 60, 80, 100, 150, 200),
+}
+
+CENT = Decimal("0.01")
+
+
+# --------------------------------------------------------------------------
+# Small helpers
+# --------------------------------------------------------------------------
+
+class Dice:
+    """All randomness goes through one seeded numpy generator, in a fixed order."""
+
+    def __init__(self, seed: int):
+        self.gen = np.random.default_rng(seed)
+
+    def chance(self, p: float) -> bool:
+        return bool(self.gen.random() < p)
+
+    def uniform(self, lo: float, hi: float) -> float:
+        return float(self.gen.uniform(lo, hi))
+
+    def normal(self, mean: float, sd: float) -> float:
+        return float(self.gen.normal(mean, sd))
+
+    def integer(self, lo: int, hi: int) -> int:
+        """Uniform integer in [lo, hi] (both inclusive)."""
+        return int(self.gen.integers(lo, hi + 1))
+
+    def pick(self, seq):
+        return seq[self.integer(0, len(seq) - 1)]
+
+    def date(self, first: dt.date, last: dt.date) -> dt.date:
+        return first + dt.timedelta(days=self.integer(0, (last - first).days))
+
+    def choose_many(self, n: int, k: int, p=None) -> list[int]:
+        """k distinct indices out of range(n)."""
+        return [int(i) for i in self.gen.choice(n, size=k, replace=False, p=p)]
+
+
+class WeightedWords:
+    """A word list parsed from "Word*weight, Word, ..." text, drawn by weight."""
+
+    def __init__(self, *texts: str):
+        self.words: list[str] = []
+        weights: list[float] = []
+        for text in texts:
+            for token in text.replace("\n", " ").split(","):
+                word, _, weight = token.strip().partition("*")
+                if word:
+                    self.words.append(unicodedata.normalize("NFC", word.strip()))
+                    weights.append(float(weight) if weight else 1.0)
+        cumulative = np.cumsum(weights)
+        self.cumulative = cumulative / cumulative[-1]
+
+    def draw(self, dice: Dice) -> str:
+        index = int(np.searchsorted(self.cumulative, dice.gen.random(), side="right"))
+        return self.words[min(index, len(self.words) - 1)]
+
+
+def word_list(text: str) -> list[str]:
+    return [w.strip() for w in text.replace("\n", " ").split(",") if w.strip()]
+
+
+_NON_DECOMPOSING = str.maketrans({"ø": "o", "Ø": "O", "ł": "l", "Ł": "L", "æ": "ae",
+                                  "Æ": "Ae", "ß": "ss", "đ": "d", "Đ": "D"})
+
+
+def strip_accents(text: str) -> str:
+    text = unicodedata.normalize("NFKD", text.translate(_NON_DECOMPOSING))
+    return "".join(c for c in text if not unicodedata.combining(c))
+
+
+def has_accents(text: str) -> bool:
+    return strip_accents(text) != text
+
+
+def ascii_slug(text: str) -> str:
+    """Lower-case ASCII letters only, for building e-mail local parts."""
+    return re.sub(r"[^a-z]", "", strip_accents(text).lower())
+
+
+def add_years(day: dt.date, years: int) -> dt.date:
+    try:
+        return day.replace(year=day.year + years)
+    except ValueError:  # 29 February
+        return day.replace(year=day.year + years, day=28)
+
+
+def money(value: Decimal) -> str:
+    return str(value.quantize(CENT, ROUND_HALF_UP))
+
+
+# --------------------------------------------------------------------------
+# Phone numbers (fiction ranges only), kept as UK national significant numbers
+# --------------------------------------------------------------------------
+
+MOBILE_POOL = [f"7700900{i:03d}" for i in range(1000)]
+LANDLINE_POOL = [f"{prefix}{i:04d}" for prefix in ("207946", "113496", "121496", "161496")
+                 for i in range(1000)]
+
+
+def phone_groups(nsn: str) -> list[str]:
+    if nsn.startswith("7"):
+        return [nsn[:4], nsn[4:]]
+    if nsn.startswith("20"):
+        return [nsn[:2], nsn[2:6], nsn[6:]]
+    return [nsn[:3], nsn[3:6], nsn[6:]]
+
+
+def phone_e164(nsn: str) -> str:
+    return "+44" + nsn
+
+
+def phone_local(nsn: str) -> str:
+    return "0" + " ".join(phone_groups(nsn))
+
+
+def phone_format(nsn: str, style: str) -> str:
+    groups = phone_groups(nsn)
+    return {
+        "local": "0" + " ".join(groups),
+        "local_compact": "0" + nsn,
+        "intl": "+44 " + " ".join(groups),
+        "intl_compact": "+44" + nsn,
+        "intl_00": "0044 " + " ".join(groups),
+        "parens": f"(0{groups[0]}) " + " ".join(groups[1:]),
+    }[style]
+
+
+# --------------------------------------------------------------------------
+# The true world: exchange rates, streets, households, people
+# --------------------------------------------------------------------------
+
+class Rates:
+    """Invented EUR->GBP and USD->GBP rates, one per business day."""
+
+    def __init__(self, dice: Dice):
+        self.rows: list[tuple[dt.date, str, Decimal]] = []
+        self.by_key: dict[tuple[dt.date, str], Decimal] = {}
+        level = {"EUR": 0.85, "USD": 0.78}
+        day = RATES_FIRST
+        while day <= RATES_LAST:
+            if day.weekday() < 5:
+                for currency, centre in (("EUR", 0.85), ("USD", 0.78)):
+                    level[currency] = (centre + 0.99 * (level[currency] - centre)
+                                       + dice.normal(0.0, 0.0025))
+                    rate = Decimal(f"{level[currency]:.4f}")
+                    self.rows.append((day, currency, rate))
+                    self.by_key[(day, currency)] = rate
+            day += dt.timedelta(days=1)
+
+    def rate(self, currency: str, day: dt.date) -> Decimal:
+        """The rate in force on `day`: the latest published one on or before it."""
+        if currency == "GBP":
+            return Decimal(1)
+        assert day >= RATES_FIRST, day
+        while (day, currency) not in self.by_key:
+            day -= dt.timedelta(days=1)
+        return self.by_key[(day, currency)]
+
+    def to_gbp(self, amount: Decimal, currency: str, day: dt.date) -> Decimal:
+        return (amount * self.rate(currency, day)).quantize(CENT, ROUND_HALF_UP)
+
+    def is_half_cent_tie(self, amount: Decimal, currency: str, day: dt.date) -> bool:
+        """True if converting would land exactly on half a penny.
+
+        Amounts are chosen to avoid that, so any sensible rounding rule gives
+        the same GBP figure as the ground truth.
+        """
+        return (amount * self.rate(currency, day) * 100) % 1 == Decimal("0.5")
+
+
+@dataclass
+class Street:
+    name: str
+    district: str          # e.g. "TC4"
+    units: list[str]       # postcodes along the street, by house-number band
+    max_number: int
+
+    def postcode_for(self, number: int) -> str:
+        return self.units[(number - 1) * len(self.units) // self.max_number]
+
+
+def build_streets(dice: Dice) -> list[Street]:
+    words = word_list(STREET_WORDS)
+    names: dict[str, None] = {}
+    while len(names) < 160:
+        names[f"{dice.pick(words)} {dice.pick(STREET_TYPES)}"] = None
+    streets = []
+    used_units: dict[str, None] = {}
+    for name in names:
+        district = f"{dice.pick(POSTCODE_AREAS)}{dice.integer(1, 19)}"
+        units = []
+        while len(units) < dice.integer(1, 3):
+            unit = (f"{district} {dice.integer(1, 9)}"
+                    f"{dice.pick(INWARD_LETTERS)}{dice.pick(INWARD_LETTERS)}")
+            if unit not in used_units:
+                used_units[unit] = None
+                units.append(unit)
+        streets.append(Street(name, district, units, dice.integer(12, 180)))
+    return streets
+
+
+@dataclass
+class Household:
+    hid: int
+    street: str
+    postcode: str
+    landline: str | None = None
+    move_date: dt.date | None = None   # moved into the current home on this date
+    old_street: str | None = None
+    old_postcode: str | None = None
+    old_landline: str | None = None
+    family_email: str | None = None
+    size: int = 1
+    family_name: str = ""      # family name of the first member
+
+    def address_on(self, day: dt.date) -> tuple[str, str]:
+        if self.move_date and day < self.move_date:
+            return self.old_street, self.old_postcode
+        return self.street, self.postcode
+
+    def landline_on(self, day: dt.date) -> str | None:
+        if self.move_date and day < self.move_date:
+            return self.old_landline
+        return self.landline
+
+
+@dataclass
+class Person:
+    entity_id: str
+    household: Household
+    given: str                 # all given names, e.g. "Anna Marie"
+    family: str
+    sex: str                   # F / M / X
+    birth: dt.date
+    height_cm: float = 0.0
+    weight_kg: float = 0.0
+    email: str | None = None
+    old_email: str | None = None
+    email_change: dt.date | None = None
+    mobile: str | None = None
+    old_mobile: str | None = None
+    mobile_change: dt.date | None = None
+
+    @property
+    def first_given(self) -> str:
+        return self.given.split(" ")[0]
+
+    def email_on(self, day: dt.date) -> str | None:
+        if self.email_change and day < self.email_change:
+            return self.old_email
+        return self.email
+
+    def mobile_on(self, day: dt.date) -> str | None:
+        if self.mobile_change and day < self.mobile_change:
+            return self.old_mobile
+        return self.mobile
+
+    def main_phone_on(self, day: dt.date) -> str | None:
+        return self.mobile_on(day) or self.household.landline_on(day)
+
+    @property
+    def main_phone(self) -> str | None:
+        return self.mobile or self.household.landline
+
+
+class World:
+    """The true people of Tallow Creek and where they live."""
+
+    # Distinct single people who deliberately share a very common full name.
+    NAMESAKES = (("James", "Smith", "M", 6), ("Sarah", "Brown", "F", 5),
+                  ("David", "Jones", "M", 4), ("Emma", "Taylor", "F", 4))
+
+    def __init__(self, dice: Dice):
+        self.dice = dice
+        self.given_f = WeightedWords(GIVEN_FEMALE, GIVEN_ANY)
+        self.given_m = WeightedWords(GIVEN_MALE, GIVEN_ANY)
+        self.given_x = WeightedWords(GIVEN_FEMALE, GIVEN_MALE, GIVEN_ANY)
+        self.family_names = WeightedWords(FAMILY_NAMES)
+        self.streets = build_streets(dice)
+        self.used_addresses: dict[tuple[str, int], None] = {}
+        self.used_emails: dict[str, None] = {}
+        self.households: list[Household] = []
+        self.people: list[Person] = []
+        self._build_households()
+        self._assign_bodies()
+        self._assign_emails()
+        self._assign_phones()
+
+    # -- names and addresses ------------------------------------------------
+
+    def draw_sex(self) -> str:
+        roll = self.dice.gen.random()
+        return "F" if roll < 0.49 else "M" if roll < 0.98 else "X"
+
+    def draw_given(self, sex: str, avoid: tuple[str, ...] = ()) -> str:
+        names = {"F": self.given_f, "M": self.given_m, "X": self.given_x}[sex]
+        first = names.draw(self.dice)
+        while first in avoid:
+            first = names.draw(self.dice)
+        if self.dice.chance(0.15):
+            middle = names.draw(self.dice)
+            if middle != first:
+                return f"{first} {middle}"
+        return first
+
+    def new_address(self) -> tuple[str, str]:
+        while True:
+            street = self.dice.pick(self.streets)
+            number = self.dice.integer(1, street.max_number)
+            if (street.name, number) not in self.used_addresses:
+                self.used_addresses[(street.name, number)] = None
+                return f"{number} {street.name}", street.postcode_for(number)
+
+    def draw_birth(self, first_year: int, last_year: int) -> dt.date:
+        first = max(dt.date(first_year, 1, 1), BIRTH_FIRST)
+        last = min(dt.date(last_year, 12, 31), BIRTH_LAST)
+        return self.dice.date(first, last)
+
+    # -- households ---------------------------------------------------------
+
+    def _new_household(self, size: int) -> Household:
+        street, postcode = self.new_address()
+        household = Household(hid=len(self.households) + 1, street=street,
+                              postcode=postcode, size=size)
+        if self.dice.chance(0.18):
+            household.move_date = self.dice.date(dt.date(2012, 1, 1), dt.date(2026, 8, 31))
+            household.old_street, household.old_postcode = self.new_address()
+        self.households.append(household)
+        return household
+
+    def _add_person(self, household: Household, given: str, family: str, sex: str,
+                    birth: dt.date) -> Person:
+        person = Person(f"P{len(self.people) + 1:05d}", household, given, family, sex, birth)
+        household.family_name = household.family_name or family
+        self.people.append(person)
+        return person
+
+    def _build_households(self) -> None:
+        planted = [(g, f, s) for g, f, s, n in self.NAMESAKES for _ in range(n)]
+        sizes, size_weights = (2, 3, 4, 5), (0.50, 0.25, 0.17, 0.08)
+        while len(self.people) < N_PEOPLE:
+            remaining = N_PEOPLE - len(self.people)
+            if self.dice.chance(0.87):
+                size = 1
+            else:
+                size = min(sizes[int(self.dice.gen.choice(4, p=size_weights))], remaining)
+            household = self._new_household(size)
+            if size == 1:
+                self._add_single(household, planted.pop() if planted else None)
+            else:
+                self._add_family(household, size)
+
+    def _add_single(self, household: Household, planted) -> None:
+        if planted:
+            given, family, sex = planted
+        else:
+            sex = self.draw_sex()
+            given, family = self.draw_given(sex), self.family_names.draw(self.dice)
+        self._add_person(household, given, family, sex, self.draw_birth(1940, 2010))
+
+    def _add_family(self, household: Household, size: int) -> None:
+        dice = self.dice
+        family = self.family_names.draw(dice)
+        head_sex = "F" if dice.chance(0.5) else "M"
+        if dice.chance(0.02):
+            head_sex = "X"
+        with_partner = dice.chance(0.85 if size == 2 else 0.80)
+        n_children = size - (2 if with_partner else 1)
+        head_birth = (self.draw_birth(1948, 1986) if n_children
+                      else self.draw_birth(1940, 2000))
+        head = self._add_person(household, self.draw_given(head_sex), family, head_sex,
+                                head_birth)
+        taken = [head.first_given]
+        partner = None
+        if with_partner:
+            if head_sex == "X":
+                partner_sex = self.draw_sex()
+            elif dice.chance(0.05):
+                partner_sex = head_sex
+            else:
+                partner_sex = "M" if head_sex == "F" else "F"
+            partner_family = family if dice.chance(0.80) else self.family_names.draw(dice)
+            shift = round(dice.normal(0, 1100))  # days, about +-3 years
+            partner_birth = min(max(head_birth + dt.timedelta(days=shift), BIRTH_FIRST),
+                                BIRTH_LAST)
+            partner = self._add_person(household, self.draw_given(partner_sex, tuple(taken)),
+                                       partner_family, partner_sex, partner_birth)
+            taken.append(partner.first_given)
+        child_family = family
+        if partner and partner.family != family and dice.chance(0.25):
+            child_family = f"{family}-{partner.family}"  # double-barrelled
+        # the child after `twin_of` (if any) is a twin of that child
+        twin_of = dice.integer(0, n_children - 2) if n_children >= 2 and dice.chance(0.3) else None
+        previous_birth = None
+        for i in range(n_children):
+            sex = self.draw_sex()
+            if twin_of is not None and i == twin_of + 1:
+                birth = previous_birth  # twin of the previous child
+            else:
+                birth = self.draw_birth(head_birth.year + 22, head_birth.year + 40)
+            child = self._add_person(household, self.draw_given(sex, tuple(taken)),
+                                     child_family, sex, birth)
+            taken.append(child.first_given)
+            previous_birth = birth
+
+    # -- bodies, e-mails, phones ---------------------------------------------
+
+    def _assign_bodies(self) -> None:
+        height_by_sex = {"F": (163.5, 6.5), "M": (177.0, 7.0), "X": (170.0, 8.0)}
+        for person in self.people:
+            mean, sd = height_by_sex[person.sex]
+            height = min(max(self.dice.normal(mean, sd), 145.0), 205.0)
+            bmi = min(max(self.dice.normal(25.5, 4.0), 17.5), 42.0)
+            person.height_cm = round(height, 1)
+            person.weight_kg = round(bmi * (person.height_cm / 100) ** 2, 1)
+
+    def _unique_email(self, local: str) -> str:
+        domain = self.dice.pick(EMAIL_DOMAINS)
+        address = f"{local}@{domain}"
+        while address in self.used_emails:
+            address = f"{local}{self.dice.integer(1, 99)}@{domain}"
+        self.used_emails[address] = None
+        return address
+
+    def _personal_local_part(self, person: Person) -> str:
+        g, f = ascii_slug(person.first_given), ascii_slug(person.family)
+        yy = f"{person.birth.year % 100:02d}"
+        patterns = (f"{g}.{f}", f"{g}{f}", f"{g[0]}{f}", f"{g}.{f}{yy}", f"{f}.{g}",
+                    f"{g}_{f}", f"{g[0]}.{f}{self.dice.integer(1, 9)}", f"{f}{g[0]}")
+        return self.dice.pick(patterns)
+
+    def _assign_emails(self) -> None:
+        for household in self.households:
+            if household.size >= 2 and self.dice.chance(0.25):
+                family = ascii_slug(household.family_name)
+                household.family_email = self._unique_email(
+                    self.dice.pick((f"the{family}s", f"{family}family", f"{family}.home")))
+        for person in self.people:
+            household = person.household
+            if household.family_email and self.dice.chance(0.6):
+                person.email = household.family_email
+            elif self.dice.chance(0.88):
+                person.email = self._unique_email(self._personal_local_part(person))
+                if self.dice.chance(0.07):
+                    person.old_email = self._unique_email(self._personal_local_part(person))
+                    person.email_change = self.dice.date(dt.date(2012, 1, 1),
+                                                         dt.date(2026, 8, 31))
+
+    def _assign_phones(self) -> None:
+        """Share the 5,000 fictional numbers: few mobiles, household landlines.
+
+        880 people get a mobile (about 100 more numbers serve as their older
+        mobiles); about 3,500 of the 4,000 landlines go to households, current
+        and previous homes.
+        """
+        mobiles = [MOBILE_POOL[i] for i in self.dice.choose_many(1000, 1000)]
+        landlines = [LANDLINE_POOL[i] for i in self.dice.choose_many(4000, 4000)]
+        owners = sorted(self.dice.choose_many(len(self.people), 880))
+        for index in owners:
+            person = self.people[index]
+            person.mobile = mobiles.pop()
+        for index in owners:
+            person = self.people[index]
+            if mobiles and self.dice.chance(0.12):
+                person.old_mobile = mobiles.pop()
+                person.mobile_change = self.dice.date(dt.date(2014, 1, 1),
+                                                      dt.date(2026, 8, 31))
+        for household in self.households:
+            if self.dice.chance(0.75):
+                household.landline = landlines.pop()
+                if household.move_date and self.dice.chance(0.8):
+                    household.old_landline = landlines.pop()
+
+
+# --------------------------------------------------------------------------
+# Damaging and rendering records
+# --------------------------------------------------------------------------
+
+@dataclass
+class Record:
+    source: str
+    person: Person
+    day: dt.date                     # joined / last order / rented on / event date
+    row: dict = field(default_factory=dict)
+    faults: list[str] = field(default_factory=list)
+    record_id: str = ""
+    event: tuple | None = None       # (name, date, fee) for events
+    amount: Decimal | None = None    # web spend (EUR) or deposit amount
+    currency: str | None = None
+
+
+def typo(word: str, dice: Dice) -> str:
+    """One keyboard slip: insert, delete, substitute or transpose a letter."""
+    positions = [i for i, c in enumerate(word) if c.isalpha()]
+    if len(positions) < 3:
+        return word
+    inner = positions[1:]
+    i = dice.pick(inner) if dice.chance(0.9) else positions[0]
+    letter = chr(ord("a") + dice.integer(0, 25))
+    if word[i].isupper():
+        letter = letter.upper()
+    operation = dice.pick(("insert", "delete", "substitute", "transpose"))
+    if operation == "insert":
+        return word[:i] + letter + word[i:]
+    if operation == "delete":
+        return word[:i] + word[i + 1:]
+    if operation == "substitute":
+        if letter.lower() == word[i].lower():
+            letter = "e" if word[i].lower() != "e" else "a"
+        return word[:i] + letter + word[i + 1:]
+    j = i + 1 if i + 1 < len(word) and word[i + 1].isalpha() else i - 1
+    a, b = sorted((i, j))
+    if word[a].lower() == word[b].lower():
+        return word[:i] + word[i + 1:]  # nothing to swap: drop a letter instead
+    return word[:a] + word[b] + word[a] + word[b + 1:]
+
+
+def punctuation_variant(family: str, dice: Dice) -> str | None:
+    """Another way of writing hyphens, apostrophes or multi-part family names."""
+    if "-" in family:
+        return family.replace("-", dice.pick((" ", "")))
+    if "'" in family:
+        return family.replace("'", dice.pick(("", " ")))
+    if " " in family:
+        parts = family.split(" ")
+        return dice.pick(("".join(parts),
+                          " ".join(p.capitalize() for p in parts),
+                          " ".join([parts[0].lower()] + parts[1:]) if parts[0][0].isupper()
+                          else " ".join([parts[0].capitalize()] + parts[1:])))
+    return None
+
+
+def messy_name(person: Person, rates: dict, dice: Dice, faults: list[str]) -> tuple[str, str]:
+    """Given and family name as a clerk or customer typed them."""
+    given, family = person.given, person.family
+    if " " in given and dice.chance(rates["first_given_only"]):
+        given = person.first_given
+    first, _, rest = given.partition(" ")
+    if first in NICKNAMES and dice.chance(rates["nickname"]):
+        first = dice.pick(NICKNAMES[first])
+        given = f"{first} {rest}".strip()
+        faults.append("nickname")
+    if has_accents(given + family) and dice.chance(rates["drop_accents"]):
+        given, family = strip_accents(given), strip_accents(family)
+        faults.append("accents_dropped")
+    if dice.chance(rates["punctuation"]):
+        variant = punctuation_variant(family, dice)
+        if variant and variant != family:
+            family = variant
+            faults.append("family_punctuation")
+    if dice.chance(rates["typo_given"]):
+        given = typo(given, dice)
+        faults.append("typo_given")
+    if dice.chance(rates["typo_family"]):
+        family = typo(family, dice)
+        faults.append("typo_family")
+    if dice.chance(rates["case"]):
+        style = dice.pick(("upper_family", "upper", "lower"))
+        if style == "upper_family":
+            family = family.upper()
+        elif style == "upper":
+            given, family = given.upper(), family.upper()
+        else:
+            given, family = given.lower(), family.lower()
+        faults.append(f"case_{style}")
+    if dice.chance(rates["swap_names"]):
+        given, family = family, given
+        faults.append("swapped_names")
+    return given, family
+
+
+def extra_spaces(text: str, dice: Dice) -> str:
+    style = dice.pick(("trailing", "leading", "double"))
+    if style == "double" and " " in text:
+        return text.replace(" ", "  ", 1)
+    if style == "leading":
+        return " " + text
+    return text + " "
+
+
+def messy_birth(person: Person, rates: dict, dice: Dice, faults: list[str]) -> dt.date | None:
+    if dice.chance(rates["missing_birth"]):
+        return None
+    birth = person.birth
+    if (rates.get("dm_swap") and birth.day <= 12 and birth.day != birth.month
+            and dice.chance(rates["dm_swap"])):
+        faults.append("day_month_swapped")
+        return birth.replace(day=birth.month, month=birth.day)
+    return birth
+
+
+def messy_email(person: Person, day: dt.date, rates: dict, dice: Dice,
+                faults: list[str]) -> str | None:
+    email = person.email_on(day)
+    if email and email != person.email:
+        faults.append("old_email")
+    if email is None or dice.chance(rates["missing_email"]):
+        return None
+    if dice.chance(rates["email_case"]):
+        local, _, domain = email.partition("@")
+        email = ".".join(part.capitalize() for part in local.split(".")) + "@" + domain
+        faults.append("email_case")
+    return email
+
+
+def note_history(person: Person, day: dt.date, faults: list[str]) -> None:
+    if person.household.move_date and day < person.household.move_date:
+        faults.append("old_address")
+    if person.mobile_change and day < person.mobile_change:
+        faults.append("old_mobile")
+
+
+def render_membership(rec: Record, dice: Dice) -> None:
+    rates, person, faults = FAULTS["membership"], rec.person, rec.faults
+    note_history(person, rec.day, faults)
+    given, family = messy_name(person, rates, dice, faults)
+    name = f"{family}, {given}"
+    if dice.chance(rates["spaces"]):
+        name = dice.pick((f"{family},{given}", f"{family} ,{given}", f"{family},  {given}",
+                          f"{family}, {given} ", f" {family}, {given}"))
+        faults.append("extra_spaces")
+    birth = messy_birth(person, rates, dice, faults)
+
+    phone = person.main_phone_on(rec.day)
+    landline = person.household.landline_on(rec.day)
+    if landline and phone != landline and dice.chance(rates["landline_instead"]):
+        phone = landline
+    if phone and dice.chance(rates["missing_phone"]):
+        phone = None
+
+    street, postcode = person.household.address_on(rec.day)
+    if dice.chance(rates["missing_address"]):
+        street, postcode = None, None
+        faults.append("missing_address")
+    if street and dice.chance(rates["street_style"]):
+        number, _, rest = street.partition(" ")
+        kind = rest.rsplit(" ", 1)[-1]
+        if kind in STREET_ABBREVIATIONS and dice.chance(0.7):
+            street = f"{number} {rest[: -len(kind)]}{STREET_ABBREVIATIONS[kind]}"
+        else:
+            street = f"{number}, {rest}"
+        faults.append("street_style")
+    if postcode and dice.chance(rates["postcode_style"]):
+        postcode = postcode.lower()
+        faults.append("postcode_lower")
+
+    height = None if dice.chance(rates["missing_height"]) else person.height_cm
+
+    age_at_join = (rec.day - person.birth).days / 365.25
+    period = "before_2015" if rec.day.year < 2015 else "from_2015"
+    if age_at_join >= 65 or age_at_join < 22:
+        band = "concession"
+    else:
+        band = "plus" if dice.chance(0.15) else "standard"
+    rec.amount = Decimal(MEMBERSHIP_FEES[period][band])
+    rec.currency = "GBP"
+
+    locker = None
+    if dice.chance(0.2):
+        locker = dice.pick((f"L-{dice.integer(1, 60)}", f"L{dice.integer(1, 60)}",
+                            f"B-{dice.integer(1, 30):02d}", f"L-{dice.integer(1, 60)} (shared)"))
+    rec.row = {
+        "Name": name,
+        "Born": birth.strftime("%d/%m/%Y") if birth else None,
+        "Joined": dt.datetime.combine(rec.day, dt.time()),
+        "Phone": phone_local(phone) if phone else None,
+        "Street": street,
+        "Postcode": postcode,
+        "Height (cm)": height,
+        "Annual Fee": float(rec.amount),
+        "Locker": locker,
+    }
+
+
+def render_webshop(rec: Record, dice: Dice, rates_table: Rates) -> None:
+    rates, person, faults = FAULTS["webshop"], rec.person, rec.faults
+    note_history(person, rec.day, faults)
+    given, family = messy_name(person, rates, dice, faults)
+    if dice.chance(rates["spaces"]):
+        if dice.chance(0.5):
+            given = extra_spaces(given, dice)
+        else:
+            family = extra_spaces(family, dice)
+        faults.append("extra_spaces")
+    birth = messy_birth(person, rates, dice, faults)
+    email = messy_email(person, rec.day, rates, dice, faults)
+
+    phone = person.mobile_on(rec.day)
+    if phone is None and dice.chance(rates["landline_in_mobile"]):
+        phone = person.household.landline_on(rec.day)
+    if phone and dice.chance(rates["missing_phone"]):
+        phone = None
+
+    _, postcode = person.household.address_on(rec.day)
+    if dice.chance(rates["missing_postcode"]):
+        postcode = None
+    elif dice.chance(rates["postcode_style"]):
+        style = dice.pick(("lower", "nospace", "lower_nospace"))
+        postcode = postcode.lower() if "lower" in style else postcode
+        postcode = postcode.replace(" ", "") if "nospace" in style else postcode
+        faults.append(f"postcode_{style}")
+
+    spend = Decimal(f"{max(5.0, float(np.exp(dice.normal(4.6, 1.0)))):.2f}")
+    while rates_table.is_half_cent_tie(spend, "EUR", rec.day):
+        spend += CENT
+    rec.amount, rec.currency = spend, "EUR"
+    rec.row = {
+        "first_name": given,
+        "last_name": family,
+        "email": email or "",
+        "mobile": phone_format(phone, "intl" if dice.chance(0.7) else "intl_compact")
+        if phone else "",
+        "date_of_birth": birth.isoformat() if birth else "",
+        "lifetime_spend": str(spend),
+        "last_order": rec.day.isoformat(),
+        "ship_postcode": postcode or "",
+        "marketing_opt_in": "Y" if dice.chance(0.4) else "N",
+    }
+
+
+def render_rentals(rec: Record, dice: Dice, rates_table: Rates) -> None:
+    rates, person, faults = FAULTS["rentals"], rec.person, rec.faults
+    note_history(person, rec.day, faults)
+    given, family = messy_name(person, rates, dice, faults)
+    if dice.chance(rates["spaces"]):
+        given = extra_spaces(given, dice)
+        faults.append("extra_spaces")
+    birth = messy_birth(person, rates, dice, faults)
+
+    title = None
+    if not dice.chance(rates["missing_title"]):
+        title = "Dr" if dice.chance(0.06) else {"F": "Ms", "M": "Mr", "X": None}[person.sex]
+
+    phone = person.main_phone_on(rec.day)
+    if phone and dice.chance(rates["missing_phone"]):
+        phone = None
+    style = dice.pick(("local", "local_compact", "intl", "parens", "intl_00"))
+
+    height = None if dice.chance(rates["missing_height"]) else round(person.height_cm / 2.54, 1)
+    weight = (None if dice.chance(rates["missing_weight"])
+              else round(person.weight_kg / 0.45359237, 1))
+
+    roll = dice.gen.random()
+    currency = "GBP" if roll < 0.65 else "EUR" if roll < 0.90 else "USD"
+    amount = Decimal(dice.pick(DEPOSIT_AMOUNTS[currency]))
+    for _ in range(10):
+        if not rates_table.is_half_cent_tie(amount, currency, rec.day):
+            break
+        amount = Decimal(dice.pick(DEPOSIT_AMOUNTS[currency]))
+    while rates_table.is_half_cent_tie(amount, currency, rec.day):
+        amount += 1
+    rec.amount, rec.currency = amount, currency
+    rec.row = {
+        "name": {"title": title, "first": given, "last": family},
+        "contact": {"phone": phone_format(phone, style) if phone else None},
+        "dob": birth.strftime("%m/%d/%Y") if birth else None,
+        "height_in": height,
+        "weight_lb": weight,
+        "deposit": {"amount": float(amount), "currency": currency},
+        "rented_on": rec.day.isoformat(),
+    }
+
+
+def render_events(rec: Record, dice: Dice) -> None:
+    rates, person, faults = FAULTS["events"], rec.person, rec.faults
+    given, family = messy_name(person, rates, dice, faults)
+    if dice.chance(rates["spaces"]):
+        family = extra_spaces(family, dice)
+        faults.append("extra_spaces")
+    birth = messy_birth(person, rates, dice, faults)
+    email = messy_email(person, rec.day, rates, dice, faults)
+    name, day, fee = rec.event
+    if fee > 0 and dice.chance(0.08):
+        fee = Decimal("0.00")  # volunteers take part for free
+    rec.amount, rec.currency = fee, "GBP"
+    rec.row = {
+        "given": given,
+        "surname": family,
+        "email": email,
+        "birth_year": birth.year if birth else None,
+        "fee": float(fee),
+        "event_name": name,
+        "event_date": day.isoformat(),
+    }
+
+
+# --------------------------------------------------------------------------
+# Who appears where
+# --------------------------------------------------------------------------
+
+def build_event_programme(dice: Dice) -> list[tuple[str, dt.date, Decimal]]:
+    programme = []
+    year, month = ACTIVITY_FIRST.year, ACTIVITY_FIRST.month
+    while dt.date(year, month, 1) <= ACTIVITY_LAST:
+        first = dt.date(year, month, 1)
+        weekend_days = [first + dt.timedelta(days=d) for d in range(28)
+                        if (first + dt.timedelta(days=d)).weekday() >= 5]
+        for index in sorted(dice.choose_many(len(EVENT_TYPES), 3)):
+            name, fee = EVENT_TYPES[index]
+            fee = Decimal(fee)
+            if year == 2026 and fee > 0:
+                fee += 2  # the 2026 programme costs a little more
+            programme.append((name, dice.pick(weekend_days), fee))
+        month += 1
+        if month == 13:
+            year, month = year + 1, 1
+    return sorted(programme, key=lambda e: (e[1], e[0]))
+
+
+def plan_records(world: World, dice: Dice,
+                 programme: list[tuple[str, dt.date, Decimal]]) -> list[Record]:
+    weights = np.array([SOURCE_WEIGHT[s] for s in SOURCES])
+    weights = weights / weights.sum()
+    records: list[Record] = []
+    for person in world.people:
+        k = 1 + int(dice.gen.choice(4, p=N_SOURCES_PROB))
+        chosen = sorted(dice.choose_many(4, k, p=weights))
+        for source in (SOURCES[i] for i in chosen):
+            copies = 1
+            if dice.chance(WITHIN_SOURCE_DUP[source]):
+                copies += 2 if dice.chance(0.1) else 1
+            used_days: list[dt.date] = []
+            for copy in range(copies):
+                rec = Record(source, person, ACTIVITY_FIRST)
+                if source == "events":
+                    if copy and dice.chance(0.5):
+                        rec.event = records[-1].event  # signed up twice for one event
+                        rec.faults.append("double_signup")
+                    else:
+                        rec.event = dice.pick(programme)
+                    rec.day = rec.event[1]
+                else:
+                    first = ACTIVITY_FIRST
+                    if source == "membership":
+                        first = max(JOIN_FIRST, add_years(person.birth, 14))
+                    rec.day = dice.date(first, ACTIVITY_LAST)
+                    while rec.day in used_days:
+                        rec.day = dice.date(first, ACTIVITY_LAST)
+                used_days.append(rec.day)
+                if copy:
+                    rec.faults.append("within_source_duplicate")
+                records.append(rec)
+    return records
+
+
+def assign_ids(records: list[Record], dice: Dice) -> None:
+    """Give every record its department's ID; IDs follow each desk's own habits."""
+    by_source: dict[str, list[Record]] = defaultdict(list)
+    for rec in records:
+        by_source[rec.source].append(rec)
+    for source, recs in by_source.items():
+        shuffled = [recs[i] for i in dice.choose_many(len(recs), len(recs))]
+        if source == "webshop":
+            ordered = shuffled  # account numbers say nothing about dates
+        else:
+            ordered = sorted(shuffled, key=lambda r: r.day)  # stable: ties stay shuffled
+        number = 0
+        for rec in ordered:
+            if source == "membership":
+                number += dice.integer(1, 3)
+                rec.record_id = f"M-{number:06d}"
+            elif source == "webshop":
+                number += dice.integer(1, 40)
+                rec.record_id = f"W{100000 + number}"
+            elif source == "rentals":
+                number += dice.integer(1, 2)
+                rec.record_id = f"R-{number:05d}"
+            else:
+                number += 1 if dice.chance(0.95) else dice.integer(2, 4)
+                rec.record_id = str(number)
+
+
+def plant_unit_slips(records: list[Record], dice: Dice) -> None:
+    members = [r for r in records if r.source == "membership" and r.row["Height (cm)"]]
+    for index in sorted(dice.choose_many(len(members), MEMBERSHIP_INCH_SLIPS)):
+        rec = members[index]
+        rec.row["Height (cm)"] = round(rec.person.height_cm / 2.54, 1)
+        rec.faults.append("height_in_inches")
+    renters = [r for r in records if r.source == "rentals" and r.row["height_in"]]
+    for index in sorted(dice.choose_many(len(renters), RENTALS_CM_SLIPS)):
+        rec = renters[index]
+        rec.row["height_in"] = rec.person.height_cm
+        rec.faults.append("height_in_centimetres")
+
+
+# --------------------------------------------------------------------------
+# Writers
+# --------------------------------------------------------------------------
+
+MEMBERSHIP_COLUMNS = ("Member No", "Name", "Born", "Joined", "Phone", "Street",
+                      "Postcode", "Height (cm)", "Annual Fee", "Locker")
+WEBSHOP_COLUMNS = ("customer_id", "first_name", "last_name", "email", "mobile",
+                   "date_of_birth", "lifetime_spend", "last_order", "ship_postcode",
+                   "marketing_opt_in")
+
+
+def write_membership(path: Path, records: list[Record]) -> None:
+    workbook = openpyxl.Workbook()
+    sheet = workbook.active
+    sheet.title = "Members"
+    sheet.append(MEMBERSHIP_COLUMNS)
+    for cell in sheet[1]:
+        cell.font = Font(bold=True)
+    for rec in records:
+        sheet.append([rec.record_id] + [rec.row[c] for c in MEMBERSHIP_COLUMNS[1:]])
+    for row in sheet.iter_rows(min_row=2):
+        row[2].number_format = "@"            # Born stays text
+        row[3].number_format = "dd/mm/yyyy"   # Joined is a real date
+        row[7].number_format = "0.0"
+        row[8].number_format = "0.00"
+    for letter, width in zip("ABCDEFGHIJ", (11, 32, 12, 12, 15, 26, 10, 11, 11, 16), strict=True):
+        sheet.column_dimensions[letter].width = width
+    sheet.freeze_panes = "A2"
+    workbook.properties.creator = "Tallow Creek membership office (invented demo)"
+    workbook.properties.title = "Members"
+    workbook.properties.created = FIXED_FILE_TIME
+    workbook.properties.modified = FIXED_FILE_TIME
+    buffer = io.BytesIO()
+    workbook.save(buffer)
+    write_reproducible_zip(path, buffer.getvalue())
+
+
+def write_reproducible_zip(path: Path, data: bytes) -> None:
+    """Rewrite a zip with fixed member timestamps and fixed document dates."""
+    stamp = FIXED_FILE_TIME.strftime("%Y-%m-%dT%H:%M:%SZ")
+    with zipfile.ZipFile(io.BytesIO(data)) as source, \
+            zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as target:
+        for info in source.infolist():
+            content = source.read(info.filename)
+            if info.filename == "docProps/core.xml":
+                content = re.sub(rb"(<dcterms:(created|modified)[^>]*>)[^<]*(</dcterms:)",
+                                 rb"\g<1>" + stamp.encode() + rb"\g<3>", content)
+            fixed = zipfile.ZipInfo(info.filename, date_time=FIXED_FILE_TIME.timetuple()[:6])
+            fixed.compress_type = zipfile.ZIP_DEFLATED
+            fixed.external_attr = 0o644 << 16
+            target.writestr(fixed, content)
+
+
+def write_csv(path: Path, header, rows, comment: str | None = None) -> None:
+    with open(path, "w", encoding="utf-8", newline="") as handle:
+        if comment:
+            handle.write(comment + "\n")
+        writer = csv.writer(handle, lineterminator="\n")
+        writer.writerow(header)
+        writer.writerows(rows)
+
+
+def write_webshop(path: Path, records: list[Record]) -> None:
+    write_csv(path, WEBSHOP_COLUMNS,
+              ([rec.record_id] + [rec.row[c] for c in WEBSHOP_COLUMNS[1:]] for rec in records))
+
+
+def write_rentals(path: Path, records: list[Record]) -> None:
+    with open(path, "w", encoding="utf-8", newline="\n") as handle:
+        handle.writelines(json.dumps({"rental_ref": rec.record_id, **rec.row},
+                                    ensure_ascii=False) + "\n" for rec in records)
+
+
+def write_events(path: Path, records: list[Record]) -> None:
+    if path.exists():
+        path.unlink()
+    connection = sqlite3.connect(path)
+    try:
+        connection.execute(
+            "CREATE TABLE signups (signup_id INTEGER PRIMARY KEY, given TEXT, surname TEXT, "
+            "email TEXT, birth_year INTEGER, fee REAL, event_name TEXT, event_date TEXT)")
+        connection.executemany(
+            "INSERT INTO signups VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
+            [(int(rec.record_id), rec.row["given"], rec.row["surname"], rec.row["email"],
+              rec.row["birth_year"], rec.row["fee"], rec.row["event_name"],
+              rec.row["event_date"]) for rec in records])
+        connection.commit()
+    finally:
+        connection.close()
+
+
+def write_rates(path: Path, rates: Rates) -> None:
+    write_csv(path, ("date", "from", "to", "rate"),
+              ((day.isoformat(), currency, "GBP", str(rate)) for day, currency, rate in rates.rows),
+              comment="# INVENTED exchange rates for the Tallow Creek demo only; "
+                      "not real market data")
+
+
+def entity_rows(world: World, records: list[Record], rates: Rates):
+    by_person: dict[str, list[Record]] = defaultdict(list)
+    for rec in records:
+        by_person[rec.person.entity_id].append(rec)
+    for person in world.people:
+        recs = by_person[person.entity_id]
+        members = [r for r in recs if r.source == "membership"]
+        orders = [r for r in recs if r.source == "webshop"]
+        rentals = [r for r in recs if r.source == "rentals"]
+        signups = [r for r in recs if r.source == "events"]
+        fee = money(max(members, key=lambda r: r.day).amount) if members else ""
+        spend = ""
+        if orders:
+            latest = max(orders, key=lambda r: r.day)
+            spend = money(rates.to_gbp(latest.amount, "EUR", latest.day))
+        deposits = (money(sum(rates.to_gbp(r.amount, r.currency, r.day) for r in rentals))
+                    if rentals else "")
+        event_fees = money(sum(r.amount for r in signups)) if signups else ""
+        phone = person.main_phone
+        yield (person.entity_id, person.given, person.family, person.sex,
+               person.birth.isoformat(), person.email or "",
+               phone_e164(phone) if phone else "", person.household.street,
+               person.household.postcode, f"{person.height_cm:.1f}",
+               f"{person.weight_kg:.1f}", fee, spend, deposits, event_fees)
+
+
+def write_truth(folder: Path, world: World, records: list[Record], rates: Rates) -> None:
+    folder.mkdir(parents=True, exist_ok=True)
+    write_csv(folder / "crosswalk.csv", ("source", "record_id", "entity_id"),
+              ((r.source, r.record_id, r.person.entity_id) for r in records))
+    write_csv(folder / "entities.csv",
+              ("entity_id", "given_name", "family_name", "sex", "birth_date", "email",
+               "phone", "street", "postcode", "height_cm", "weight_kg", "annual_fee_gbp",
+               "lifetime_spend_gbp", "deposits_gbp", "event_fees_gbp"),
+              entity_rows(world, records, rates))
+    write_csv(folder / "record_faults.csv", ("source", "record_id", "faults"),
+              ((r.source, r.record_id, ";".join(r.faults)) for r in records))
+
+
+# --------------------------------------------------------------------------
+# Main
+# --------------------------------------------------------------------------
+
+def record_sort_key(rec: Record):
+    if rec.source == "events":
+        return SOURCES.index(rec.source), int(rec.record_id)
+    return SOURCES.index(rec.source), rec.record_id
+
+
+def summarise(world: World, records: list[Record]) -> None:
+    per_source = Counter(r.source for r in records)
+    print("records per source:", ", ".join(f"{s}={per_source[s]}" for s in SOURCES),
+          f"(total {len(records)})")
+    entities = {r.person.entity_id for r in records}
+    print(f"entities: {len(world.people)} true people, {len(entities)} with records, "
+          f"{len(world.households)} households")
+    sources_of: dict[str, set] = defaultdict(set)
+    pair_count: Counter = Counter()
+    for r in records:
+        sources_of[r.person.entity_id].add(r.source)
+        pair_count[(r.person.entity_id, r.source)] += 1
+    spread = Counter(len(s) for s in sources_of.values())
+    print("entities by number of sources:", dict(sorted(spread.items())))
+    within = Counter()
+    for (_entity, source), n in pair_count.items():
+        within[source] += n * (n - 1) // 2
+    total_per_entity = Counter(r.person.entity_id for r in records)
+    all_pairs = sum(n * (n - 1) // 2 for n in total_per_entity.values())
+    print("within-source duplicate pairs:", dict(within), f"(total {sum(within.values())})")
+    print(f"cross-source duplicate pairs: {all_pairs - sum(within.values())}; "
+          f"all true matching pairs: {all_pairs}")
+    fault_counts = Counter(f for r in records for f in r.faults)
+    print("faults:", dict(sorted(fault_counts.items())))
+
+
+def generate(out: Path) -> None:
+    dice = Dice(SEED)
+    rates = Rates(dice)
+    world = World(dice)
+    programme = build_event_programme(dice)
+    records = plan_records(world, dice, programme)
+    for rec in records:
+        if rec.source == "membership":
+            render_membership(rec, dice)
+        elif rec.source == "webshop":
+            render_webshop(rec, dice, rates)
+        elif rec.source == "rentals":
+            render_rentals(rec, dice, rates)
+        else:
+            render_events(rec, dice)
+    assign_ids(records, dice)
+    plant_unit_slips(records, dice)
+    records.sort(key=record_sort_key)
+
+    out.mkdir(parents=True, exist_ok=True)
+    by_source = {s: [r for r in records if r.source == s] for s in SOURCES}
+    write_membership(out / "membership.xlsx", by_source["membership"])
+    write_webshop(out / "webshop.csv", by_source["webshop"])
+    write_rentals(out / "rentals.jsonl", by_source["rentals"])
+    write_events(out / "events.sqlite", by_source["events"])
+    write_rates(out / "rates.csv", rates)
+    write_truth(out / "truth", world, records, rates)
+    summarise(world, records)
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("--out", type=Path, default=Path(__file__).resolve().parent,
+                        help="output folder (default: the folder of this script)")
+    generate(parser.parse_args().out)
+
+
+if __name__ == "__main__":
+    main()

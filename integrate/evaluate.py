@@ -1,0 +1,110 @@
+"""Quality of a result against known truth: pairwise and B-cubed precision/recall/F1, blocking figures.
+
+Definitions (Christen 2012, *Data Matching*, ch. 7; Christen & Goiser 2007): precision TP/(TP+FP),
+recall TP/(TP+FN), F-measure 2PR/(P+R); pairs completeness = true matches among candidates / all
+true matches; reduction ratio = 1 - candidates / all pairs. B-cubed averages per record
+(Bagga & Baldwin 1998).
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass
+
+import numpy as np
+import pandas as pd
+
+
+@dataclass(frozen=True)
+class Scores:
+    precision: float
+    recall: float
+    f1: float
+
+    @classmethod
+    def from_counts(cls, tp: float, fp: float, fn: float) -> Scores:
+        p = tp / (tp + fp) if tp + fp else 1.0
+        r = tp / (tp + fn) if tp + fn else 1.0
+        f = 2 * p * r / (p + r) if p + r else 0.0
+        return cls(p, r, f)
+
+
+@dataclass(frozen=True)
+class Evaluation:
+    pairwise: Scores
+    bcubed: Scores
+    true_pairs: int
+    predicted_pairs: int
+    pairs_completeness: float | None = None
+    reduction_ratio: float | None = None
+
+    def as_dict(self) -> dict[str, object]:
+        return asdict(self)
+
+
+def _codes(labels: pd.Series) -> np.ndarray:
+    return pd.factorize(labels)[0]
+
+
+def cluster_pairs(labels: np.ndarray) -> set[tuple[int, int]]:
+    """All within-cluster record pairs (i < j) for integer cluster labels."""
+    frame = pd.DataFrame({"c": labels, "pos": np.arange(len(labels))})
+    sizes = frame["c"].map(frame["c"].value_counts())
+    frame = frame[sizes.to_numpy() > 1]
+    joined = frame.merge(frame, on="c")
+    joined = joined[joined["pos_x"] < joined["pos_y"]]
+    return set(zip(joined["pos_x"].tolist(), joined["pos_y"].tolist()))
+
+
+def _pair_count(labels: np.ndarray) -> int:
+    sizes = np.bincount(labels)
+    return int((sizes * (sizes - 1) // 2).sum())
+
+
+def pairwise_scores(predicted: np.ndarray, truth: np.ndarray) -> tuple[Scores, int, int]:
+    """Pairwise precision/recall/F1 of two clusterings given as label arrays (same records)."""
+    both = pd.DataFrame({"p": predicted, "t": truth})
+    tp = int((both.value_counts().to_numpy() * (both.value_counts().to_numpy() - 1) // 2).sum())
+    pred_pairs, true_pairs = _pair_count(predicted), _pair_count(truth)
+    return Scores.from_counts(tp, pred_pairs - tp, true_pairs - tp), true_pairs, pred_pairs
+
+
+def bcubed_scores(predicted: np.ndarray, truth: np.ndarray) -> Scores:
+    """B-cubed precision and recall: per record, share of its cluster that is correct, averaged."""
+    both = pd.DataFrame({"p": predicted, "t": truth})
+    n_pt = both.groupby(["p", "t"])["p"].transform("size").to_numpy(float)
+    n_p = both.groupby("p")["p"].transform("size").to_numpy(float)
+    n_t = both.groupby("t")["t"].transform("size").to_numpy(float)
+    p = float((n_pt / n_p).mean()) if len(both) else 1.0
+    r = float((n_pt / n_t).mean()) if len(both) else 1.0
+    return Scores(p, r, 2 * p * r / (p + r) if p + r else 0.0)
+
+
+def evaluate(crosswalk: pd.DataFrame, truth: pd.DataFrame, candidates: pd.DataFrame | None = None,
+             records: pd.DataFrame | None = None, all_pairs: int | None = None) -> Evaluation:
+    """Compare a crosswalk (source, record_id, entity_id) with a true one.
+
+    Records missing from the truth are ignored; ``candidates`` (pairs of positions i, j into
+    ``records``) adds pairs completeness and the reduction ratio.
+    """
+    key = ["source", "record_id"]
+    pred = crosswalk[key + ["entity_id"]].astype({"source": str, "record_id": str})
+    true = truth[key + ["entity_id"]].astype({"source": str, "record_id": str})
+    joined = pred.merge(true, on=key, suffixes=("_pred", "_true"), how="inner")
+    p_labels = _codes(joined["entity_id_pred"])
+    t_labels = _codes(joined["entity_id_true"])
+    pairwise, true_pairs, pred_pairs = pairwise_scores(p_labels, t_labels)
+    completeness = None
+    reduction = None
+    if candidates is not None and records is not None:
+        lookup = true.set_index(key)["entity_id"]
+        rec_keys = pd.MultiIndex.from_arrays([records["_source"].astype(str), records["_record_id"].astype(str)])
+        rec_entity = lookup.reindex(rec_keys).to_numpy()
+        ei = rec_entity[candidates["i"].to_numpy()]
+        ej = rec_entity[candidates["j"].to_numpy()]
+        found = int(((ei == ej) & pd.notna(ei)).sum())
+        completeness = found / true_pairs if true_pairs else 1.0
+        n = len(records)
+        total = all_pairs if all_pairs is not None else n * (n - 1) // 2
+        reduction = 1.0 - len(candidates) / total if total else 0.0
+    return Evaluation(pairwise, bcubed_scores(p_labels, t_labels), true_pairs, pred_pairs, completeness,
+                      reduction)

@@ -1,0 +1,293 @@
+"""Turn one source frame into canonical columns: renames, splits, value maps, dates, units, money."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pandas as pd
+
+from ..columns import RECORD_DATE, RECORD_ID, ROW, SOURCE, TRUST
+from ..errors import ConversionError, InputError, InputErrors, MappingError
+from .dates import parse_dates
+from .money import RatesTable, convert_money, is_currency, parse_amounts
+from .spec import CanonicalSchema, ColumnMap, SourceMapping
+from .units import check_compatible, convert_quantity, resolve_unit
+
+FAILURE_COLUMNS = ["source", "file", "row", "column", "value", "reason", "message"]
+
+# Failure reasons that stop a run: they mean the mapping or a reference table is wrong, not one cell.
+FATAL_REASONS = frozenset(
+    {"unknown_unit", "unknown_currency", "missing_rate", "needs_format", "ambiguous_date", "unmapped_value"}
+)
+
+
+@dataclass
+class MappedSource:
+    """A source in canonical form plus the cell-level problems found on the way."""
+
+    name: str
+    frame: pd.DataFrame
+    failures: pd.DataFrame
+    unmapped_columns: list[str] = field(default_factory=list)
+
+
+def canonical_dtype(ftype: str) -> str:
+    return "float64" if ftype in ("quantity", "money") else "string"
+
+
+def empty_canonical(canonical: CanonicalSchema) -> pd.DataFrame:
+    columns = {
+        SOURCE: pd.Series(dtype="string"),
+        RECORD_ID: pd.Series(dtype="string"),
+        ROW: pd.Series(dtype="int64"),
+        TRUST: pd.Series(dtype="int64"),
+        RECORD_DATE: pd.Series(dtype="string"),
+    }
+    for name, spec in canonical.fields.items():
+        columns[name] = pd.Series(dtype=canonical_dtype(spec.type))
+    return pd.DataFrame(columns)
+
+
+class _Collector:
+    """Gathers failures frames from the converters and tags them with file, row and column."""
+
+    def __init__(self, source: str, file: str, rows: pd.Series) -> None:
+        self.source, self.file, self.rows = source, file, rows
+        self.parts: list[pd.DataFrame] = []
+
+    def add(self, failures: pd.DataFrame, column: str) -> None:
+        if failures is None or failures.empty:
+            return
+        part = pd.DataFrame(
+            {
+                "source": self.source,
+                "file": self.file,
+                "row": self.rows.loc[failures["index"]].to_numpy(),
+                "column": column,
+                "value": failures["value"].astype("string").to_numpy(),
+                "reason": failures["reason"].to_numpy(),
+                "message": failures["message"].to_numpy(),
+            }
+        )
+        self.parts.append(part)
+
+    def frame(self) -> pd.DataFrame:
+        if not self.parts:
+            return pd.DataFrame({c: pd.Series(dtype="object") for c in FAILURE_COLUMNS})
+        return pd.concat(self.parts, ignore_index=True)
+
+
+def _mapping_error(mapping_file: str, column: str, message: str, reason: str, hint: str | None = None,
+                   line: int | None = None, col: int | None = None) -> MappingError:
+    return MappingError(f"column '{column}': {message}", file=mapping_file, line=line, column=col,
+                        reason=reason, hint=hint)
+
+
+def check_columns(
+    raw: pd.DataFrame, mapping: SourceMapping, data_file: str, mapping_file: str
+) -> list[str]:
+    """Raise for mapped columns missing from the data; return columns the mapping does not mention."""
+    present = set(raw.columns) - {ROW}
+    maps = mapping.column_maps()
+    needed = set(maps) | {mapping.record_id}
+    if mapping.record_date:
+        needed.add(mapping.record_date)
+    for entry in maps.values():
+        needed.update(c for c in (entry.unit_column, entry.currency_column, entry.priced_on) if c)
+    missing = sorted(needed - present)
+    if missing:
+        from .load import position_of
+
+        problems: list[InputError] = []
+        for column in missing:
+            line, col = position_of(Path(mapping_file), "columns", column)
+            if line is None:
+                line, col = position_of(Path(mapping_file), "record_id")
+            problems.append(
+                MappingError(
+                    f"mapped column '{column}' is not in {data_file}",
+                    file=mapping_file, line=line, column=col, value=column, reason="missing_column",
+                    hint="columns in the data: " + ", ".join(sorted(present)),
+                )
+            )
+        raise problems[0] if len(problems) == 1 else InputErrors(problems)
+    return sorted(present - needed)
+
+
+def apply_mapping(
+    raw: pd.DataFrame,
+    mapping: SourceMapping,
+    canonical: CanonicalSchema,
+    rates: RatesTable | None,
+    *,
+    data_file: str,
+    mapping_file: str,
+) -> MappedSource:
+    """Source frame (text columns + ``_row``) -> canonical frame with meta columns.
+
+    Cell-level problems (a bad date in one row) become rows of ``failures`` and the cell is left
+    empty; problems that mean the mapping or the rates table is wrong raise ``InputErrors``.
+    """
+    unmapped = check_columns(raw, mapping, data_file, mapping_file)
+    raw = raw.reset_index(drop=True)
+    rows = raw[ROW]
+    collect = _Collector(mapping.source, data_file, rows)
+    out = empty_canonical(canonical).reindex(range(len(raw)))
+    out[SOURCE] = pd.array([mapping.source] * len(raw), dtype="string")
+    out[RECORD_ID] = raw[mapping.record_id].astype("string").str.strip()
+    out[ROW] = rows.astype("int64").to_numpy()
+    out[TRUST] = mapping.trust
+    _check_record_ids(out, data_file, mapping)
+
+    record_dates = pd.Series(pd.array([mapping.as_of.isoformat()] * len(raw), dtype="string"))
+    if mapping.record_date:
+        entry = mapping.column_maps().get(mapping.record_date)
+        fmt = entry.format if entry else None
+        parsed, failures = parse_dates(raw[mapping.record_date], fmt)
+        collect.add(failures, mapping.record_date)
+        record_dates = parsed.fillna(mapping.as_of.isoformat()).astype("string")
+    out[RECORD_DATE] = record_dates.to_numpy()
+
+    for column, entry in mapping.column_maps().items():
+        if entry.ignore:
+            continue
+        values = raw[column].astype("string")
+        if entry.values is not None:
+            values = _apply_value_map(values, entry, column, data_file, rows)
+        if entry.split:
+            parts = values.str.strip().str.extract(entry.split)
+            for target in entry.targets():
+                _fill(out, target, parts[target].astype("string").str.strip().replace("", pd.NA))
+            continue
+        assert entry.field is not None
+        target = entry.field
+        converted = _convert(values, entry, column, target, raw, mapping, canonical, rates, collect,
+                             mapping_file)
+        _fill(out, target, converted)
+
+    failures = collect.frame()
+    fatal = failures[failures["reason"].isin(FATAL_REASONS)]
+    if not fatal.empty:
+        raise _fatal_errors(fatal)
+    return MappedSource(mapping.source, out, failures, unmapped)
+
+
+def _check_record_ids(out: pd.DataFrame, data_file: str, mapping: SourceMapping) -> None:
+    ids = out[RECORD_ID]
+    missing = ids.isna()
+    if missing.any():
+        row = int(out.loc[missing.idxmax(), ROW])
+        raise InputError(
+            f"record ID is empty in {int(missing.sum())} rows", file=data_file, line=row,
+            column=mapping.record_id, reason="missing_record_id",
+            hint="every record needs an ID that is unique within its source",
+        )
+    dup = ids.duplicated(keep=False)
+    if dup.any():
+        first = out.loc[dup, [RECORD_ID, ROW]].head(3)
+        shown = ", ".join(f"'{r}' (row {n})" for r, n in first.itertuples(index=False))
+        raise InputError(
+            f"record ID is not unique: {int(dup.sum())} rows share an ID, e.g. {shown}",
+            file=data_file, line=int(first[ROW].iloc[0]), column=mapping.record_id,
+            reason="duplicate_record_id", hint="choose a column that identifies each row",
+        )
+
+
+def _fill(out: pd.DataFrame, target: str, values: pd.Series) -> None:
+    """Several columns may feed one field: the first non-empty value wins (in mapping order)."""
+    values = values.reset_index(drop=True)
+    if out[target].isna().all():
+        out[target] = values.astype(out[target].dtype)
+    else:
+        out[target] = out[target].fillna(values.astype(out[target].dtype))
+
+
+def _apply_value_map(values: pd.Series, entry: ColumnMap, column: str, data_file: str,
+                     rows: pd.Series) -> pd.Series:
+    assert entry.values is not None
+    stripped = values.str.strip()
+    known = stripped.isna() | stripped.isin(list(entry.values))
+    if not known.all():
+        counts = stripped[~known].value_counts()
+        listed = ", ".join(f"'{v}' ({n})" for v, n in counts.head(10).items())
+        first_row = int(rows[(~known).to_numpy()].iloc[0])
+        raise InputError(
+            f"values not in the value map: {listed}", file=data_file, line=first_row, column=column,
+            value=counts.index[0], reason="unmapped_value",
+            hint="add them to the column's 'values' map (map a value to null to drop it)",
+        )
+    return stripped.map(entry.values).astype("string")
+
+
+def _convert(values: pd.Series, entry: ColumnMap, column: str, target: str, raw: pd.DataFrame,
+             mapping: SourceMapping, canonical: CanonicalSchema, rates: RatesTable | None,
+             collect: _Collector, mapping_file: str) -> pd.Series:
+    spec = canonical.fields[target]
+    from .load import position_of
+
+    line, col = position_of(Path(mapping_file), "columns", column)
+    if spec.type == "date":
+        parsed, failures = parse_dates(values, entry.format)
+        collect.add(failures, column)
+        return parsed
+    if spec.type == "quantity":
+        assert spec.unit is not None
+        if entry.unit:
+            try:
+                unit = resolve_unit(entry.unit)
+                check_compatible(unit, spec.unit)
+            except ConversionError as exc:
+                raise _mapping_error(mapping_file, column, exc.message, exc.reason, exc.hint, line, col) from exc
+            converted, failures = convert_quantity(values, unit, spec.unit)
+        else:
+            assert entry.unit_column is not None
+            converted, failures = convert_quantity(values, raw[entry.unit_column], spec.unit)
+        collect.add(failures, column)
+        return converted
+    if spec.type == "money":
+        amounts, failures = parse_amounts(values)
+        collect.add(failures, column)
+        if entry.currency:
+            if not is_currency(entry.currency):
+                raise _mapping_error(mapping_file, column, f"'{entry.currency}' is not an ISO 4217 currency code",
+                                     "unknown_currency", "use a three-letter code such as EUR, GBP, USD", line, col)
+            currencies: str | pd.Series = entry.currency.strip().upper()
+        else:
+            assert entry.currency_column is not None
+            currencies = raw[entry.currency_column].astype("string").str.strip().str.upper()
+        if entry.priced_on:
+            date_entry = mapping.column_maps().get(entry.priced_on)
+            dates, date_failures = parse_dates(raw[entry.priced_on], date_entry.format if date_entry else None)
+            collect.add(date_failures, entry.priced_on)
+            dates = dates.fillna(mapping.as_of.isoformat())
+        else:
+            dates = mapping.as_of
+        needs_rates = not (isinstance(currencies, str) and currencies == canonical.base_currency)
+        if needs_rates and rates is None:
+            raise _mapping_error(
+                mapping_file, column, f"converting to {canonical.base_currency} needs a rates table",
+                "missing_rates", "set 'rates:' in canonical.yaml to a dated rates CSV", line, col)
+        converted, failures = convert_money(amounts, currencies, dates, canonical.base_currency, rates,
+                                            max_age_days=canonical.rate_max_age_days)
+        collect.add(failures, column)
+        return converted
+    return values.str.strip().replace("", pd.NA).astype("string")
+
+
+def _fatal_errors(fatal: pd.DataFrame) -> InputErrors:
+    problems: list[InputError] = []
+    for (reason, column), group in fatal.groupby(["reason", "column"], sort=False):
+        first = group.iloc[0]
+        rows = ", ".join(str(r) for r in group["row"].head(5))
+        more = f" and {len(group) - 5} more" if len(group) > 5 else ""
+        problems.append(
+            ConversionError(
+                f"{first['message']} ({len(group)} rows: {rows}{more})",
+                file=str(first["file"]), line=int(first["row"]), column=str(column),
+                value=first["value"], reason=str(reason),
+            )
+        )
+    return InputErrors(problems)
+
+

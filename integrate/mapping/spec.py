@@ -1,0 +1,236 @@
+"""The mapping-file formats as pydantic models: the canonical schema and one file per source.
+
+These models are the single definition of both YAML formats; the JSON Schema files that
+editors use are generated from them (``integrate schema``).
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import re
+from typing import Annotated, Literal, Union
+
+from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
+
+FieldType = Literal[
+    "text",
+    "person_name",
+    "email",
+    "phone",
+    "date",
+    "postcode",
+    "category",
+    "identifier",
+    "quantity",
+    "money",
+]
+
+ResolutionRule = Literal[
+    "trust",  # prefer the most trusted source (lowest trust rank), then the most recent
+    "most_recent",  # the value from the record with the latest record date
+    "most_common",  # ties broken by trust, then recency
+    "most_complete",  # the longest non-empty value; ties by trust
+    "sum",  # numbers: sum over distinct records
+    "min",
+    "max",
+    "mean",
+    "all",  # keep every distinct value, joined with " | "
+]
+
+_NAME = r"^[a-z][a-z0-9_]*$"
+
+
+class _Strict(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+
+class CanonicalField(_Strict):
+    """One field of the canonical schema."""
+
+    type: FieldType
+    meaning: str = Field(min_length=8, description="One sentence saying what the field means.")
+    unit: str | None = Field(None, description="Canonical unit of a quantity field (pint name).")
+    range: tuple[float, float] | None = Field(
+        None, description="Plausible range [low, high] in the canonical unit; values outside are flagged."
+    )
+    compare: bool | None = Field(
+        None, description="Use this field when matching records (default: yes for identifying types)."
+    )
+    resolve: ResolutionRule = Field("most_common", description="How the merged value is chosen.")
+    region: str | None = Field(None, description="Default phone region (ISO 3166 alpha-2) for phone fields.")
+
+    @model_validator(mode="after")
+    def _unit_for_quantities(self) -> CanonicalField:
+        if self.type == "quantity" and not self.unit:
+            raise ValueError("a quantity field needs a canonical 'unit' (e.g. cm, kg)")
+        if self.type != "quantity" and self.unit:
+            raise ValueError(f"'unit' is only for quantity fields, not for type '{self.type}'")
+        return self
+
+    def is_compared(self) -> bool:
+        if self.compare is not None:
+            return self.compare
+        return self.type not in ("money", "category")
+
+
+class BlockingRule(_Strict):
+    """Records sharing every key of a rule become candidate pairs.
+
+    A key is ``field`` or ``field:transform``; transforms: ``exact``, ``soundex``, ``nysiis``,
+    ``first3`` (any ``firstN``), ``year``, ``month_day``, ``digits_last7``, ``tokens`` (sorted name tokens).
+    """
+
+    name: str = Field(pattern=_NAME)
+    keys: list[str] = Field(min_length=1)
+
+
+class Thresholds(_Strict):
+    """Match-probability cut-offs for Fellegi–Sunter's three outcomes."""
+
+    link: float = Field(0.8, gt=0, lt=1, description="At or above: link.")
+    review: float = Field(0.2, gt=0, lt=1, description="At or above (and below link): possible link.")
+
+    @model_validator(mode="after")
+    def _ordered(self) -> Thresholds:
+        if self.review > self.link:
+            raise ValueError(f"review threshold {self.review} is above link threshold {self.link}")
+        return self
+
+
+class CanonicalSchema(_Strict):
+    """The canonical schema plus the workspace's settings (``mappings/canonical.yaml``)."""
+
+    schema_ref: str | None = Field(None, alias="$schema")
+    base_currency: str = Field("EUR", pattern=r"^[A-Z]{3}$", description="ISO 4217 code of money fields.")
+    rates: str | None = Field(None, description="Dated currency-rates CSV, relative to the workspace.")
+    rate_max_age_days: int = Field(7, ge=0, description="How old the latest rate may be on a pricing date.")
+    output: str = Field("out", description="Folder for the output tables, relative to the workspace.")
+    reports: str = Field("reports", description="Folder for run reports, relative to the workspace.")
+    fields: dict[str, CanonicalField]
+    blocking: list[BlockingRule] = Field(default_factory=list)
+    thresholds: Thresholds = Field(default_factory=Thresholds)
+    max_block_size: int = Field(
+        1000, ge=2, description="Blocks with more records than this are skipped with a warning."
+    )
+
+    model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
+
+    @field_validator("fields")
+    @classmethod
+    def _field_names(cls, value: dict[str, CanonicalField]) -> dict[str, CanonicalField]:
+        for name in value:
+            if not re.match(_NAME, name):
+                raise ValueError(f"field name '{name}' must be lower_snake_case")
+        return value
+
+
+class ReadSpec(_Strict):
+    """Where a source lives and how to read it."""
+
+    format: Literal["csv", "excel", "json", "jsonl", "parquet", "sqlite", "sql"]
+    path: str | None = Field(None, description="File path, relative to the workspace root.")
+    url: str | None = Field(None, description="SQLAlchemy URL (format 'sql').")
+    encoding: str = "utf-8"
+    delimiter: str = ","
+    quotechar: str = '"'
+    sheet: str | int | None = Field(None, description="Excel sheet name or 0-based index.")
+    table: str | None = Field(None, description="Table to read (sqlite / sql).")
+    query: str | None = Field(None, description="SELECT to run instead of a table (sqlite / sql).")
+
+    @model_validator(mode="after")
+    def _where(self) -> ReadSpec:
+        if self.format == "sql":
+            if not self.url:
+                raise ValueError("format 'sql' needs a 'url' (a SQLAlchemy URL)")
+        elif not self.path:
+            raise ValueError(f"format '{self.format}' needs a 'path'")
+        if self.format in ("sqlite", "sql") and not (self.table or self.query):
+            raise ValueError("give a 'table' or a 'query' to read")
+        return self
+
+
+class ColumnMap(_Strict):
+    """How one source column feeds the canonical schema."""
+
+    field: str | None = Field(None, description="Canonical field this column feeds.")
+    split: str | None = Field(
+        None,
+        description="Regular expression with named groups, one per canonical field it fills "
+        "(e.g. '^(?P<family_name>[^,]+),\\s*(?P<given_name>.*)$').",
+    )
+    ignore: bool = Field(False, description="Explicitly not used.")
+    format: str | None = Field(
+        None, description="Date format (strftime codes, 'excel' for serial days, 'iso' for ISO 8601)."
+    )
+    unit: str | None = Field(None, description="Unit of the values (quantity fields).")
+    unit_column: str | None = Field(None, description="Column holding each row's unit.")
+    currency: str | None = Field(None, description="ISO 4217 code of the values (money fields).")
+    currency_column: str | None = Field(None, description="Column holding each row's currency code.")
+    priced_on: str | None = Field(
+        None, description="Column with the date that prices each row (default: the source's as-of date)."
+    )
+    values: dict[str, str | None] | None = Field(None, description="Map of codes to canonical values.")
+    note: str | None = Field(None, description="What this column means in this source.")
+
+    @model_validator(mode="after")
+    def _one_target(self) -> ColumnMap:
+        targets = sum([self.field is not None, self.split is not None, self.ignore])
+        if targets != 1:
+            raise ValueError("give exactly one of 'field', 'split' or 'ignore: true'")
+        if self.unit and self.unit_column:
+            raise ValueError("give 'unit' or 'unit_column', not both")
+        if self.currency and self.currency_column:
+            raise ValueError("give 'currency' or 'currency_column', not both")
+        if self.split is not None:
+            try:
+                pattern = re.compile(self.split)
+            except re.error as exc:
+                raise ValueError(f"split pattern does not compile: {exc}") from exc
+            if not pattern.groupindex:
+                raise ValueError("split pattern needs named groups, e.g. (?P<given_name>...)")
+        return self
+
+    def targets(self) -> list[str]:
+        if self.field:
+            return [self.field]
+        if self.split:
+            return list(re.compile(self.split).groupindex)
+        return []
+
+
+ColumnEntry = Annotated[
+    Union[Literal["ignore"], str, ColumnMap],
+    Field(description="A canonical field name, 'ignore', or a column mapping object."),
+]
+
+
+class SourceMapping(_Strict):
+    """One source's mapping file (``mappings/<source>.yaml``)."""
+
+    schema_ref: str | None = Field(None, alias="$schema")
+    source: str = Field(pattern=_NAME, description="Short name of the source, used in outputs.")
+    read: ReadSpec
+    record_id: str = Field(description="Column holding the record ID, unique within the source.")
+    as_of: dt.date = Field(description="Date the export was taken.")
+    trust: int = Field(5, ge=1, le=99, description="Trust rank: 1 is the most trusted source.")
+    record_date: str | None = Field(
+        None, description="Column dating each record (for 'most_recent'); default: the as-of date."
+    )
+    region: str | None = Field(None, description="Default phone region (ISO 3166 alpha-2).")
+    one_per_person: bool = Field(False, description="The source holds at most one record per person.")
+    note: str | None = None
+    columns: dict[str, ColumnEntry]
+
+    model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
+
+    def column_maps(self) -> dict[str, ColumnMap]:
+        """Every column entry as a ColumnMap (strings expanded)."""
+        out: dict[str, ColumnMap] = {}
+        for column, entry in self.columns.items():
+            if isinstance(entry, ColumnMap):
+                out[column] = entry
+            elif entry == "ignore":
+                out[column] = ColumnMap(ignore=True)
+            else:
+                out[column] = ColumnMap(field=entry)
+        return out

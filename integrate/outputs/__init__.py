@@ -1,0 +1,1 @@
+"""Writing results: tables (atomic) and the HTML run report."""

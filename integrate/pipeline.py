@@ -1,0 +1,195 @@
+"""The run: every stage in order, from source files to outputs and the run report.
+
+read sources -> apply mappings -> standardise -> block -> compare -> score -> cluster -> resolve
+-> write outputs + report. Each stage lives in its own module; this module only passes data along.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import logging
+import time
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pandas as pd
+
+from .block import BlockingReport
+from .columns import RECORD_ID, SOURCE
+from .compare import grade_name
+from .errors import InputError, InputErrors
+from .mapping.apply import FAILURE_COLUMNS, MappedSource, apply_mapping
+from .mapping.money import RatesTable, load_rates
+from .matching import MatchResult, match_records
+from .resolve import resolve
+from .score import ScoreModel
+from .sources import read_source
+from .workspace import Workspace, load_workspace
+
+log = logging.getLogger(__name__)
+
+# Stage names in order, as shown by progress displays.
+STAGES = ("read", "map", "standardise", "block", "compare", "score", "cluster", "resolve", "write")
+
+Progress = Callable[[str], None]
+
+
+@dataclass
+class RunResult:
+    """Everything a run produced; the same frames are written to the output folder."""
+
+    merged: pd.DataFrame
+    crosswalk: pd.DataFrame
+    provenance: pd.DataFrame
+    pairs: pd.DataFrame
+    failures: pd.DataFrame
+    records: pd.DataFrame
+    blocking: BlockingReport
+    model: ScoreModel
+    source_counts: dict[str, int]
+    unmapped: dict[str, list[str]]
+    mapping_hashes: dict[str, str]
+    timings: dict[str, float]
+    started: dt.datetime
+    output_dir: Path | None = None
+    report_path: Path | None = None
+    warnings: list[str] = field(default_factory=list)
+
+
+def _quiet(_: str) -> None:
+    return None
+
+
+def read_and_map(ws: Workspace, progress: Progress = _quiet) -> tuple[pd.DataFrame, list[MappedSource]]:
+    """Read every source and map it to canonical columns; all input problems are raised together."""
+    rates: RatesTable | None = None
+    if ws.canonical.rates:
+        rates_path = ws.root / ws.canonical.rates
+        if not rates_path.exists():
+            raise InputError("currency-rates file not found", file=ws.display(rates_path), reason="missing_file",
+                             hint="check 'rates:' in mappings/canonical.yaml")
+        rates = load_rates(rates_path)
+    mapped: list[MappedSource] = []
+    problems: list[InputError] = []
+    progress("read")
+    for entry in ws.sources:
+        mapping = entry.mapping
+        data_path = entry.data_path(ws.root)
+        data_file = ws.display(data_path) if data_path else str(mapping.read.url)
+        try:
+            raw = read_source(mapping.read, ws.root, name=mapping.source)
+            mapped.append(apply_mapping(raw, mapping, ws.canonical, rates, data_file=data_file,
+                                        mapping_file=ws.display(entry.mapping_file)))
+        except InputErrors as many:
+            problems.extend(many.errors)
+        except InputError as one:
+            if one.file and not Path(one.file).is_absolute() and data_path is not None and one.file == str(data_path):
+                one.file = data_file
+            problems.append(one)
+    if problems:
+        raise problems[0] if len(problems) == 1 else InputErrors(problems)
+    progress("map")
+    records = pd.concat([m.frame for m in mapped], ignore_index=True)
+    return records, mapped
+
+
+def crosswalk_frame(records: pd.DataFrame, match: MatchResult) -> pd.DataFrame:
+    return pd.DataFrame({
+        "source": records[SOURCE].astype(str).to_numpy(),
+        "record_id": records[RECORD_ID].astype(str).to_numpy(),
+        "entity_id": match.entities["entity_id"].to_numpy(),
+        "link_strength": match.entities["link_strength"].round(6).to_numpy(),
+    }).sort_values(["entity_id", "source", "record_id"], kind="mergesort").reset_index(drop=True)
+
+
+def pairs_frame(records: pd.DataFrame, match: MatchResult, types: dict[str, str]) -> pd.DataFrame:
+    """Candidate pairs with record keys, readable grades, weights, probability and decision."""
+    p = match.pairs
+    i, j = p["i"].to_numpy(), p["j"].to_numpy()
+    names = match.blocking.rules
+    masks = p["rules"].to_numpy()
+    rule_names = pd.Series(masks).map(
+        lambda m: ",".join(n for b, n in enumerate(names) if (int(m) >> b) & 1))
+    out = pd.DataFrame({
+        "source_a": records[SOURCE].to_numpy()[i], "record_id_a": records[RECORD_ID].to_numpy()[i],
+        "source_b": records[SOURCE].to_numpy()[j], "record_id_b": records[RECORD_ID].to_numpy()[j],
+        "blocking_rules": rule_names.to_numpy(),
+    })
+    for f, ftype in types.items():
+        codes = p["g_" + f].to_numpy()
+        labels = {int(c): grade_name(ftype, int(c)) for c in pd.unique(codes)}
+        out["grade_" + f] = pd.Series(codes).map(labels).to_numpy()
+    for column in p.columns:
+        if column.startswith("w_"):
+            out["weight_" + column[2:]] = p[column].round(3).to_numpy()
+        elif column.startswith("tf_"):
+            out["value_frequency_" + column[3:]] = p[column].round(3).to_numpy()
+    out["weight"] = p["weight"].round(3).to_numpy()
+    out["probability"] = p["probability"].to_numpy()
+    out["decision"] = p["decision"].to_numpy()
+    return out
+
+
+def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress = _quiet,
+                 write: bool = True, output_dir: str | Path | None = None) -> RunResult:
+    """Run every stage on a workspace and (by default) write the outputs and the run report.
+
+    Args:
+        workspace: workspace folder (holding ``mappings/``) or a loaded Workspace.
+        progress: called with each stage name as it starts.
+        write: write tables and the report; ``False`` only computes.
+        output_dir: overrides the schema's ``output`` folder.
+
+    Raises:
+        InputError / InputErrors: a mapping file, source file or value is wrong; nothing is written.
+    """
+    started = dt.datetime.now(dt.UTC).replace(microsecond=0)
+    ws = workspace if isinstance(workspace, Workspace) else load_workspace(workspace)
+    timings: dict[str, float] = {}
+    clock = [time.perf_counter(), ""]
+
+    def tick(stage: str) -> None:
+        now = time.perf_counter()
+        if clock[1]:
+            timings[str(clock[1])] = timings.get(str(clock[1]), 0.0) + now - float(clock[0])
+        clock[0], clock[1] = now, stage
+        progress(stage)
+
+    records, mapped = read_and_map(ws, tick)
+    regions = {e.mapping.source: e.mapping.region for e in ws.sources}
+    match = match_records(records, ws.canonical, regions=regions, progress=tick)
+    tick("resolve")
+    merged, provenance = resolve(records, match.entities["entity_id"], ws.canonical, match.prepared)
+    crosswalk = crosswalk_frame(records, match)
+    types = {c[2:]: ws.canonical.fields[c[2:]].type for c in match.pairs.columns if c.startswith("g_")}
+    pairs = pairs_frame(records, match, types)
+    failures = pd.concat([m.failures for m in mapped], ignore_index=True) if mapped else pd.DataFrame(
+        columns=FAILURE_COLUMNS)
+    result = RunResult(
+        merged=merged, crosswalk=crosswalk, provenance=provenance, pairs=pairs, failures=failures,
+        records=records, blocking=match.blocking, model=match.model,
+        source_counts={m.name: len(m.frame) for m in mapped},
+        unmapped={m.name: m.unmapped_columns for m in mapped if m.unmapped_columns},
+        mapping_hashes=ws.mapping_hashes(), timings=timings, started=started,
+        warnings=list(match.model.warnings),
+    )
+    for name, columns in result.unmapped.items():
+        result.warnings.append(f"source '{name}': columns not mentioned in its mapping: {', '.join(columns)}")
+    if write:
+        tick("write")
+        from .outputs.report import write_report
+        from .outputs.tables import write_tables
+
+        out_dir = Path(output_dir) if output_dir else ws.output_dir
+        write_tables(out_dir, {
+            "merged": (merged, ("csv", "parquet")),
+            "crosswalk": (crosswalk, ("csv", "parquet")),
+            "provenance": (provenance, ("csv", "parquet")),
+            "pairs": (pairs, ("parquet",)),
+            "failures": (failures.astype({c: "string" for c in failures.columns}), ("csv",)),
+        })
+        result.output_dir = out_dir
+        result.report_path = write_report(result, ws)
+    tick("done")
+    return result

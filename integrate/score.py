@@ -1,0 +1,350 @@
+"""Fellegi–Sunter scoring: m/u probabilities by EM, weights log2(m/u), match probabilities.
+
+Fellegi & Sunter (1969) weigh a comparison pattern by the ratio m(γ)/u(γ); with conditional
+independence the total weight is the sum of per-field weights (base 2, following Newcombe et al.
+1959). m and u are estimated by EM over the distinct grade patterns of the candidate pairs
+(Winkler's approach), starting from sensible values: agreement likely among matches, and u from
+random record pairs. Exact agreement on a value is weighed by that value's frequency, so a rare
+family name counts for more than a common one.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from .compare import GRADE_NAMES, MISSING, NAME_PAIR, compare, name_pair_grades
+from .mapping.spec import CanonicalSchema, Thresholds
+
+LINK, POSSIBLE, NON_LINK = "link", "possible link", "non-link"
+RANDOM_PAIRS = 200_000  # random record pairs drawn to estimate u (seeded)
+EM_MAX_ITER = 500
+EM_TOLERANCE = 1e-8  # relative change of the log-likelihood that ends EM
+PSEUDO_COUNT = 0.5  # added to every level's count so no probability is exactly 0 or 1
+TF_TYPES = frozenset({"person_name", "date", "identifier"})
+SEED = 20261202
+
+
+@dataclass
+class FieldModel:
+    """m and u per grade of one field, plus its weights in bits.
+
+    ``u`` is the grade distribution among non-matching candidate pairs (all non-match classes
+    together); ``related`` is the distribution in the "shares contact details" class, if used.
+    """
+
+    name: str
+    type: str
+    m: list[float]
+    u: list[float]
+    u_random: list[float]
+    related: list[float] | None = None
+
+    @property
+    def weights(self) -> list[float]:
+        return [float(np.log2(m / u)) for m, u in zip(self.m, self.u)]
+
+
+@dataclass
+class ScoreModel:
+    """Everything the scorer estimated; shown in the run report."""
+
+    fields: dict[str, FieldModel]
+    prior: float  # share of candidate pairs that are matches (λ)
+    iterations: int
+    converged: bool
+    class_shares: dict[str, float] = field(default_factory=dict)
+    warnings: list[str] = field(default_factory=list)
+    _theta: dict[str, dict[str, np.ndarray]] = field(default_factory=dict, repr=False)
+
+    @property
+    def prior_weight(self) -> float:
+        return float(np.log2(self.prior / (1 - self.prior)))
+
+    def pattern_weight(self, grades: np.ndarray, names: list[str]) -> np.ndarray:
+        """log2 P(pattern | match) / P(pattern | non-match) for rows of grades (columns = names)."""
+        log_f = {k: np.zeros(len(grades)) for k in self._theta}
+        for c, f in enumerate(names):
+            g = grades[:, c]
+            present = g != MISSING
+            for k, theta in self._theta.items():
+                log_f[k][present] += np.log(theta[f][g[present]])
+        non = [k for k in self._theta if k != MATCH]
+        shares = np.array([self.class_shares[k] for k in non])
+        shares = shares / shares.sum()
+        stacked = np.vstack([log_f[k] for k in non]) + np.log(shares)[:, None]
+        log_non = np.logaddexp.reduce(stacked, axis=0)
+        return (log_f[MATCH] - log_non) / np.log(2)
+
+
+MATCH, RELATED, NEIGHBOUR, UNRELATED = "match", "shares contact details", "same area", "unrelated"
+# Field types that people of one household (or one family) tend to share, and types that tell
+# them apart. A pair class for "shares contact details but is another person" keeps EM from
+# mistaking a household for a match (the usual failure of two-class EM on people data).
+CONTACT_TYPES = frozenset({"email", "phone", "postcode", "text"})
+PERSONAL_TYPES = frozenset({"date", "quantity", "identifier"})
+
+
+def _levels(ftype: str) -> int:
+    return len(GRADE_NAMES[ftype])
+
+
+def all_pairs_count(n: int, groups: np.ndarray | None) -> int:
+    """Number of record pairs (across groups only when groups are given)."""
+    if groups is None:
+        return n * (n - 1) // 2
+    sizes = np.bincount(pd.factorize(groups)[0]).astype(np.int64)
+    return int((sizes.sum() ** 2 - (sizes ** 2).sum()) // 2)
+
+
+def random_pairs(n: int, count: int, groups: np.ndarray | None = None, seed: int = SEED) -> pd.DataFrame:
+    """Random distinct record pairs (seeded); across groups only when groups are given."""
+    rng = np.random.default_rng(seed)
+    if n < 2:
+        return pd.DataFrame({"i": np.zeros(0, np.int64), "j": np.zeros(0, np.int64)})
+    i = rng.integers(0, n, size=count * 2)
+    j = rng.integers(0, n, size=count * 2)
+    keep = i != j
+    if groups is not None:
+        keep &= groups[i] != groups[j]
+    i, j = i[keep][:count], j[keep][:count]
+    return pd.DataFrame({"i": np.minimum(i, j), "j": np.maximum(i, j)})
+
+
+def _level_freq(grades: np.ndarray, levels: int) -> np.ndarray:
+    present = grades[grades != MISSING]
+    counts = np.bincount(present, minlength=levels).astype(float) + PSEUDO_COUNT
+    return counts / counts.sum()
+
+
+def _initial_m(levels: int) -> np.ndarray:
+    # matches mostly agree: 5% "different", the rest doubling towards exact agreement
+    ladder = 2.0 ** np.arange(levels - 1)
+    return np.concatenate([[0.05], 0.95 * ladder / ladder.sum()])
+
+
+def _initial_classes(types: dict[str, str], u_random: dict[str, np.ndarray]
+                     ) -> tuple[dict[str, dict[str, np.ndarray]], dict[str, float], dict[str, set[str]]]:
+    """Starting profiles, shares, and which fields EM may re-estimate in each class.
+
+    Matches agree; unrelated pairs look like random pairs. When the schema has both contact and
+    personal fields, two more classes describe pairs that are not matches but share something:
+    relatives (contact details and family name) and people of one area (postcode, street). Their
+    personal fields (dates, quantities, identifiers) stay at the random-pair profile, so these
+    classes can never absorb true matches that carry a typo.
+    """
+    agree = {f: _initial_m(_levels(t)) for f, t in types.items()}
+    theta = {MATCH: agree, UNRELATED: {f: u.copy() for f, u in u_random.items()}}
+    shares = {MATCH: 0.2, UNRELATED: 0.8}
+    free = {MATCH: set(types), UNRELATED: set(types)}
+    kinds = set(types.values())
+    if kinds & CONTACT_TYPES and kinds & (PERSONAL_TYPES | {"person_name", NAME_PAIR}):
+        related = {}
+        for f, t in types.items():
+            if t in CONTACT_TYPES or t == "category":
+                related[f] = agree[f].copy()
+            elif t == NAME_PAIR:
+                # relatives share the second name (family name) and differ in the first
+                profile = np.full(_levels(t), 0.01)
+                profile[[0 * 4 + 2, 1 * 4 + 2]] = [0.6, 0.2]
+                related[f] = profile / profile.sum()
+            elif t == "person_name":
+                related[f] = 0.5 * (agree[f] + u_random[f])
+            else:
+                related[f] = u_random[f].copy()
+        theta[RELATED] = related
+        free[RELATED] = {f for f, t in types.items() if t not in PERSONAL_TYPES}
+        shares = {MATCH: 0.2, RELATED: 0.2, UNRELATED: 0.6}
+        if "postcode" in kinds:
+            # people of one area share a postcode and little else; without a class of their own
+            # they crowd the relatives' class out
+            theta[NEIGHBOUR] = {f: (agree[f].copy() if t == "postcode" else u_random[f].copy())
+                                for f, t in types.items()}
+            free[NEIGHBOUR] = {f for f, t in types.items() if t in ("postcode", "text")}
+            shares = {MATCH: 0.2, RELATED: 0.1, NEIGHBOUR: 0.1, UNRELATED: 0.6}
+    return theta, shares, free
+
+
+def model_grades(grades: pd.DataFrame, types: dict[str, str]) -> tuple[pd.DataFrame, dict[str, str]]:
+    """The grades the model sees: the first two person-name fields become one joint field."""
+    names = [f for f in grades.columns if types[f] == "person_name"]
+    if len(names) < 2:
+        return grades, dict(types)
+    first, second = names[:2]
+    joint = f"{first}+{second}"
+    out = pd.DataFrame(index=grades.index)
+    out_types: dict[str, str] = {}
+    for f in grades.columns:
+        if f == first:
+            out[joint] = name_pair_grades(grades[first].to_numpy(), grades[second].to_numpy()).astype(np.int8)
+            out_types[joint] = NAME_PAIR
+        elif f != second:
+            out[f] = grades[f]
+            out_types[f] = types[f]
+    return out, out_types
+
+
+def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np.ndarray],
+             background: pd.DataFrame | None = None, background_weight: float = 0.0) -> ScoreModel:
+    """EM for the class profiles and shares over the distinct grade patterns of all record pairs.
+
+    A latent-class mixture (Winkler's EM generalised to more than two classes): each class has
+    one probability per field and grade, fields independent within a class. The pairs blocking
+    did not propose are represented by a random sample (``background``), each standing for
+    ``background_weight`` pairs; without it the model describes the candidate pairs alone, whose
+    non-matches agree far more often than random pairs because blocking chose them for it.
+    """
+    names = list(grades.columns)
+    frames = [grades.assign(_w=1.0)]
+    if background is not None and len(background) and background_weight > 0:
+        frames.append(background[names].assign(_w=background_weight))
+    stacked = pd.concat(frames, ignore_index=True)
+    patterns = stacked.groupby(names, sort=False)["_w"].sum().reset_index()
+    counts = patterns["_w"].to_numpy(float)
+    G = patterns[names].to_numpy(np.int64)
+    theta, shares, free = _initial_classes(types, u_random)
+    if background is not None and background_weight > 0:
+        # matches and relatives are a small share of all pairs: start them near the candidate count
+        base = min(0.5, 0.3 * len(grades) / counts.sum())
+        shares = {k: (base if k != UNRELATED else 1.0) for k in shares}
+        shares[UNRELATED] = 1.0 - base * (len(shares) - 1)
+    classes = list(theta)
+    converged = False
+    previous = -np.inf
+    iteration = 0
+    for iteration in range(1, EM_MAX_ITER + 1):  # noqa: B007 - the count is reported
+        log_f = np.zeros((len(classes), len(G)))
+        for c, k in enumerate(classes):
+            log_f[c] += np.log(shares[k])
+            for col, f in enumerate(names):
+                g = G[:, col]
+                present = g != MISSING
+                log_f[c, present] += np.log(theta[k][f][g[present]])
+        log_total = np.logaddexp.reduce(log_f, axis=0)
+        post = np.exp(log_f - log_total)
+        likelihood = float((counts * log_total).sum())
+        if abs(likelihood - previous) <= EM_TOLERANCE * abs(likelihood):
+            converged = True
+            break
+        previous = likelihood
+        for c, k in enumerate(classes):
+            w = counts * post[c]
+            new_share = float(np.clip(w.sum() / counts.sum(), 1e-9, 1 - 1e-9))
+            shares[k] = new_share
+            for col, f in enumerate(names):
+                if f not in free[k]:
+                    continue
+                g = G[:, col]
+                present = g != MISSING
+                levels = _levels(types[f])
+                new = np.bincount(g[present], weights=w[present], minlength=levels) + PSEUDO_COUNT
+                new = new / new.sum()
+                theta[k][f] = new
+    non = [k for k in classes if k != MATCH]
+    total_non = sum(shares[k] for k in non)
+    fields = {}
+    for f in names:
+        u = sum(shares[k] * theta[k][f] for k in non) / total_non
+        fields[f] = FieldModel(f, types[f], theta[MATCH][f].tolist(), u.tolist(), u_random[f].tolist(),
+                               theta[RELATED][f].tolist() if RELATED in theta else None)
+    model = ScoreModel(fields, shares[MATCH], iteration, converged, dict(shares), _theta=theta)
+    model.warnings.extend(_plausibility(model))
+    return model
+
+
+def _plausibility(model: ScoreModel) -> list[str]:
+    """Estimated m/u that contradict common sense are reported, not silently used."""
+    notes = []
+    for f in model.fields.values():
+        if f.m[-1] <= f.u[-1]:
+            notes.append(f"field '{f.name}': exact agreement is not more likely among matches "
+                         f"(m={f.m[-1]:.3f}, u={f.u[-1]:.3f}); it carries no evidence for a link")
+    if not model.converged:
+        notes.append(f"EM did not converge in {model.iterations} iterations")
+    return notes
+
+
+def value_frequencies(prepared: pd.DataFrame, name: str) -> tuple[pd.Series, float]:
+    """Share of records holding each value, and the chance two random records share a value."""
+    freq = prepared[name].value_counts(normalize=True)
+    return freq, float((freq ** 2).sum())
+
+
+def _rarity(keys: pd.Series, freq_of: pd.Series) -> np.ndarray:
+    """log2(Σp² / p_v): how much rarer than average the agreeing value is (bits), capped at ±6."""
+    freq = freq_of.value_counts(normalize=True)
+    mean_share = float((freq ** 2).sum())
+    share = keys.map(freq).to_numpy(float)
+    return np.log2(mean_share / np.maximum(share, 1e-12)).clip(-6.0, 6.0)
+
+
+def frequency_adjustments(prepared: pd.DataFrame, grades: pd.DataFrame, field_types: dict[str, str],
+                          i: np.ndarray) -> dict[str, np.ndarray]:
+    """Value-frequency weights for exact agreements (u(v) = u_exact * p_v / Σ p²).
+
+    Frequencies count records, so a person's own duplicates make their name look commoner than
+    it is; the cap keeps that (and any other extreme) to at most 6 bits either way.
+    """
+    out: dict[str, np.ndarray] = {}
+    for f, ftype in field_types.items():
+        if ftype not in TF_TYPES:
+            continue
+        top = grades[f].to_numpy(np.int64) == len(GRADE_NAMES[ftype]) - 1
+        adjust = np.zeros(len(top))
+        if top.any():
+            adjust[top] = _rarity(prepared[f].iloc[i[top]], prepared[f])
+        out[f] = adjust
+    return out
+
+
+def score(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchema,
+          *, groups: np.ndarray | None = None, thresholds: Thresholds | None = None,
+          grades: pd.DataFrame | None = None) -> tuple[pd.DataFrame, ScoreModel]:
+    """Grades, weights, match probability and decision for every candidate pair.
+
+    Returns:
+        (scored pairs: the input columns + ``g_<field>`` grades + ``w_<field>`` weights +
+        ``weight``, ``probability``, ``decision``; the estimated model)
+    """
+    thresholds = thresholds or canonical.thresholds
+    if grades is None:
+        grades = compare(prepared, pairs, canonical)
+    field_types = {f: canonical.fields[f].type for f in grades.columns}
+    joint, types = model_grades(grades, field_types)
+    sample = random_pairs(len(prepared), RANDOM_PAIRS, groups)
+    random_joint, _ = model_grades(compare(prepared, sample, canonical), field_types)
+    u_random = {f: _level_freq(random_joint[f].to_numpy(np.int64), _levels(types[f])) for f in joint.columns}
+    if len(joint):
+        n_other = max(all_pairs_count(len(prepared), groups) - len(joint), 0)
+        model = estimate(joint, types, u_random, random_joint, n_other / max(len(random_joint), 1))
+    else:
+        theta, shares, _ = _initial_classes(types, u_random)
+        model = ScoreModel({f: FieldModel(f, types[f], theta[MATCH][f].tolist(), u_random[f].tolist(),
+                                          u_random[f].tolist()) for f in joint.columns},
+                           shares[MATCH], 0, True, shares, _theta=theta)
+    out = pairs.copy()
+    names = list(joint.columns)
+    codes, uniques = pd.factorize(pd.MultiIndex.from_frame(joint[names])) if len(joint) else (
+        np.zeros(0, np.int64), [])
+    unique_grades = np.array([list(u) for u in uniques], dtype=np.int64).reshape(-1, len(names))
+    total = model.pattern_weight(unique_grades, names)[codes] if len(joint) else np.zeros(0)
+    i = pairs["i"].to_numpy()
+    for f, fm in model.fields.items():
+        g = joint[f].to_numpy(np.int64)
+        table = np.asarray(fm.weights)
+        out["w_" + f] = np.where(g == MISSING, 0.0, table[np.clip(g, 0, None)]).astype(np.float32)
+    tf = frequency_adjustments(prepared, grades, field_types, i)
+    for column, adjust in tf.items():
+        total += adjust
+        out["tf_" + column] = adjust.astype(np.float32)
+    for f in field_types:
+        out["g_" + f] = grades[f].to_numpy()
+    out["weight"] = total
+    out["probability"] = 1.0 / (1.0 + np.exp2(-(total + model.prior_weight)))
+    out["decision"] = np.select(
+        [out["probability"] >= thresholds.link, out["probability"] >= thresholds.review],
+        [LINK, POSSIBLE], NON_LINK,
+    )
+    return out, model

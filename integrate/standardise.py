@@ -1,0 +1,105 @@
+"""Standardise canonical values for matching: names, emails, phones (E.164), postcodes, dates.
+
+Every normaliser runs once per distinct value (``map_distinct``), never once per row.
+"""
+
+from __future__ import annotations
+
+import pandas as pd
+import phonenumbers
+
+from .columns import SOURCE
+from .mapping.spec import CanonicalSchema
+from .text_normalise import (
+    clean_email,
+    clean_identifier,
+    clean_name,
+    clean_postcode,
+    clean_text,
+    digits_only,
+    map_distinct,
+    name_root,
+)
+
+ROOT_SUFFIX = "__root"  # formal given name behind a nickname
+YEAR, MONTH, DAY = "__y", "__m", "__d"
+
+
+def to_e164(text: str, region: str | None) -> str | None:
+    """A phone number in E.164 form ('+447700900123'), or its digits when it cannot be parsed.
+
+    Uses "possible" rather than "valid": numbers reserved for fiction are possible but not valid.
+
+    Example:
+        >>> to_e164("07700 900123", "GB")
+        '+447700900123'
+        >>> to_e164("0044 20 7946 0123", "GB")
+        '+442079460123'
+    """
+    try:
+        number = phonenumbers.parse(text, region)
+    except phonenumbers.NumberParseException:
+        return digits_only(text)
+    if not phonenumbers.is_possible_number(number):
+        return digits_only(text)
+    return phonenumbers.format_number(number, phonenumbers.PhoneNumberFormat.E164)
+
+
+def standardise_phones(values: pd.Series, regions: pd.Series) -> pd.Series:
+    """E.164 per distinct (value, region) pair."""
+    keys = values.astype("string") + "\x1f" + regions.fillna("").astype("string")
+
+    def one(key: str) -> str | None:
+        text, region = key.split("\x1f", 1)
+        return to_e164(text, region or None)
+
+    out = map_distinct(keys, one)
+    return out.where(values.notna(), pd.NA)
+
+
+def standardise(records: pd.DataFrame, canonical: CanonicalSchema,
+                regions: dict[str, str | None] | None = None) -> pd.DataFrame:
+    """Canonical records -> a frame of comparison-ready columns (same index).
+
+    Args:
+        records: canonical frame (meta columns + canonical fields).
+        canonical: the schema; only compared fields are prepared.
+        regions: default phone region per source name.
+
+    Returns:
+        One column per compared field holding its standard form, plus helper columns:
+        ``<field>__root`` for person names (formal given name behind a nickname) and
+        ``<field>__y/__m/__d`` for dates.
+    """
+    out = pd.DataFrame(index=records.index)
+    for name, spec in canonical.fields.items():
+        if not spec.is_compared():
+            continue
+        values = records[name]
+        if spec.type == "person_name":
+            cleaned = map_distinct(values, clean_name)
+            out[name] = cleaned
+            out[name + ROOT_SUFFIX] = map_distinct(cleaned, name_root)
+        elif spec.type == "email":
+            out[name] = map_distinct(values, clean_email)
+        elif spec.type == "phone":
+            source_regions = records[SOURCE].map(regions or {}).astype("string")
+            if spec.region:
+                source_regions = source_regions.fillna(spec.region)
+            out[name] = standardise_phones(values, source_regions)
+        elif spec.type == "postcode":
+            out[name] = map_distinct(values, clean_postcode)
+        elif spec.type == "identifier":
+            out[name] = map_distinct(values, clean_identifier)
+        elif spec.type == "date":
+            text = values.astype("string")
+            out[name] = text
+            parts = text.str.extract(r"^(\d{4})(?:-(\d{2})-(\d{2}))?")
+            out[name + YEAR] = pd.to_numeric(parts[0]).astype("Int16")
+            out[name + MONTH] = pd.to_numeric(parts[1]).astype("Int16")
+            out[name + DAY] = pd.to_numeric(parts[2]).astype("Int16")
+        elif spec.type in ("quantity", "money"):
+            out[name] = pd.to_numeric(values, errors="coerce").astype("float64")
+        else:  # text, category
+            out[name] = map_distinct(values, clean_text)
+    return out
