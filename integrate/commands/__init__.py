@@ -1,0 +1,7 @@
+"""One module per ``integrate`` sub-command; each defines ``register(subparsers)``.
+
+A command module parses nothing itself beyond its own arguments and calls the public API; it
+prints results. Add a command by adding its module name to ``COMMANDS``.
+"""
+
+COMMANDS = ("run", "evaluate")

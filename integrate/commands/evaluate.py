@@ -1,0 +1,40 @@
+"""``integrate evaluate``: precision, recall and F1 of a crosswalk against a true one."""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+from ..errors import InputError
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    ev = sub.add_parser("evaluate", help="precision, recall and F1 of a crosswalk against a true crosswalk")
+    ev.add_argument("workspace", nargs="?", default=".", help="workspace folder (default: current folder)")
+    ev.add_argument("--truth", required=True, help="true crosswalk CSV (source, record_id, entity_id)")
+    ev.add_argument("--crosswalk", help="crosswalk to judge (default: WORKSPACE/out/crosswalk.csv)")
+    ev.set_defaults(func=main)
+
+
+def read_crosswalk(path: str):  # noqa: ANN201 - a DataFrame
+    import pandas as pd
+
+    if not Path(path).exists():
+        raise InputError("file not found", file=path, reason="missing_file")
+    frame = pd.read_csv(path, dtype=str)
+    missing = {"source", "record_id", "entity_id"} - set(frame.columns)
+    if missing:
+        raise InputError(f"missing columns {sorted(missing)}", file=path, line=1, reason="missing_column",
+                         hint="a crosswalk has columns source, record_id, entity_id")
+    return frame
+
+
+def main(args: argparse.Namespace) -> int:
+    from ..evaluate import evaluate
+
+    crosswalk_path = args.crosswalk or str(Path(args.workspace) / "out" / "crosswalk.csv")
+    result = evaluate(read_crosswalk(crosswalk_path), read_crosswalk(args.truth))
+    for name, scores in (("pairwise", result.pairwise), ("B-cubed", result.bcubed)):
+        print(f"{name:<9} precision {scores.precision:.4f}  recall {scores.recall:.4f}  F1 {scores.f1:.4f}")
+    print(f"true pairs {result.true_pairs}, predicted pairs {result.predicted_pairs}")
+    return 0

@@ -1,0 +1,36 @@
+"""``integrate run``: the whole run on a workspace."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from ._progress import stage_progress
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    run = sub.add_parser("run", help="read every source, match, merge, and write outputs and a run report")
+    run.add_argument("workspace", nargs="?", default=".", help="workspace folder (default: current folder)")
+    run.add_argument("--out", help="output folder (default: the schema's 'output', usually out/)")
+    run.set_defaults(func=main)
+
+
+def main(args: argparse.Namespace) -> int:
+    from ..pipeline import STAGES, run_pipeline
+
+    with stage_progress(STAGES) as progress:
+        result = run_pipeline(args.workspace, progress=progress, output_dir=args.out)
+    records = sum(result.source_counts.values())
+    decisions = result.pairs["decision"].value_counts()
+    print(f"{records} records from {len(result.source_counts)} sources -> {len(result.merged)} entities")
+    for source, count in result.source_counts.items():
+        print(f"  {source:<14} {count:>7} records")
+    print(f"candidate pairs {len(result.pairs)}: " + ", ".join(f"{k} {v}" for k, v in decisions.items()))
+    if not result.failures.empty:
+        print(f"{len(result.failures)} values could not be read and were left empty (see failures.csv)")
+    for warning in result.warnings:
+        print(f"warning: {warning}", file=sys.stderr)
+    print(f"outputs: {result.output_dir}")
+    print(f"report:  {result.report_path}")
+    print("Review merges before acting on them; these files hold personal data.")
+    return 0
