@@ -20,6 +20,7 @@ from .text_normalise import map_distinct
 log = logging.getLogger(__name__)
 
 PAIR_COLUMNS = ("i", "j", "rules")
+SORTED_WINDOW = 5  # sorted-neighbourhood window of the default rules (records compared with the next 4)
 
 
 @dataclass
@@ -103,6 +104,21 @@ def _pairs_for_key(key: pd.Series, max_block: int) -> tuple[np.ndarray, np.ndarr
     return joined["pos_a"].to_numpy(np.int64), joined["pos_b"].to_numpy(np.int64), big_blocks
 
 
+def _neighbour_pairs(key: pd.Series, window: int) -> tuple[np.ndarray, np.ndarray]:
+    """Sorted neighbourhood (Hernández & Stolfo 1995): pairs within ``window`` places in key order."""
+    present = np.flatnonzero(key.notna().to_numpy())
+    if len(present) < 2:
+        return np.zeros(0, np.int64), np.zeros(0, np.int64)
+    order = present[np.argsort(key.to_numpy(dtype=object)[present].astype(str), kind="mergesort")]
+    left, right = [], []
+    for step in range(1, window):
+        left.append(order[:-step])
+        right.append(order[step:])
+    i = np.concatenate(left)
+    j = np.concatenate(right)
+    return np.minimum(i, j).astype(np.int64), np.maximum(i, j).astype(np.int64)
+
+
 def block(
     prepared: pd.DataFrame,
     rules: list[BlockingRule],
@@ -137,7 +153,11 @@ def block(
     skipped: list[tuple[str, str, int]] = []
     for bit, rule in enumerate(rules):
         key = rule_key(prepared, rule, canonical)
-        i, j, big = _pairs_for_key(key, max_block_size)
+        if rule.window:
+            i, j = _neighbour_pairs(key, rule.window)
+            big = pd.Series(dtype="int64")
+        else:
+            i, j, big = _pairs_for_key(key, max_block_size)
         if group_codes is not None:
             across = group_codes[i] != group_codes[j]
             i, j = i[across], j[across]
@@ -175,27 +195,48 @@ def block(
 
 
 def default_rules(canonical: CanonicalSchema) -> list[BlockingRule]:
-    """Blocking rules derived from the field types when the schema gives none."""
+    """Blocking rules derived from the field types when the schema gives none.
+
+    Each rule asks for agreement on little, so that a record with errors in several fields still
+    shares some key with its duplicates: exact contact details and identifiers, the birth date,
+    name sounds with the birth year, the postcode with a name's start, the names' sounds in either
+    order, and sorted neighbourhoods over the names written both ways round.
+    """
     fields = canonical.fields
     compared = {n: f for n, f in fields.items() if f.is_compared()}
     names = [n for n, f in compared.items() if f.type == "person_name"]
     dates = [n for n, f in compared.items() if f.type == "date"]
     postcodes = [n for n, f in compared.items() if f.type == "postcode"]
+    texts = [n for n, f in compared.items() if f.type == "text"]
     rules: list[BlockingRule] = []
+
+    def add(name: str, keys: list[str], window: int | None = None) -> None:
+        rules.append(BlockingRule(name=name, keys=keys, window=window))
+
     for n, f in compared.items():
         if f.type in ("email", "phone", "identifier"):
-            rules.append(BlockingRule(name=f"same_{n}", keys=[n]))
+            add(f"same_{n}", [n])
     for d in dates[:1]:
-        rules.append(BlockingRule(name=f"same_{d}", keys=[d]))
+        add(f"same_{d}", [d])
         for p in names:
-            rules.append(BlockingRule(name=f"{p}_sound_{d}_year", keys=[f"{p}:soundex", f"{d}:year"]))
+            add(f"{p}_sound_{d}_year", [f"{p}:soundex", f"{d}:year"])
     for pc in postcodes[:1]:
         for p in names:
-            rules.append(BlockingRule(name=f"{pc}_{p}_start", keys=[pc, f"{p}:first2"]))
+            add(f"{pc}_{p}_start", [pc, f"{p}:first2"])
+        for t in texts[:2]:
+            add(f"{pc}_{t}_start", [pc, f"{t}:first3"])
     if len(names) >= 2:
-        rules.append(BlockingRule(name="name_roots", keys=[f"{names[0]}:root", f"{names[1]}:soundex"]))
+        first, second = names[:2]
+        add("name_sounds", [f"{first}+{second}:sounds"])
+        add("name_roots", [f"{first}:root", f"{second}:soundex"])
+        add("names_sorted", [f"{second}+{first}"], window=SORTED_WINDOW)
+        add("names_sorted_reversed", [f"{first}+{second}"], window=SORTED_WINDOW)
+    elif names:
+        add("name_sorted", [names[0]], window=SORTED_WINDOW)
+    if len(texts) >= 2:
+        add("text_start", [texts[0], f"{texts[1]}:first3"])
+        add("text_sorted", ["+".join(texts[1:3] + texts[:1])], window=SORTED_WINDOW)
     if not rules:
-        texts = [n for n, f in compared.items() if f.type in ("text", "category")]
         for n in texts[:2]:
-            rules.append(BlockingRule(name=f"same_{n}", keys=[n]))
+            add(f"same_{n}", [n])
     return rules

@@ -10,7 +10,9 @@ family name counts for more than a common one.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
+from functools import partial
 
 import numpy as np
 import pandas as pd
@@ -167,6 +169,17 @@ def _initial_classes(types: dict[str, str], u_random: dict[str, np.ndarray]
     return theta, shares, free
 
 
+def _relatives_names(counts: np.ndarray, random_profile: np.ndarray) -> np.ndarray:
+    """Relatives are different people: their first names compare like random pairs' first names;
+    only the second (family) name's agreement is learned. Levels are first*4 + second (4 buckets)."""
+    joint = np.append(counts, 0.0).reshape(4, 4)
+    random_joint = np.append(random_profile, 0.0).reshape(4, 4)
+    first = random_joint.sum(axis=1)
+    second = joint.sum(axis=0)
+    out = np.outer(first / first.sum(), second / second.sum()).reshape(-1)[:-1]
+    return out + 1e-9
+
+
 def model_grades(grades: pd.DataFrame, types: dict[str, str]) -> tuple[pd.DataFrame, dict[str, str]]:
     """The grades the model sees: the first two person-name fields become one joint field."""
     names = [f for f in grades.columns if types[f] == "person_name"]
@@ -240,8 +253,9 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
                 present = g != MISSING
                 levels = _levels(types[f])
                 new = np.bincount(g[present], weights=w[present], minlength=levels) + PSEUDO_COUNT
-                new = new / new.sum()
-                theta[k][f] = new
+                if k == RELATED and types[f] == NAME_PAIR:
+                    new = _relatives_names(new, u_random[f])
+                theta[k][f] = new / new.sum()
     non = [k for k in classes if k != MATCH]
     total_non = sum(shares[k] for k in non)
     fields = {}
@@ -301,7 +315,8 @@ def frequency_adjustments(prepared: pd.DataFrame, grades: pd.DataFrame, field_ty
 
 def score(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchema,
           *, groups: np.ndarray | None = None, thresholds: Thresholds | None = None,
-          grades: pd.DataFrame | None = None) -> tuple[pd.DataFrame, ScoreModel]:
+          grades: pd.DataFrame | None = None, estimator: Callable[..., ScoreModel] | None = None
+          ) -> tuple[pd.DataFrame, ScoreModel]:
     """Grades, weights, match probability and decision for every candidate pair.
 
     Returns:
@@ -318,7 +333,10 @@ def score(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchem
     u_random = {f: _level_freq(random_joint[f].to_numpy(np.int64), _levels(types[f])) for f in joint.columns}
     if len(joint):
         n_other = max(all_pairs_count(len(prepared), groups) - len(joint), 0)
-        model = estimate(joint, types, u_random, random_joint, n_other / max(len(random_joint), 1))
+        # a run with review decisions passes its own estimator (integrate.review.learn), which
+        # also sees the pairs so it can hold decided pairs to their decision
+        fit = estimate if estimator is None else partial(estimator, pairs)
+        model = fit(joint, types, u_random, random_joint, n_other / max(len(random_joint), 1))
     else:
         theta, shares, _ = _initial_classes(types, u_random)
         model = ScoreModel({f: FieldModel(f, types[f], theta[MATCH][f].tolist(), u_random[f].tolist(),

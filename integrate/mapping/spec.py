@@ -82,6 +82,11 @@ class BlockingRule(_Strict):
 
     name: str = Field(pattern=_NAME)
     keys: list[str] = Field(min_length=1)
+    window: int | None = Field(
+        None, ge=2, le=50,
+        description="Sorted neighbourhood: sort records by the key and pair each with the next "
+        "window-1 records, instead of pairing only equal keys.",
+    )
 
 
 class Thresholds(_Strict):
