@@ -56,7 +56,10 @@ def _key_part(prepared: pd.DataFrame, canonical: CanonicalSchema | None, express
     if transform == "root":
         return prepared[fields[0] + ROOT_SUFFIX]
     if len(fields) > 1:
-        base = prepared[fields].astype("string").fillna("").agg(" ".join, axis=1).str.strip().replace("", pd.NA)
+        base = prepared[fields[0]].astype("string").fillna("")
+        for name in fields[1:]:
+            base = base + " " + prepared[name].astype("string").fillna("")
+        base = base.str.strip().replace("", pd.NA)
     else:
         base = prepared[fields[0]].astype("string")
         if fields[0] + YEAR in prepared.columns and transform == "exact":
