@@ -177,13 +177,16 @@ def block(
     else:
         allp = pd.DataFrame({"i": pd.Series(dtype=np.int64), "j": pd.Series(dtype=np.int64),
                              "rules": pd.Series(dtype=np.int64)})
+    # one row per pair, the rules that found it OR-ed together (sorted by pair, vectorised)
     code = allp["i"].to_numpy() * max(n, 1) + allp["j"].to_numpy()
-    allp["code"] = code
-    merged = allp.groupby("code", sort=True)["rules"].agg(np.bitwise_or.reduce)
+    order = np.argsort(code, kind="stable")
+    code, masks = code[order], allp["rules"].to_numpy()[order]
+    starts = np.flatnonzero(np.r_[True, code[1:] != code[:-1]]) if len(code) else np.zeros(0, np.int64)
+    unique = code[starts]
     pairs = pd.DataFrame({
-        "i": (merged.index.to_numpy() // max(n, 1)).astype(np.int64),
-        "j": (merged.index.to_numpy() % max(n, 1)).astype(np.int64),
-        "rules": merged.to_numpy().astype(np.int64),
+        "i": (unique // max(n, 1)).astype(np.int64),
+        "j": (unique % max(n, 1)).astype(np.int64),
+        "rules": np.bitwise_or.reduceat(masks, starts).astype(np.int64) if len(code) else masks,
     })
     masks = pairs["rules"].to_numpy()
     per_rule = {r.name: int(((masks >> b) & 1).sum()) for b, r in enumerate(rules)}

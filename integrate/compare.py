@@ -15,7 +15,7 @@ from rapidfuzz import process
 from rapidfuzz.distance import OSA, JaroWinkler
 
 from .mapping.spec import CanonicalSchema
-from .standardise import DAY, MONTH, ROOT_SUFFIX, YEAR
+from .standardise import DAY, FIRST_WORD, MONTH, ROOT_SUFFIX, YEAR
 
 MISSING = -1
 
@@ -62,78 +62,100 @@ def grade_name(ftype: str, grade: int) -> str:
     return "missing" if grade < 0 else GRADE_NAMES[ftype][grade]
 
 
+class Coded:
+    """One prepared column as integer codes (-1 = missing) plus its distinct values.
+
+    Equality and missingness of millions of pairs become integer comparisons, and string
+    similarities are computed once per distinct pair of codes.
+    """
+
+    def __init__(self, values: pd.Series) -> None:
+        self.codes, uniques = pd.factorize(values, use_na_sentinel=True)
+        self.values = np.asarray(uniques, dtype=object)
+
+    def equal(self, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+        a, b = self.codes[i], self.codes[j]
+        return (a == b) & (a >= 0)
+
+    def missing(self, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+        return (self.codes[i] < 0) | (self.codes[j] < 0)
+
+    def scores(self, i: np.ndarray, j: np.ndarray, scorer: Callable[..., float]) -> np.ndarray:
+        """``scorer`` of every pair's two values, once per distinct pair; NaN where one is missing."""
+        a, b = self.codes[i], self.codes[j]
+        both = (a >= 0) & (b >= 0)
+        out = np.full(len(a), np.nan)
+        if not both.any():
+            return out
+        keys = a[both].astype(np.int64) * (len(self.values) + 1) + b[both]
+        unique, inverse = np.unique(keys, return_inverse=True)
+        left = self.values[unique // (len(self.values) + 1)].tolist()
+        right = self.values[unique % (len(self.values) + 1)].tolist()
+        scores = process.cpdist(left, right, scorer=scorer, workers=-1)
+        out[both] = np.asarray(scores, dtype=float)[inverse]
+        return out
+
+
 def pair_scores(a: pd.Series, b: pd.Series, scorer: Callable[..., float]) -> np.ndarray:
     """Score aligned value pairs, once per distinct (a, b); NaN where either is missing."""
-    both = a.notna().to_numpy() & b.notna().to_numpy()
-    out = np.full(len(a), np.nan)
-    if not both.any():
-        return out
-    left = a.to_numpy(dtype=object)[both]
-    right = b.to_numpy(dtype=object)[both]
-    keys = pd.Series(left).str.cat(pd.Series(right), sep="\x1f")
-    codes, uniques = pd.factorize(keys)
-    first = pd.Series(np.arange(len(codes))).groupby(codes).first().to_numpy()
-    scores = process.cpdist(left[first].tolist(), right[first].tolist(), scorer=scorer, workers=-1)
-    out[both] = np.asarray(scores, dtype=float)[codes]
-    return out
+    coded = Coded(pd.concat([a, b], ignore_index=True))
+    n = len(a)
+    return coded.scores(np.arange(n), np.arange(n, 2 * n), scorer)
 
 
-def _take(prepared: pd.DataFrame, column: str, idx: np.ndarray) -> pd.Series:
-    return prepared[column].iloc[idx].reset_index(drop=True)
+class _Columns:
+    """Coded columns of the prepared frame, each coded once per comparison run."""
+
+    def __init__(self, prepared: pd.DataFrame) -> None:
+        self.prepared = prepared
+        self._coded: dict[str, Coded] = {}
+
+    def __getitem__(self, column: str) -> Coded:
+        if column not in self._coded:
+            self._coded[column] = Coded(self.prepared[column])
+        return self._coded[column]
+
+    def numbers(self, column: str) -> np.ndarray:
+        return pd.to_numeric(self.prepared[column], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
 
 
-def _equal(a: pd.Series, b: pd.Series) -> np.ndarray:
-    return (a == b).fillna(False).to_numpy(dtype=bool)
+def _edit_grades(col: Coded, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+    dist = col.scores(i, j, OSA.distance)
+    grade = np.where(col.equal(i, j), 2, np.where(dist <= 1, 1, 0))
+    return np.where(col.missing(i, j), MISSING, grade)
 
 
-def _missing(a: pd.Series, b: pd.Series) -> np.ndarray:
-    return (a.isna() | b.isna()).to_numpy()
+def _name_grades(cols: _Columns, name: str, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+    col = cols[name]
+    jw = col.scores(i, j, JaroWinkler.normalized_similarity)
+    same_root = cols[name + ROOT_SUFFIX].equal(i, j)
+    same_first = cols[name + FIRST_WORD].equal(i, j)
+    grade = np.select([col.equal(i, j), same_root | same_first, jw >= JW_CLOSE, jw >= JW_FAIR], [4, 3, 2, 1], 0)
+    return np.where(col.missing(i, j), MISSING, grade)
 
 
-def _edit_grades(a: pd.Series, b: pd.Series) -> np.ndarray:
-    dist = pair_scores(a, b, OSA.distance)
-    grade = np.where(_equal(a, b), 2, np.where(dist <= 1, 1, 0))
-    return np.where(_missing(a, b), MISSING, grade)
-
-
-def _name_grades(prepared: pd.DataFrame, name: str, i: np.ndarray, j: np.ndarray) -> np.ndarray:
-    a, b = _take(prepared, name, i), _take(prepared, name, j)
-    jw = pair_scores(a, b, JaroWinkler.normalized_similarity)
-    first_a = a.str.split(" ", n=1).str[0]
-    first_b = b.str.split(" ", n=1).str[0]
-    same_root = _equal(_take(prepared, name + ROOT_SUFFIX, i), _take(prepared, name + ROOT_SUFFIX, j))
-    grade = np.select(
-        [_equal(a, b), same_root | _equal(first_a, first_b), jw >= JW_CLOSE, jw >= JW_FAIR],
-        [4, 3, 2, 1],
-        0,
-    )
-    return np.where(_missing(a, b), MISSING, grade)
-
-
-def _date_grades(prepared: pd.DataFrame, name: str, i: np.ndarray, j: np.ndarray) -> np.ndarray:
-    ya, yb = (_take(prepared, name + YEAR, x) for x in (i, j))
-    ma, mb = (_take(prepared, name + MONTH, x) for x in (i, j))
-    da, db = (_take(prepared, name + DAY, x) for x in (i, j))
-    full = (ma.notna() & mb.notna()).to_numpy()
-    same_y, same_m, same_d = _equal(ya, yb), _equal(ma, mb), _equal(da, db)
-    swapped = same_y & _equal(ma, db) & _equal(da, mb)
+def _date_grades(cols: _Columns, name: str, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+    y, m, d = (cols.numbers(name + part) for part in (YEAR, MONTH, DAY))
+    ya, yb, ma, mb, da, db = y[i], y[j], m[i], m[j], d[i], d[j]
+    full = ~np.isnan(ma) & ~np.isnan(mb)
+    same_y, same_m, same_d = ya == yb, ma == mb, da == db
+    swapped = same_y & (ma == db) & (da == mb)
     agree_parts = same_y.astype(int) + same_m.astype(int) + same_d.astype(int)
     grade = np.select(
         [full & same_y & same_m & same_d, full & swapped, full & (agree_parts == 2), ~full & same_y, same_y],
         [5, 4, 3, 2, 1],
         0,
     )
-    return np.where((ya.isna() | yb.isna()).to_numpy(), MISSING, grade)
+    return np.where(np.isnan(ya) | np.isnan(yb), MISSING, grade)
 
 
-def _text_grades(a: pd.Series, b: pd.Series) -> np.ndarray:
-    jw = pair_scores(a, b, JaroWinkler.normalized_similarity)
-    grade = np.select([_equal(a, b), jw >= JW_CLOSE, jw >= JW_FAIR], [3, 2, 1], 0)
-    return np.where(_missing(a, b), MISSING, grade)
+def _text_grades(col: Coded, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+    jw = col.scores(i, j, JaroWinkler.normalized_similarity)
+    grade = np.select([col.equal(i, j), jw >= JW_CLOSE, jw >= JW_FAIR], [3, 2, 1], 0)
+    return np.where(col.missing(i, j), MISSING, grade)
 
 
-def _quantity_grades(a: pd.Series, b: pd.Series) -> np.ndarray:
-    x, y = a.to_numpy(dtype=float), b.to_numpy(dtype=float)
+def _quantity_grades(x: np.ndarray, y: np.ndarray) -> np.ndarray:
     with np.errstate(invalid="ignore", divide="ignore"):
         rel = np.abs(x - y) / np.maximum(np.abs(x), np.abs(y))
     rel = np.where((x == 0) & (y == 0), 0.0, rel)
@@ -141,13 +163,15 @@ def _quantity_grades(a: pd.Series, b: pd.Series) -> np.ndarray:
     return np.where(np.isnan(x) | np.isnan(y), MISSING, grade)
 
 
-def _swap_names(grades: dict[str, np.ndarray], prepared: pd.DataFrame, names: list[str],
+def _swap_names(grades: dict[str, np.ndarray], cols: _Columns, names: list[str],
                 i: np.ndarray, j: np.ndarray) -> None:
     """Given and family name written the wrong way round count as equivalent on both fields."""
     first, second = names[:2]
-    a1, a2 = _take(prepared, first, i), _take(prepared, second, i)
-    b1, b2 = _take(prepared, first, j), _take(prepared, second, j)
-    crossed = _equal(a1, b2) & _equal(a2, b1) & ~_equal(a1, a2)
+    # code both name columns together so that a given name can equal a family name
+    both = Coded(pd.concat([cols.prepared[first], cols.prepared[second]], ignore_index=True))
+    n = len(cols.prepared)
+    a1, a2, b1, b2 = both.codes[i], both.codes[i + n], both.codes[j], both.codes[j + n]
+    crossed = (a1 == b2) & (a2 == b1) & (a1 != a2) & (a1 >= 0) & (a2 >= 0)
     for name in (first, second):
         grades[name] = np.where(crossed, np.maximum(grades[name], 3), grades[name])
 
@@ -168,25 +192,27 @@ def compare(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSch
     """
     i = pairs["i"].to_numpy()
     j = pairs["j"].to_numpy()
+    cols = _Columns(prepared)
     grades: dict[str, np.ndarray] = {}
     names: list[str] = []
     for name, spec in canonical.fields.items():
         if not spec.is_compared():
             continue
         if spec.type == "person_name":
-            grades[name] = _name_grades(prepared, name, i, j)
+            grades[name] = _name_grades(cols, name, i, j)
             names.append(name)
         elif spec.type == "date":
-            grades[name] = _date_grades(prepared, name, i, j)
+            grades[name] = _date_grades(cols, name, i, j)
         elif spec.type in ("email", "phone", "postcode", "identifier"):
-            grades[name] = _edit_grades(_take(prepared, name, i), _take(prepared, name, j))
+            grades[name] = _edit_grades(cols[name], i, j)
         elif spec.type in ("quantity", "money"):
-            grades[name] = _quantity_grades(_take(prepared, name, i), _take(prepared, name, j))
+            values = cols.numbers(name)
+            grades[name] = _quantity_grades(values[i], values[j])
         elif spec.type == "category":
-            a, b = _take(prepared, name, i), _take(prepared, name, j)
-            grades[name] = np.where(_missing(a, b), MISSING, _equal(a, b).astype(int))
+            col = cols[name]
+            grades[name] = np.where(col.missing(i, j), MISSING, col.equal(i, j).astype(int))
         else:
-            grades[name] = _text_grades(_take(prepared, name, i), _take(prepared, name, j))
+            grades[name] = _text_grades(cols[name], i, j)
     if len(names) >= 2:
-        _swap_names(grades, prepared, names, i, j)
+        _swap_names(grades, cols, names, i, j)
     return pd.DataFrame({k: v.astype(np.int8) for k, v in grades.items()}, index=pairs.index)

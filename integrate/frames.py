@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import re
 from dataclasses import dataclass
+from functools import cached_property
 
 import pandas as pd
 
@@ -26,12 +27,19 @@ _NAME_HINTS: list[tuple[str, FieldType]] = [
 
 @dataclass
 class FrameResult:
-    """What ``deduplicate`` and ``link`` return."""
+    """What ``deduplicate`` and ``link`` return; ``merged`` is resolved when first asked for."""
 
     crosswalk: pd.DataFrame  # source, record_id, entity_id
     pairs: pd.DataFrame
-    merged: pd.DataFrame
     match: MatchResult
+    records: pd.DataFrame
+    schema: CanonicalSchema
+
+    @cached_property
+    def merged(self) -> pd.DataFrame:
+        """One row per entity, each field chosen by its resolution rule (default: most common)."""
+        merged, _ = resolve(self.records, self.match.entities["entity_id"], self.schema, self.match.prepared)
+        return merged
 
 
 def infer_fields(frame: pd.DataFrame) -> dict[str, FieldType]:
@@ -83,12 +91,11 @@ def _run(records: pd.DataFrame, schema: CanonicalSchema, across: bool) -> FrameR
     match = match_records(records, schema, across_sources_only=across)
     crosswalk = pd.DataFrame({"source": records[SOURCE].to_numpy(), "record_id": records[RECORD_ID].to_numpy(),
                               "entity_id": match.entities["entity_id"].to_numpy()})
-    merged, _ = resolve(records, match.entities["entity_id"], schema)
     pairs = match.pairs.assign(
         record_id_a=records[RECORD_ID].to_numpy()[match.pairs["i"].to_numpy()],
         record_id_b=records[RECORD_ID].to_numpy()[match.pairs["j"].to_numpy()],
     )
-    return FrameResult(crosswalk, pairs, merged, match)
+    return FrameResult(crosswalk, pairs, match, records, schema)
 
 
 def deduplicate(df: pd.DataFrame, fields: dict[str, FieldType] | None = None, id_column: str | None = None,

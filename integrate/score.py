@@ -21,7 +21,7 @@ from .compare import GRADE_NAMES, MISSING, NAME_PAIR, compare, name_pair_grades
 from .mapping.spec import CanonicalSchema, Thresholds
 
 LINK, POSSIBLE, NON_LINK = "link", "possible link", "non-link"
-RANDOM_PAIRS = 200_000  # random record pairs drawn to estimate u (seeded)
+RANDOM_PAIRS = 100_000  # random record pairs drawn to estimate u (seeded)
 EM_MAX_ITER = 500
 EM_TOLERANCE = 1e-8  # relative change of the log-likelihood that ends EM
 PSEUDO_COUNT = 0.5  # added to every level's count so no probability is exactly 0 or 1
@@ -344,10 +344,11 @@ def score(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchem
                            shares[MATCH], 0, True, shares, _theta=theta)
     out = pairs.copy()
     names = list(joint.columns)
-    codes, uniques = pd.factorize(pd.MultiIndex.from_frame(joint[names])) if len(joint) else (
-        np.zeros(0, np.int64), [])
-    unique_grades = np.array([list(u) for u in uniques], dtype=np.int64).reshape(-1, len(names))
-    total = model.pattern_weight(unique_grades, names)[codes] if len(joint) else np.zeros(0)
+    if len(joint):
+        unique_grades, codes = np.unique(joint[names].to_numpy(np.int64), axis=0, return_inverse=True)
+        total = model.pattern_weight(unique_grades, names)[codes.reshape(-1)]
+    else:
+        total = np.zeros(0)
     i = pairs["i"].to_numpy()
     for f, fm in model.fields.items():
         g = joint[f].to_numpy(np.int64)

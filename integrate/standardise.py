@@ -22,6 +22,7 @@ from .text_normalise import (
 )
 
 ROOT_SUFFIX = "__root"  # formal given name behind a nickname
+FIRST_WORD = "__first"  # first word of a name ('anna' of 'anna marie')
 YEAR, MONTH, DAY = "__y", "__m", "__d"
 
 
@@ -80,6 +81,7 @@ def standardise(records: pd.DataFrame, canonical: CanonicalSchema,
             cleaned = map_distinct(values, clean_name)
             out[name] = cleaned
             out[name + ROOT_SUFFIX] = map_distinct(cleaned, name_root)
+            out[name + FIRST_WORD] = map_distinct(cleaned, lambda v: v.split(" ", 1)[0])
         elif spec.type == "email":
             out[name] = map_distinct(values, clean_email)
         elif spec.type == "phone":
