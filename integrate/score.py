@@ -342,6 +342,17 @@ def score(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchem
         model = ScoreModel({f: FieldModel(f, types[f], theta[MATCH][f].tolist(), u_random[f].tolist(),
                                           u_random[f].tolist()) for f in joint.columns},
                            shares[MATCH], 0, True, shares, _theta=theta)
+    return weigh(prepared, pairs, grades, field_types, model, thresholds), model
+
+
+def weigh(prepared: pd.DataFrame, pairs: pd.DataFrame, grades: pd.DataFrame, field_types: dict[str, str],
+          model: ScoreModel, thresholds: Thresholds) -> pd.DataFrame:
+    """Weights, match probability and decision of pairs under an estimated model.
+
+    Returns the pairs plus ``g_<field>`` grades, ``w_<field>`` weights of the model's fields,
+    ``tf_<field>`` value-frequency adjustments, ``weight``, ``probability`` and ``decision``.
+    """
+    joint, _ = model_grades(grades, field_types)
     out = pairs.copy()
     names = list(joint.columns)
     if len(joint):
@@ -366,4 +377,4 @@ def score(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchem
         [out["probability"] >= thresholds.link, out["probability"] >= thresholds.review],
         [LINK, POSSIBLE], NON_LINK,
     )
-    return out, model
+    return out
