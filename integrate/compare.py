@@ -11,7 +11,7 @@ from collections.abc import Callable
 
 import numpy as np
 import pandas as pd
-from rapidfuzz import process
+from rapidfuzz import fuzz, process
 from rapidfuzz.distance import OSA, JaroWinkler
 
 from .mapping.spec import CanonicalSchema
@@ -130,7 +130,10 @@ def _name_grades(cols: _Columns, name: str, i: np.ndarray, j: np.ndarray) -> np.
     jw = col.scores(i, j, JaroWinkler.normalized_similarity)
     same_root = cols[name + ROOT_SUFFIX].equal(i, j)
     same_first = cols[name + FIRST_WORD].equal(i, j)
-    grade = np.select([col.equal(i, j), same_root | same_first, jw >= JW_CLOSE, jw >= JW_FAIR], [4, 3, 2, 1], 0)
+    # one name's words all within the other's: 'smith jones' / 'jones', 'van der berg' / 'berg'
+    part_of = col.scores(i, j, fuzz.token_set_ratio) == 100
+    grade = np.select([col.equal(i, j), same_root | same_first | part_of, jw >= JW_CLOSE, jw >= JW_FAIR],
+                      [4, 3, 2, 1], 0)
     return np.where(col.missing(i, j), MISSING, grade)
 
 

@@ -42,17 +42,36 @@ class FrameResult:
         return merged
 
 
+# Value patterns for inferring field types when the column name says nothing (common practice).
+_VALUE_HINTS: list[tuple[str, FieldType]] = [
+    (r"^[^@\s]+@[^@\s]+\.[^@\s]+$", "email"),
+    (r"^\d{4}-\d{2}-\d{2}$|^\d{1,2}[/.]\d{1,2}[/.]\d{4}$|^(19|20)\d{6}$", "date"),
+    (r"^\+?[\d\s().-]{7,20}$", "phone"),
+]
+
+
+def _type_from_values(values: pd.Series) -> FieldType | None:
+    sample = values.dropna().astype(str).str.strip()
+    sample = sample[sample != ""].head(1000)
+    if sample.empty:
+        return None
+    for pattern, candidate in _VALUE_HINTS:
+        if sample.str.match(pattern).mean() >= 0.9:
+            return candidate
+    return None
+
+
 def infer_fields(frame: pd.DataFrame) -> dict[str, FieldType]:
-    """Guess a field type per column from its name (then 'text')."""
+    """Guess a field type per column from its name, then from its values, else 'text'."""
     fields: dict[str, FieldType] = {}
     for column in frame.columns:
         name = str(column).lower()
-        ftype: FieldType = "text"
+        ftype: FieldType | None = None
         for pattern, candidate in _NAME_HINTS:
             if re.search(pattern, name):
                 ftype = candidate
                 break
-        fields[str(column)] = ftype
+        fields[str(column)] = ftype or _type_from_values(frame[column]) or "text"
     return fields
 
 

@@ -71,3 +71,10 @@ def test_nicknames_swaps_and_partial_dates() -> None:
     g = _grades({"given_name": "Zoë", "family_name": "Ní Bhriain", "birth_date": None},
                 {"given_name": "ZOE", "family_name": "ni bhriain", "birth_date": "1980-03-04"})
     assert g == {"given_name": 4, "family_name": 4, "birth_date": -1}
+
+
+def test_multi_part_family_names() -> None:
+    # a family name written in full in one record and in part in another
+    g = _grades({"given_name": "Anna", "family_name": "Smith-Jones", "birth_date": None},
+                {"given_name": "Anna", "family_name": "Jones", "birth_date": None})
+    assert g["family_name"] == 3
