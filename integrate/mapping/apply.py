@@ -2,8 +2,10 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Literal, TypeVar
 
 import pandas as pd
 
@@ -22,14 +24,23 @@ FATAL_REASONS = frozenset(
 )
 
 
+OnError = Literal["raise", "collect"]
+_T = TypeVar("_T")
+
+
 @dataclass
 class MappedSource:
-    """A source in canonical form plus the cell-level problems found on the way."""
+    """A source in canonical form plus the cell-level problems found on the way.
+
+    ``problems`` holds the errors that stop a run; it is filled only with ``on_error="collect"``
+    (with ``"raise"`` they are raised instead).
+    """
 
     name: str
     frame: pd.DataFrame
     failures: pd.DataFrame
     unmapped_columns: list[str] = field(default_factory=list)
+    problems: list[InputError] = field(default_factory=list)
 
 
 def canonical_dtype(ftype: str) -> str:
@@ -78,6 +89,24 @@ class _Collector:
         return pd.concat(self.parts, ignore_index=True)
 
 
+class _Positions:
+    """Line and column of keys in a mapping file, read once (the file on disk, whatever its display name)."""
+
+    def __init__(self, path: Path) -> None:
+        self.path = path
+        self.root: object = None
+
+    def at(self, *loc: str) -> tuple[int | None, int | None]:
+        from .load import locate_in, read_yaml
+
+        if self.root is None:
+            try:
+                self.root = read_yaml(self.path)
+            except MappingError:
+                return None, None
+        return locate_in(self.root, *loc)
+
+
 def _mapping_error(mapping_file: str, column: str, message: str, reason: str, hint: str | None = None,
                    line: int | None = None, col: int | None = None) -> MappingError:
     return MappingError(f"column '{column}': {message}", file=mapping_file, line=line, column=col,
@@ -85,9 +114,23 @@ def _mapping_error(mapping_file: str, column: str, message: str, reason: str, hi
 
 
 def check_columns(
-    raw: pd.DataFrame, mapping: SourceMapping, data_file: str, mapping_file: str
+    raw: pd.DataFrame, mapping: SourceMapping, data_file: str, mapping_file: str, mapping_path: Path | None = None
 ) -> list[str]:
     """Raise for mapped columns missing from the data; return columns the mapping does not mention."""
+    problems, unmapped = column_problems(raw, mapping, data_file, mapping_file, mapping_path)
+    if problems:
+        raise problems[0] if len(problems) == 1 else InputErrors(problems)
+    return unmapped
+
+
+def column_problems(
+    raw: pd.DataFrame, mapping: SourceMapping, data_file: str, mapping_file: str, mapping_path: Path | None = None
+) -> tuple[list[InputError], list[str]]:
+    """One error per mapped column missing from the data, and the columns the mapping does not mention.
+
+    ``mapping_file`` is the name shown in messages; ``mapping_path`` the file to find lines in
+    (default: ``mapping_file`` itself).
+    """
     present = set(raw.columns) - {ROW}
     maps = mapping.column_maps()
     needed = set(maps) | {mapping.record_id}
@@ -96,14 +139,13 @@ def check_columns(
     for entry in maps.values():
         needed.update(c for c in (entry.unit_column, entry.currency_column, entry.priced_on) if c)
     missing = sorted(needed - present)
+    problems: list[InputError] = []
     if missing:
-        from .load import position_of
-
-        problems: list[InputError] = []
+        positions = _Positions(mapping_path or Path(mapping_file))
         for column in missing:
-            line, col = position_of(Path(mapping_file), "columns", column)
+            line, col = positions.at("columns", column)
             if line is None:
-                line, col = position_of(Path(mapping_file), "record_id")
+                line, col = positions.at("record_id")
             problems.append(
                 MappingError(
                     f"mapped column '{column}' is not in {data_file}",
@@ -111,8 +153,7 @@ def check_columns(
                     hint="columns in the data: " + ", ".join(sorted(present)),
                 )
             )
-        raise problems[0] if len(problems) == 1 else InputErrors(problems)
-    return sorted(present - needed)
+    return problems, sorted(present - needed)
 
 
 def apply_mapping(
@@ -123,14 +164,40 @@ def apply_mapping(
     *,
     data_file: str,
     mapping_file: str,
+    mapping_path: Path | None = None,
+    on_error: OnError = "raise",
 ) -> MappedSource:
     """Source frame (text columns + ``_row``) -> canonical frame with meta columns.
 
     Cell-level problems (a bad date in one row) become rows of ``failures`` and the cell is left
-    empty; problems that mean the mapping or the rates table is wrong raise ``InputErrors``.
+    empty. Problems that mean the mapping or the rates table is wrong raise ``InputErrors``, or
+    with ``on_error="collect"`` are gathered in ``problems`` (the columns concerned are left
+    empty) so that a check can report everything in one pass. ``mapping_file`` is the mapping
+    file's name in messages, ``mapping_path`` where it is on disk (default: ``mapping_file``).
     """
-    unmapped = check_columns(raw, mapping, data_file, mapping_file)
+    problems: list[InputError] = []
+
+    def attempt(fallback: _T, action: Callable[..., _T], *args: object) -> _T:
+        try:
+            return action(*args)
+        except InputErrors as many:
+            if on_error == "raise":
+                raise
+            problems.extend(many.errors)
+        except InputError as one:
+            if on_error == "raise":
+                raise
+            problems.append(one)
+        return fallback
+
+    positions = _Positions(mapping_path or Path(mapping_file))
+    missing, unmapped = column_problems(raw, mapping, data_file, mapping_file, positions.path)
+    if missing and on_error == "raise":
+        raise missing[0] if len(missing) == 1 else InputErrors(missing)
+    problems.extend(missing)
     raw = raw.reset_index(drop=True)
+    absent = [str(p.value) for p in missing]
+    raw = raw.assign(**{c: pd.Series(pd.NA, index=raw.index, dtype="string") for c in absent})
     rows = raw[ROW]
     collect = _Collector(mapping.source, data_file, rows)
     out = empty_canonical(canonical).reindex(range(len(raw)))
@@ -138,15 +205,16 @@ def apply_mapping(
     out[RECORD_ID] = raw[mapping.record_id].astype("string").str.strip()
     out[ROW] = rows.astype("int64").to_numpy()
     out[TRUST] = mapping.trust
-    _check_record_ids(out, data_file, mapping)
+    if mapping.record_id not in absent:
+        attempt(None, _check_record_ids, out, data_file, mapping)
 
     record_dates = pd.Series(pd.array([mapping.as_of.isoformat()] * len(raw), dtype="string"))
     if mapping.record_date:
-        entry = mapping.column_maps().get(mapping.record_date)
-        fmt = entry.format if entry else None
-        parsed, failures = parse_dates(raw[mapping.record_date], fmt)
-        collect.add(failures, mapping.record_date)
-        record_dates = parsed.fillna(mapping.as_of.isoformat()).astype("string")
+        date_column = mapping.record_date
+        parsed = attempt(None, _parse_date_column, raw, date_column, mapping, mapping_file, collect,
+                         positions)
+        if parsed is not None:
+            record_dates = parsed.fillna(mapping.as_of.isoformat()).astype("string")
     out[RECORD_DATE] = record_dates.to_numpy()
 
     for column, entry in mapping.column_maps().items():
@@ -154,7 +222,8 @@ def apply_mapping(
             continue
         values = raw[column].astype("string")
         if entry.values is not None:
-            values = _apply_value_map(values, entry, column, data_file, rows)
+            values = attempt(_drop_unmapped(values, entry), _apply_value_map, values, entry, column, data_file,
+                             rows)
         if entry.split:
             parts = values.str.strip().str.extract(entry.split)
             for target in entry.targets():
@@ -162,15 +231,40 @@ def apply_mapping(
             continue
         assert entry.field is not None
         target = entry.field
-        converted = _convert(values, entry, column, target, raw, mapping, canonical, rates, collect,
-                             mapping_file)
-        _fill(out, target, converted)
+        converted = attempt(None, _convert, values, entry, column, target, raw, mapping, canonical, rates,
+                            collect, mapping_file, positions)
+        if converted is not None:
+            _fill(out, target, converted)
 
     failures = collect.frame()
     fatal = failures[failures["reason"].isin(FATAL_REASONS)]
     if not fatal.empty:
-        raise _fatal_errors(fatal)
-    return MappedSource(mapping.source, out, failures, unmapped)
+        if on_error == "raise":
+            raise _fatal_errors(fatal)
+        problems.extend(_fatal_errors(fatal).errors)
+    return MappedSource(mapping.source, out, failures, unmapped, problems)
+
+
+def _parse_date_column(raw: pd.DataFrame, column: str, mapping: SourceMapping, mapping_file: str,
+                       collect: _Collector, positions: _Positions) -> pd.Series:
+    """Parse a date column with the format its entry gives; a bad format points at the mapping file."""
+    entry = mapping.column_maps().get(column)
+    fmt, pivot = (entry.format, entry.pivot) if entry else (None, None)
+    try:
+        parsed, failures = parse_dates(raw[column], fmt, two_digit_pivot=pivot)
+    except ConversionError as exc:
+        line, col = positions.at("columns", column)
+        if line is None:
+            line, col = positions.at("record_date")
+        raise _mapping_error(mapping_file, column, exc.message, exc.reason, exc.hint, line, col) from exc
+    collect.add(failures, column)
+    return parsed
+
+
+def _drop_unmapped(values: pd.Series, entry: ColumnMap) -> pd.Series:
+    """Values through the value map, values not in it left empty (used when collecting problems)."""
+    assert entry.values is not None
+    return values.str.strip().map(entry.values).astype("string")
 
 
 def _check_record_ids(out: pd.DataFrame, data_file: str, mapping: SourceMapping) -> None:
@@ -222,21 +316,17 @@ def _apply_value_map(values: pd.Series, entry: ColumnMap, column: str, data_file
 
 def _convert(values: pd.Series, entry: ColumnMap, column: str, target: str, raw: pd.DataFrame,
              mapping: SourceMapping, canonical: CanonicalSchema, rates: RatesTable | None,
-             collect: _Collector, mapping_file: str) -> pd.Series:
+             collect: _Collector, mapping_file: str, positions: _Positions) -> pd.Series:
     spec = canonical.fields[target]
-    from .load import position_of
-
-    line, col = position_of(Path(mapping_file), "columns", column)
+    line, col = positions.at("columns", column)
     if spec.type == "date":
-        parsed, failures = parse_dates(values, entry.format)
-        collect.add(failures, column)
-        return parsed
+        return _parse_date_column(raw.assign(**{column: values}), column, mapping, mapping_file, collect, positions)
     if spec.type == "quantity":
         assert spec.unit is not None
         if entry.unit:
             try:
+                check_compatible(entry.unit, spec.unit)  # quotes the unit as the mapping file spells it
                 unit = resolve_unit(entry.unit)
-                check_compatible(unit, spec.unit)
             except ConversionError as exc:
                 raise _mapping_error(mapping_file, column, exc.message, exc.reason, exc.hint, line, col) from exc
             converted, failures = convert_quantity(values, unit, spec.unit)
@@ -257,9 +347,7 @@ def _convert(values: pd.Series, entry: ColumnMap, column: str, target: str, raw:
             assert entry.currency_column is not None
             currencies = raw[entry.currency_column].astype("string").str.strip().str.upper()
         if entry.priced_on:
-            date_entry = mapping.column_maps().get(entry.priced_on)
-            dates, date_failures = parse_dates(raw[entry.priced_on], date_entry.format if date_entry else None)
-            collect.add(date_failures, entry.priced_on)
+            dates = _parse_date_column(raw, entry.priced_on, mapping, mapping_file, collect, positions)
             dates = dates.fillna(mapping.as_of.isoformat())
         else:
             dates = mapping.as_of

@@ -58,15 +58,19 @@ def _position(root: Any, loc: tuple[Any, ...]) -> tuple[int | None, int | None, 
     return line, column, ".".join(path)
 
 
-def read_yaml(path: Path) -> Any:
-    """Parse one YAML file, raising MappingError with the position of a syntax error."""
+def read_yaml(path: Path, display: str | None = None) -> Any:
+    """Parse one YAML file, raising MappingError with the position of a syntax error.
+
+    ``display`` is the file's name in messages (default: the path as given).
+    """
+    shown = display or str(path)
     if not path.exists():
-        raise MappingError("mapping file not found", file=str(path), reason="missing_file")
+        raise MappingError("mapping file not found", file=shown, reason="missing_file")
     try:
         text = path.read_text(encoding="utf-8")
     except UnicodeDecodeError as exc:
         raise MappingError(
-            "mapping file is not UTF-8 text", file=str(path), reason="bad_encoding"
+            "mapping file is not UTF-8 text", file=shown, reason="bad_encoding"
         ) from exc
     yaml = YAML(typ="rt")
     try:
@@ -75,7 +79,7 @@ def read_yaml(path: Path) -> Any:
         mark = exc.problem_mark
         raise MappingError(
             f"YAML syntax error: {exc.problem}",
-            file=str(path),
+            file=shown,
             line=mark.line + 1 if mark else None,
             column=mark.column + 1 if mark else None,
             reason="bad_yaml",
@@ -166,8 +170,8 @@ def file_hash(path: Path) -> str:
 
 def load_canonical(path: Path, display: str | None = None) -> CanonicalSchema:
     """Load and validate ``canonical.yaml``."""
-    root = read_yaml(path)
     name = display or str(path)
+    root = read_yaml(path, name)
     if not isinstance(root, dict):
         raise MappingError("expected a mapping of settings and 'fields'", file=name, line=1, column=1,
                            reason="bad_structure")
@@ -176,8 +180,8 @@ def load_canonical(path: Path, display: str | None = None) -> CanonicalSchema:
 
 def load_source_mapping(path: Path, canonical: CanonicalSchema, display: str | None = None) -> SourceMapping:
     """Load a source mapping and check it against the canonical schema (all problems at once)."""
-    root = read_yaml(path)
     name = display or str(path)
+    root = read_yaml(path, name)
     if not isinstance(root, dict):
         raise MappingError("expected a mapping with 'source', 'read' and 'columns'", file=name, line=1,
                            column=1, reason="bad_structure")
@@ -215,6 +219,12 @@ def load_source_mapping(path: Path, canonical: CanonicalSchema, display: str | N
             raise problems[0]
         raise InputErrors(problems)
     return mapping
+
+
+def locate_in(root: Any, *loc: Any) -> tuple[int | None, int | None]:
+    """Line and column of a key path in YAML already read with ``read_yaml``."""
+    line, column, _ = _position(root, loc)
+    return line, column
 
 
 def position_of(path: Path, *loc: Any) -> tuple[int | None, int | None]:

@@ -35,6 +35,7 @@ ResolutionRule = Literal[
     "max",
     "mean",
     "all",  # keep every distinct value, joined with " | "
+    "first_non_empty",  # the value of the first source in the field's 'order' that has one
 ]
 
 _NAME = r"^[a-z][a-z0-9_]*$"
@@ -58,6 +59,27 @@ class CanonicalField(_Strict):
     )
     resolve: ResolutionRule = Field("most_common", description="How the merged value is chosen.")
     region: str | None = Field(None, description="Default phone region (ISO 3166 alpha-2) for phone fields.")
+    order: list[str] | None = Field(
+        None, min_length=1, description="For 'first_non_empty': source names, most preferred first "
+        "(sources not listed come after them, by trust rank)."
+    )
+    same_transaction: list[str] | None = Field(
+        None, min_length=1, description="For 'sum': records of one entity that agree on all of these are one "
+        "transaction exported twice and count once. Keys: 'source', 'record_date' or canonical field names "
+        "(this field's own name for the amount). Default: every record counts once."
+    )
+
+    @model_validator(mode="after")
+    def _rule_options(self) -> CanonicalField:
+        if self.resolve == "first_non_empty" and not self.order:
+            raise ValueError("resolution rule 'first_non_empty' needs an 'order' (source names, most preferred first)")
+        if self.order and self.resolve != "first_non_empty":
+            raise ValueError(f"'order' is only for the rule 'first_non_empty', not for '{self.resolve}'")
+        if self.same_transaction and self.resolve != "sum":
+            raise ValueError(f"'same_transaction' is only for the rule 'sum', not for '{self.resolve}'")
+        if self.resolve in ("sum", "mean") and self.type not in ("quantity", "money"):
+            raise ValueError(f"rule '{self.resolve}' needs a quantity or money field, not type '{self.type}'")
+        return self
 
     @model_validator(mode="after")
     def _unit_for_quantities(self) -> CanonicalField:
@@ -126,6 +148,11 @@ class CanonicalSchema(_Strict):
         for name in value:
             if not re.match(_NAME, name):
                 raise ValueError(f"field name '{name}' must be lower_snake_case")
+        for name, spec in value.items():
+            unknown = [k for k in spec.same_transaction or () if k not in value and k not in ("source", "record_date")]
+            if unknown:
+                raise ValueError(f"field '{name}': same_transaction key '{unknown[0]}' is not 'source', "
+                                 "'record_date' or a canonical field")
         return value
 
 
@@ -166,6 +193,10 @@ class ColumnMap(_Strict):
     ignore: bool = Field(False, description="Explicitly not used.")
     format: str | None = Field(
         None, description="Date format (strftime codes, 'excel' for serial days, 'iso' for ISO 8601)."
+    )
+    pivot: int | None = Field(
+        None, ge=0, le=100,
+        description="Two-digit years (%y): yy below the pivot is 20yy, otherwise 19yy (e.g. 30).",
     )
     unit: str | None = Field(None, description="Unit of the values (quantity fields).")
     unit_column: str | None = Field(None, description="Column holding each row's unit.")

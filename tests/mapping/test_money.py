@@ -221,3 +221,31 @@ def test_unknown_single_currency_raises(rates_file: Path) -> None:
     with pytest.raises(ConversionError) as caught:
         convert_money(pd.Series([1.0]), "GBX", dt.date(2024, 1, 1), "EUR", load_rates(rates_file))
     assert caught.value.reason == "unknown_currency"
+
+
+def test_round_to_three_minor_units() -> None:
+    # BHD has 3 minor units (ISO 4217 List One, as bundled in iso4217): 1 EUR at 0.4105 -> 0.411 BHD;
+    # 2.5 EUR x 0.4105 = 1.02625 -> 1.026; 0.00125 x 0.4105 = 0.000513125 -> 0.001 (half up at the 4th digit)
+    quotes = pd.DataFrame({"date": pd.to_datetime(["2024-01-01"]), "from": ["EUR"], "to": ["BHD"],
+                           "rate": [Decimal("0.4105")], "line": [2]})
+    from integrate.mapping.money import RatesTable
+
+    converted, failures = convert_money(pd.Series([1.0, 2.5, 0.00125]), "EUR", dt.date(2024, 1, 1), "BHD",
+                                        RatesTable(quotes))
+    assert failures.empty
+    assert converted.tolist() == [0.411, 1.026, 0.001]
+
+
+def test_money_sums_are_exact() -> None:
+    # resolution rule 'sum' adds money in integer minor units: 0.10 + 0.20 is 0.30 exactly,
+    # where binary floating point gives 0.30000000000000004 (hand-computed)
+    from integrate.mapping.spec import CanonicalSchema
+    from integrate.resolve import resolve
+
+    assert 0.1 + 0.2 != 0.3  # why integer minor units are needed
+    schema = CanonicalSchema(base_currency="GBP", fields={
+        "deposits_gbp": {"type": "money", "meaning": "Deposits paid; separate rentals add up.", "resolve": "sum"}})
+    records = pd.DataFrame({"_source": ["a", "a", "b"], "_record_id": ["1", "2", "3"], "_trust": [1, 1, 2],
+                            "_record_date": ["2026-01-01"] * 3, "deposits_gbp": [0.1, 0.2, None]})
+    merged, _ = resolve(records, pd.Series(["E1", "E1", "E1"]), schema)
+    assert merged["deposits_gbp"].tolist() == [0.3]

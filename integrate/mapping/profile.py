@@ -1,0 +1,144 @@
+"""Profile the columns of a new export: what kind of values, how many empty, how many distinct, examples.
+
+Every pattern is tested once per distinct value. The profile feeds ``suggest``, which matches
+columns to canonical fields; it is also printed, so the person drafting a mapping sees what
+the export holds.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import pandas as pd
+
+from ..columns import ROW
+from .dates import parse_dates
+from .money import parse_amounts
+
+# Patterns of values found in exports (common practice; deliberately loose: they rank guesses).
+_EMAIL = r"[^@\s]+@[^@\s]+\.[A-Za-z]{2,}"
+_PHONE_TEXT = r"\+?[\d\s().\-/]{7,}"
+_POSTCODES = (
+    r"[A-Z]{1,2}\d[A-Z\d]?\s*\d[A-Z]{2}",  # UK
+    r"\d{5}(?:-\d{4})?",  # US ZIP, DE, FR
+    r"\d{4}\s?[A-Z]{2}",  # NL
+    r"[A-Z]\d[A-Z]\s?\d[A-Z]\d",  # CA
+)
+_NAME = r"[^\W\d_][^\W\d_'’ .\-]*(?:[ ,'’.\-]+[^\W\d_]+)*\.?"
+_STREET = r"\d+[A-Za-z]?,?\s+[^\W\d_].*"
+_CODE = r"[A-Z]{3}"
+
+# Date layouts tried on columns that look like dates, most specific first.
+DATE_FORMATS = ("iso", "%d/%m/%Y", "%m/%d/%Y", "%d.%m.%Y", "%d-%m-%Y", "%Y/%m/%d", "%d %b %Y", "%d %B %Y",
+                "%b %d, %Y", "%d/%m/%y", "%m/%d/%y", "%d.%m.%y")
+_DATE_SAMPLE = 5000  # distinct values tried against each date layout
+TWO_DIGIT_PIVOT = 30  # proposed for %y layouts: 00-29 -> 20yy, 30-99 -> 19yy (to be confirmed by the user)
+
+
+@dataclass
+class ColumnProfile:
+    """What one column holds."""
+
+    name: str
+    count: int  # rows
+    empty: int  # rows without a value
+    distinct: int
+    examples: list[str]
+    shares: dict[str, float] = field(default_factory=dict)  # pattern -> share of non-empty values
+    numbers: tuple[float, float, float] | None = None  # min, median, max of the values read as numbers
+    date_formats: dict[str, float] = field(default_factory=dict)  # layout -> share of values it reads
+    symbols: str = ""  # currency symbols seen in the values
+
+    @property
+    def empty_rate(self) -> float:
+        return self.empty / self.count if self.count else 1.0
+
+    @property
+    def is_unique(self) -> bool:
+        return self.empty == 0 and self.distinct == self.count and self.count > 0
+
+    def share(self, pattern: str) -> float:
+        return self.shares.get(pattern, 0.0)
+
+    def best_date_format(self) -> tuple[str | None, float, list[str]]:
+        """The layout reading most values, its share, and the other layouts reading as many."""
+        if not self.date_formats:
+            return None, 0.0, []
+        best = max(self.date_formats.values())
+        tied = [f for f, s in self.date_formats.items() if s == best]
+        return tied[0], best, tied[1:]
+
+    def kind(self) -> str:
+        """A one-word summary: empty, email, phone, postcode, date, number, code, name, text."""
+        if self.count == self.empty:
+            return "empty"
+        for pattern in ("email", "date", "postcode", "phone", "number", "code", "name"):
+            if self.share(pattern) >= 0.9 or (pattern == "date" and self.best_date_format()[1] >= 0.9):
+                return pattern
+        return "text"
+
+    def summary(self) -> str:
+        text = f"{self.kind()}, {self.empty_rate:.0%} empty, {self.distinct} distinct"
+        if self.numbers and self.kind() == "number":
+            text += f", {self.numbers[0]:g} to {self.numbers[2]:g} (median {self.numbers[1]:g})"
+        if self.examples:
+            text += ", e.g. " + ", ".join(repr(e) for e in self.examples[:3])
+        return text
+
+
+def _share(distinct: pd.Series, weights: pd.Series, mask: pd.Series) -> float:
+    total = weights.sum()
+    return float(weights[mask].sum() / total) if total else 0.0
+
+
+def profile_column(values: pd.Series) -> ColumnProfile:
+    """Profile one column of text values."""
+    text = values.astype("string").str.strip()
+    present = text[text.notna() & text.ne("")]
+    counts = present.value_counts(sort=False)
+    distinct = pd.Series(counts.index.astype(str), dtype=object)
+    weights = pd.Series(counts.to_numpy(), dtype="float64")
+    profile = ColumnProfile(str(values.name), len(values), len(values) - len(present), len(counts),
+                            list(present.drop_duplicates().head(3)))
+    if distinct.empty:
+        return profile
+    s = distinct.str
+    digits = s.replace(r"\D", "", regex=True).str.len()
+    profile.shares = {
+        "email": _share(distinct, weights, s.fullmatch(_EMAIL)),
+        "phone": _share(distinct, weights, s.fullmatch(_PHONE_TEXT) & digits.between(7, 15)),
+        "postcode": _share(distinct, weights, pd.concat([s.upper().str.fullmatch(p) for p in _POSTCODES],
+                                                        axis=1).any(axis=1)),
+        "name": _share(distinct, weights, s.fullmatch(_NAME) & ~s.contains("@")),
+        "street": _share(distinct, weights, s.fullmatch(_STREET)),
+        "code": _share(distinct, weights, s.fullmatch(_CODE)),
+    }
+    amounts, _ = parse_amounts(distinct)
+    # digits split by spaces are a phone number or a code, not an amount
+    profile.shares["number"] = _share(distinct, weights, amounts.notna() & ~s.contains(r"\d\s+\d"))
+    if amounts.notna().any():
+        numbers = amounts.repeat(weights.astype(int).to_numpy()).dropna()
+        profile.numbers = (float(numbers.min()), float(numbers.median()), float(numbers.max()))
+    profile.symbols = "".join(sorted({ch for ch in "".join(distinct.head(200)) if ch in "€£$¥"}))
+    has_digits = _share(distinct, weights, digits > 0)
+    if has_digits >= 0.5 and (profile.shares["number"] < 0.9 or s.fullmatch(r"\d{4}").all()):
+        profile.date_formats = _date_shares(distinct.head(_DATE_SAMPLE), weights.head(_DATE_SAMPLE))
+    return profile
+
+
+def _date_shares(distinct: pd.Series, weights: pd.Series) -> dict[str, float]:
+    shares: dict[str, float] = {}
+    if distinct.str.fullmatch(r"(?:19|20)\d\d").all():
+        return {"year": 1.0}
+    for fmt in DATE_FORMATS:
+        pivot = TWO_DIGIT_PIVOT if "%y" in fmt else None
+        parsed, _ = parse_dates(distinct, None if fmt == "iso" else fmt, two_digit_pivot=pivot)
+        share = _share(distinct, weights, parsed.notna().to_numpy())
+        if share > 0:
+            shares[fmt] = share
+    return shares
+
+
+def profile_frame(raw: pd.DataFrame) -> list[ColumnProfile]:
+    """Profile every column of a source frame (as read by ``integrate.sources``)."""
+    return [profile_column(raw[c]) for c in raw.columns if c != ROW]

@@ -1,0 +1,352 @@
+"""Draft a mapping file for a new export: profile its columns and match each to a canonical field.
+
+A column is matched by its header (against the field's name, the header wordings exports use for
+the same thing, and the columns that already feed the field in the workspace's other mapping
+files) and by its values (e-mails, phone numbers, dates, numbers that fall in the field's range
+in some unit). Each choice is written with its confidence and reasons as YAML comments; columns
+nothing fits are marked ``ignore`` with a TODO, for a person to decide.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import math
+from dataclasses import dataclass
+from dataclasses import field as _default
+from pathlib import Path
+
+import pandas as pd
+import pint
+from rapidfuzz import fuzz
+
+from ..errors import InputError, InputErrors
+from ..sources import read_source
+from ..workspace import CANONICAL_FILE, MAPPINGS_DIR, Workspace
+from .draft import draft_read_spec, render_mapping, source_name
+from .factors import unit_label
+from .load import load_canonical, load_source_mapping
+from .meanings import header_currency, header_unit
+from .money import is_currency
+from .profile import TWO_DIGIT_PIVOT, ColumnProfile, profile_frame
+from .spec import CanonicalField, CanonicalSchema, SourceMapping
+from .suggest_words import CONCEPTS, ID_WORDS, NAME_PHRASES, normalise_header
+from .units import resolve_unit, unit_registry
+
+MAP_AT = 0.5  # confidence from which a column is mapped rather than left for a decision
+_SYMBOLS = {"€": "EUR", "£": "GBP", "¥": "JPY", "$": "USD"}
+_COMMON_UNITS = ("millimeter", "centimeter", "meter", "inch", "foot", "gram", "kilogram", "pound", "stone")
+
+
+@dataclass
+class ColumnSuggestion:
+    """What the draft says about one column, and why."""
+
+    column: str
+    profile: ColumnProfile
+    role: str = "ignore"  # "field", "record_id", "split", "ignore"
+    field: str | None = None
+    confidence: float = 0.0
+    reasons: list[str] = _default(default_factory=list)
+    options: dict[str, object] = _default(default_factory=dict)  # unit, currency, format, pivot, split...
+    todos: list[str] = _default(default_factory=list)
+    alternatives: list[tuple[str, float]] = _default(default_factory=list)
+
+
+@dataclass
+class DraftedMapping:
+    path: Path
+    text: str
+    source: str
+    columns: list[ColumnSuggestion]
+
+
+def _phrases(canonical: CanonicalSchema, known_columns: dict[str, set[str]]) -> dict[str, set[str]]:
+    """Header wordings that mean each canonical field."""
+    out: dict[str, set[str]] = {}
+    for name, spec in canonical.fields.items():
+        words = set(name.split("_"))
+        phrases = {normalise_header(name)} | {normalise_header(c) for c in known_columns.get(name, set())}
+        for concept in CONCEPTS:
+            if spec.type in concept.types and any(w.startswith(c) for w in words for c in concept.cues):
+                phrases |= set(concept.phrases)
+        out[name] = {p for p in phrases if p}
+    return out
+
+
+def _similarity(header: str, phrase: str) -> float:
+    if not header or not phrase:
+        return 0.0
+    if header == phrase:
+        return 1.0
+    return max(fuzz.ratio(header, phrase), 0.8 * fuzz.token_set_ratio(header, phrase)) / 100
+
+
+def _value_fit(profile: ColumnProfile, spec: CanonicalField) -> float:
+    """How well the values suit the field's type, 0..1; 0 means incompatible."""
+    t = spec.type
+    if t == "email":
+        return profile.share("email") if profile.share("email") >= 0.5 else 0.0
+    if t == "phone":
+        return profile.share("phone") if profile.share("phone") >= 0.5 and profile.kind() != "date" else 0.0
+    if t == "postcode":
+        return profile.share("postcode") if profile.share("postcode") >= 0.5 else 0.0
+    if t == "date":
+        share = profile.best_date_format()[1]
+        return share if share >= 0.8 else 0.0
+    if t == "person_name":
+        return profile.share("name") if profile.share("name") >= 0.5 and profile.share("number") < 0.5 else 0.0
+    if t in ("quantity", "money"):
+        if profile.share("number") < 0.8:
+            return 0.0
+        return 1.0 if t == "money" or _unit_from_values(profile, spec) else 0.6
+    if t == "category":
+        return 1.0 if profile.distinct <= 50 else 0.3
+    if t == "identifier":
+        return 1.0 if profile.is_unique else 0.5
+    return 0.3 + 0.7 * profile.share("street") if profile.kind() not in ("number", "email", "date") else 0.1
+
+
+def _unit_from_values(profile: ColumnProfile, spec: CanonicalField) -> tuple[str, str] | None:
+    """The common unit in which the column's median falls nearest the middle of the field's range."""
+    if spec.range is None or spec.unit is None or profile.numbers is None or profile.numbers[1] <= 0:
+        return None
+    low, high = spec.range
+    target = resolve_unit(spec.unit)
+    middle = math.sqrt(low * high) if low > 0 else (low + high) / 2
+    fits: list[tuple[float, str, float]] = []
+    for unit in _COMMON_UNITS:
+        try:
+            size = float(unit_registry().Quantity(1.0, unit).to(target).magnitude)
+        except pint.DimensionalityError:  # another dimension: not a candidate
+            continue
+        converted = profile.numbers[1] * size
+        if low <= converted <= high:
+            fits.append((abs(math.log(converted / middle)) if middle > 0 else 0.0, unit, converted))
+    if not fits:
+        return None
+    _, unit, converted = min(fits)
+    lo, hi = profile.numbers[0] * converted / profile.numbers[1], profile.numbers[2] * converted / profile.numbers[1]
+    return unit, (f"as {unit_label(unit)} the values ({profile.numbers[0]:g} to {profile.numbers[2]:g}) give "
+                  f"{lo:.4g} to {hi:.4g} {spec.unit}, inside the plausible range [{low:g}, {high:g}]")
+
+
+def _score(profile: ColumnProfile, name: str, spec: CanonicalField, phrases: set[str]) -> tuple[float, list[str]]:
+    header = normalise_header(profile.name)
+    best_phrase = max(phrases, key=lambda p: _similarity(header, p), default="")
+    h = _similarity(header, best_phrase)
+    v = _value_fit(profile, spec)
+    if v == 0.0:
+        return 0.0, []
+    confidence = 0.6 * h + 0.4 * v
+    if spec.type in ("email", "postcode") and v >= 0.9:
+        confidence = max(confidence, 0.6 * v)  # such values speak for themselves
+    reasons = []
+    if h >= 0.5:
+        reasons.append(f"header like '{best_phrase}' ({h:.2f})")
+    kind = {"person_name": "name", "text": "street"}.get(spec.type, spec.type)
+    share = profile.share(kind) if kind in profile.shares else v
+    if spec.type == "date":
+        share = profile.best_date_format()[1]
+    reasons.append(f"{share:.0%} of values fit type {spec.type}")
+    return confidence, reasons
+
+
+def _record_id(profiles: list[ColumnProfile]) -> tuple[ColumnProfile, list[str]]:
+    def idness(p: ColumnProfile) -> float:
+        words = set(normalise_header(p.name).split())
+        return (2.0 if p.is_unique else 0.0) + (1.0 if words & ID_WORDS else 0.0) - 0.5 * (p.share("email") > 0.5)
+
+    best = max(profiles, key=idness)  # first column wins ties
+    todos = [] if best.is_unique else [f"'{best.name}' is not unique in every row: choose the column that "
+                                       "identifies a record"]
+    return best, todos
+
+
+def _options(s: ColumnSuggestion, spec: CanonicalField, canonical: CanonicalSchema,
+             profiles: list[ColumnProfile]) -> None:
+    p = s.profile
+    if spec.type == "date":
+        fmt, share, tied = p.best_date_format()
+        if fmt and fmt != "iso":
+            s.options["format"] = fmt
+        if "%y" in (fmt or ""):
+            s.options["pivot"] = TWO_DIGIT_PIVOT
+            s.todos.append(f"two-digit years: {TWO_DIGIT_PIVOT} reads 00-{TWO_DIGIT_PIVOT - 1} as 20yy, "
+                           "the rest as 19yy; confirm")
+        if tied:
+            s.todos.append(f"the values read as {fmt} and as {', '.join(tied)} alike (no day above 12): "
+                           "confirm which the export uses")
+    elif spec.type == "quantity":
+        said = header_unit(p.name)
+        guessed = _unit_from_values(p, spec)
+        if said:
+            s.options["unit"] = _short_unit(said)
+            s.reasons.append(f"the header names {unit_label(said)}")
+            if guessed and guessed[0] != said:
+                s.todos.append(f"the header says {unit_label(said)} but the values look like {unit_label(guessed[0])}")
+        elif guessed:
+            s.options["unit"] = _short_unit(guessed[0])
+            s.reasons.append(guessed[1])
+            s.todos.append("unit guessed from the values: confirm")
+        else:
+            s.options["unit"] = spec.unit
+            s.todos.append(f"unit not known: set the unit the values are in (canonical: {spec.unit})")
+    elif spec.type == "money":
+        said = header_currency(p.name) or (_SYMBOLS.get(p.symbols) if len(p.symbols) == 1 else None)
+        codes = [q for q in profiles if q.share("code") >= 0.9 and q.distinct <= 50
+                 and all(is_currency(e) for e in q.examples)]
+        if said:
+            s.options["currency"] = said
+            s.reasons.append(f"the header or values name {said}")
+        elif codes:
+            s.options["currency_column"] = codes[0].name
+            s.reasons.append(f"'{codes[0].name}' holds currency codes")
+        else:
+            s.options["currency"] = canonical.base_currency
+            s.todos.append(f"currency not known: set the ISO 4217 code (base currency {canonical.base_currency})")
+
+
+def _short_unit(unit: str) -> str:
+    return {"inch": "in", "centimeter": "cm", "millimeter": "mm", "meter": "m", "foot": "ft", "kilogram": "kg",
+            "gram": "g", "pound": "lb", "stone": "st"}.get(unit, unit)
+
+
+def match_columns(profiles: list[ColumnProfile], canonical: CanonicalSchema,
+                  known_columns: dict[str, set[str]] | None = None) -> list[ColumnSuggestion]:
+    """Choose the record ID and, one to one, the canonical field of every other column."""
+    phrases = _phrases(canonical, known_columns or {})
+    suggestions = {p.name: ColumnSuggestion(p.name, p) for p in profiles}
+    id_profile, id_todos = _record_id(profiles)
+    rid = suggestions[id_profile.name]
+    rid.role, rid.todos, rid.confidence = "record_id", id_todos, 1.0 if id_profile.is_unique else 0.5
+    rid.reasons = ["unique in every row" if id_profile.is_unique else "the most ID-like column"]
+    scored: list[tuple[float, str, str, list[str]]] = []
+    for p in profiles:
+        if p.name == id_profile.name or normalise_header(p.name) in NAME_PHRASES:
+            continue  # whole-name columns are split below, or left for a decision
+        for name, spec in canonical.fields.items():
+            confidence, reasons = _score(p, name, spec, phrases[name])
+            if confidence > 0:
+                scored.append((confidence, p.name, name, reasons))
+    scored.sort(key=lambda t: (-t[0], t[1], t[2]))
+    taken: set[str] = set()
+    for confidence, column, name, reasons in scored:
+        s = suggestions[column]
+        if s.role != "ignore" or name in taken or confidence < MAP_AT:
+            if s.role != "record_id" and s.field != name and confidence >= 0.3:
+                s.alternatives.append((name, confidence))
+            continue
+        s.role, s.field, s.confidence, s.reasons = "field", name, confidence, list(reasons)
+        taken.add(name)
+        _options(s, canonical.fields[name], canonical, profiles)
+    _name_split(suggestions, canonical, taken)
+    for s in suggestions.values():
+        s.alternatives = [a for a in s.alternatives if a[0] != s.field][:2]
+        if s.role == "ignore" and not s.todos:
+            best = f" (closest: {s.alternatives[0][0]}, {s.alternatives[0][1]:.2f})" if s.alternatives else ""
+            s.todos.append(f"decide: no canonical field fits well{best}; map it or keep it ignored")
+    return [suggestions[p.name] for p in profiles]
+
+
+def _name_split(suggestions: dict[str, ColumnSuggestion], canonical: CanonicalSchema, taken: set[str]) -> None:
+    """A whole-name column fills both name fields when neither has a column of its own."""
+    given = next((n for n, f in canonical.fields.items() if f.type == "person_name" and "given" in n), None)
+    family = next((n for n, f in canonical.fields.items() if f.type == "person_name" and "family" in n), None)
+    if not given or not family or given in taken or family in taken:
+        return
+    for s in suggestions.values():
+        if s.role == "ignore" and normalise_header(s.column) in NAME_PHRASES and s.profile.share("name") >= 0.5:
+            comma = s.profile.examples and all("," in e for e in s.profile.examples)
+            s.role, s.confidence = "split", 0.6
+            if comma:
+                s.options["split"] = rf"^(?P<{family}>[^,]*),\s*(?P<{given}>.*)$"
+                s.reasons = ["whole names written 'Family, Given'"]
+            else:
+                s.options["split"] = rf"^(?P<{given}>.*?)\s+(?P<{family}>\S+)$"
+                s.reasons = ["whole names; the last word taken as the family name"]
+                s.todos.append("check names with particles ('van der ...') and several family names")
+            return
+
+
+def suggest_mapping(source_file: str | Path, *, workspace: str | Path = ".", name: str | None = None,
+                    force: bool = False, today: dt.date | None = None) -> DraftedMapping:
+    """Profile ``source_file`` and write a draft ``mappings/<name>.yaml`` into ``workspace``.
+
+    Raises:
+        InputError: ``mapping_exists`` when the mapping file exists (unless ``force``); the
+            source cannot be read; the workspace does not load.
+    """
+    root = Path(workspace)
+    ws = _lenient_workspace(root)
+    source = source_name(Path(source_file), name)
+    target = root / MAPPINGS_DIR / f"{source}.yaml"
+    if target.name == CANONICAL_FILE:
+        raise InputError("a source cannot be called 'canonical'", value=source, reason="bad_name",
+                         hint="give another name with --name")
+    if target.exists() and not force:
+        raise InputError("mapping file already exists; not overwritten", file=ws.display(target),
+                         reason="mapping_exists", hint="pass --force to replace it, or --name for another file")
+    spec = draft_read_spec(Path(source_file), root)
+    raw = read_source(spec, root, name=source)
+    profiles = profile_frame(raw)
+    if not profiles:
+        raise InputError("the export has no columns", file=spec.path, reason="no_columns")
+    known: dict[str, set[str]] = {}
+    for mapping in ws.sources:
+        for column, cmap in mapping.column_maps().items():
+            if cmap.field:  # a split column's header names the whole, not one field
+                known.setdefault(cmap.field, set()).add(column)
+    columns = match_columns(profiles, ws.canonical, known)
+    as_of = today or dt.date.fromtimestamp(Path(source_file).stat().st_mtime)
+    text = render_mapping(source, spec, as_of, columns, ws.display(Path(source_file)))
+    _write_checked(target, text, ws.canonical)
+    return DraftedMapping(target, text, source, columns)
+
+
+@dataclass
+class _Vocabulary:
+    """The canonical schema and the source mappings that load (their columns teach header wordings)."""
+
+    root: Path
+    canonical: CanonicalSchema
+    sources: list[SourceMapping]
+
+    def display(self, path: Path) -> str:
+        return Workspace(self.root, self.canonical, self.root).display(path)
+
+
+def _lenient_workspace(root: Path) -> _Vocabulary:
+    """The canonical schema must load; source mapping files that do not are skipped (check reports them)."""
+    folder = root / MAPPINGS_DIR
+    canonical_file = folder / CANONICAL_FILE
+    if not canonical_file.exists():
+        raise InputError(f"no {MAPPINGS_DIR}/{CANONICAL_FILE} in workspace '{root}'", file=str(canonical_file),
+                         reason="not_a_workspace", hint="pass --workspace, the folder holding mappings/canonical.yaml")
+    canonical = load_canonical(canonical_file, f"{MAPPINGS_DIR}/{CANONICAL_FILE}")
+    sources: list[SourceMapping] = []
+    for path in sorted(folder.glob("*.yaml")):
+        if path.name != CANONICAL_FILE:
+            try:
+                sources.append(load_source_mapping(path, canonical))
+            except (InputError, InputErrors):
+                continue
+    return _Vocabulary(root, canonical, sources)
+
+
+def _write_checked(target: Path, text: str, canonical: CanonicalSchema) -> None:
+    """Write the draft only if it loads: a draft that does not is a bug here, not the user's problem."""
+    from ..outputs.tables import write_text_atomic
+
+    draft = target.with_name(f".{target.stem}.draft")
+    draft.write_text(text, encoding="utf-8")
+    try:
+        load_source_mapping(draft, canonical, str(target))
+    finally:
+        draft.unlink()
+    write_text_atomic(target, text)
+
+
+def profile_table(columns: list[ColumnSuggestion]) -> pd.DataFrame:
+    """The profile and decision of every column, for printing."""
+    return pd.DataFrame([{"column": s.column, "profile": s.profile.summary(),
+                          "decision": s.field or s.role, "confidence": round(s.confidence, 2)} for s in columns])

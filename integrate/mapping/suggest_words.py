@@ -1,0 +1,73 @@
+"""Header wordings that exports use for the things a canonical schema holds (common practice).
+
+A concept ties itself to a canonical field when one of its cue words starts one of the words of
+the field's name and the field's type is one the concept allows; its phrases then count as
+headers meaning that field. Headers and phrases are compared after ``normalise_header``.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True)
+class Concept:
+    cues: tuple[str, ...]  # words of a canonical field name that tie the concept to the field
+    types: tuple[str, ...]  # canonical field types it fits
+    phrases: tuple[str, ...]  # headers seen in exports, normalised
+
+
+CONCEPTS: tuple[Concept, ...] = (
+    Concept(("given", "first", "forename"), ("person_name",),
+            ("first name", "firstname", "forename", "forenames", "given name", "given names", "christian name",
+             "fname", "first")),
+    Concept(("family", "surname", "last"), ("person_name",),
+            ("surname", "last name", "lastname", "family name", "lname", "last")),
+    Concept(("birth", "dob"), ("date",),
+            ("dob", "date of birth", "birth date", "birthdate", "born", "birthday", "birth year", "year of birth")),
+    Concept(("email", "mail"), ("email",),
+            ("email", "e mail", "email address", "e mail address", "mail", "mail address")),
+    Concept(("phone", "tel", "mobile"), ("phone",),
+            ("phone", "telephone", "tel", "tel no", "mobile", "cell", "phone number", "contact number",
+             "mobile number", "telephone number")),
+    Concept(("postcode", "zip", "postal"), ("postcode",),
+            ("postcode", "post code", "postal code", "zip", "zip code", "zipcode", "plz")),
+    Concept(("street", "address"), ("text",),
+            ("street", "address", "address line 1", "address1", "street address", "addr", "home address")),
+    Concept(("height",), ("quantity",), ("height", "ht", "stature")),
+    Concept(("weight",), ("quantity",), ("weight", "wt", "body weight", "mass")),
+    Concept(("join",), ("date",), ("joined", "join date", "member since", "date joined", "joining date")),
+    Concept(("annual", "membership", "subscription"), ("money",),
+            ("annual fee", "membership fee", "subscription", "dues", "annual subscription")),
+    Concept(("event",), ("money",),
+            ("event fee", "entry fee", "course fee", "class fee", "booking fee", "registration fee", "sign up fee",
+             "lesson fee")),
+    Concept(("spend", "spent"), ("money",), ("spend", "total spend", "lifetime spend", "total spent", "sales")),
+    Concept(("deposit",), ("money",), ("deposit", "deposit amount", "deposit paid")),
+)
+
+# Header words of an identifying column.
+ID_WORDS = frozenset({"id", "ref", "reference", "no", "nr", "number", "num", "code", "key"})
+# Headers of a column holding whole names.
+NAME_PHRASES = frozenset({"name", "full name", "fullname", "customer name", "member name", "person", "pupil name",
+                          "student name", "client name", "participant"})
+# Words dropped before comparing: units and currencies say how, not what.
+_DROPPED = frozenset({"in", "inch", "inches", "cm", "mm", "m", "ft", "feet", "kg", "kgs", "kilos", "lb", "lbs",
+                      "st", "stone", "oz", "g", "gbp", "eur", "euro", "euros", "usd", "jpy", "chf"})
+
+
+def normalise_header(text: str) -> str:
+    """Lower-case words of a header without punctuation, units or currencies.
+
+    Example:
+        >>> normalise_header("D.O.B."), normalise_header("Forename(s)"), normalise_header("Height (in)")
+        ('dob', 'forename', 'height')
+        >>> normalise_header("E-mail address"), normalise_header("Course fee €"), normalise_header("name.first")
+        ('e mail address', 'course fee', 'name first')
+    """
+    t = text.lower().replace("(s)", "")
+    t = re.sub(r"(?<=\b\w)\.", "", t)  # D.O.B. -> dob, but name.first keeps its two words
+    t = re.sub(r"['’]", "", t)
+    words = [w for w in re.split(r"[^a-z0-9]+", t) if w and w not in _DROPPED]
+    return " ".join(words)
