@@ -1,11 +1,32 @@
 """Resolve each entity's fields into one merged value, with provenance for every value.
 
-Resolution rules (set per field in the canonical schema):
-``trust`` most trusted source first, then most recent; ``most_recent``; ``most_common`` (ties by
-trust, then recency); ``most_complete`` (longest value); ``min``, ``max``, ``mean``, ``sum``
-(money summed in integer minor units, so the total is exact); ``all`` keeps every distinct value.
-Quantities outside the field's plausible range never win (a unit slip must not become the
-merged value); they stay visible among the alternatives.
+Resolution rules (set per field in the canonical schema, ``resolve:``; default ``most_common``):
+
+- ``trust``: the most trusted source (lowest trust rank), then the most recent record;
+- ``most_recent``: the record with the latest record date (a source without a record-date
+  column dates its records by its as-of date), then trust;
+- ``most_common``: the value most records agree on after standardisation; ties by trust, then
+  recency;
+- ``most_complete``: the longest value after standardisation; ties by trust, then recency;
+- ``first_non_empty``: the first source in the field's ``order`` that has a value (sources not
+  listed come after, by trust rank);
+- ``min``, ``max``: the smallest / largest value (dates compare as dates);
+- ``sum``, ``mean``: numbers. Money is summed in integer minor units of the base currency, so
+  the total is exact to the minor unit; a mean of money is rounded half away from zero. ``sum``
+  counts each record once, and where the field sets ``same_transaction`` (e.g. ``[source,
+  record_date, deposits_gbp]``) records of one entity that agree on all those keys count once:
+  the same payment exported twice is not counted twice;
+- ``all``: every distinct value, joined with `` | `` (most trusted first).
+
+Every rule breaks its last ties by source name and record ID, so the result never depends on the
+order of rows. Quantities and money outside the field's plausible ``range`` never win (a unit
+slip must not become the merged value); they stay visible among the alternatives.
+
+Provenance has one row per entity and field: the chosen ``value``, the ``source`` and
+``record_id`` it came from (empty for ``sum`` and ``mean``, which use every value), the ``rule``,
+the number of ``candidates``, whether they ``conflict`` (differ after standardisation; never
+for ``sum`` and ``all``, whose values are meant to differ), the ``alternatives`` with their
+sources, and ``why``, one sentence on how the rule chose.
 """
 
 from __future__ import annotations
@@ -14,22 +35,38 @@ import numpy as np
 import pandas as pd
 
 from .columns import RECORD_DATE, RECORD_ID, SOURCE, TRUST
+from .errors import MappingError
 from .mapping.money import minor_units
-from .mapping.spec import CanonicalSchema
+from .mapping.spec import CanonicalField, CanonicalSchema
 from .text_normalise import clean_text, map_distinct
 
 PROVENANCE_COLUMNS = ["entity_id", "field", "value", "source", "record_id", "rule", "candidates",
-                      "conflict", "alternatives"]
+                      "conflict", "alternatives", "why"]
 AGGREGATE_RULES = frozenset({"sum", "mean"})
+NO_CONFLICT_RULES = frozenset({"sum", "all"})  # their values are meant to differ
+NUMERIC_TYPES = frozenset({"quantity", "money"})
 STANDARD_FORM_TYPES = frozenset({"email", "phone", "postcode"})
 _TIE_BREAK = ["_trust", "_date_rank", "_source", "_rid"]
 
 
-def _long(records: pd.DataFrame, entity_ids: pd.Series, name: str, ftype: str) -> pd.DataFrame:
+def with_standard_forms(records: pd.DataFrame, canonical: CanonicalSchema,
+                        prepared: pd.DataFrame | None) -> pd.DataFrame:
+    """E-mails, phones and postcodes in their standard form (E.164, upper-case postcodes), where known."""
+    if prepared is None:
+        return records
+    records = records.copy()
+    for name, spec in canonical.fields.items():
+        if spec.type in STANDARD_FORM_TYPES and name in prepared.columns:
+            records[name] = prepared[name].to_numpy()
+    return records
+
+
+def _long(records: pd.DataFrame, entity_ids: np.ndarray, name: str, spec: CanonicalField) -> pd.DataFrame:
+    """One row per non-empty value of one field: entity, value, its record and the tie-break keys."""
     values = records[name]
     keep = values.notna().to_numpy()
     long = pd.DataFrame({
-        "entity_id": entity_ids.to_numpy()[keep],
+        "entity_id": entity_ids[keep],
         "value": values.to_numpy(dtype=object)[keep],
         "_source": records[SOURCE].astype(str).to_numpy()[keep],
         "_rid": records[RECORD_ID].astype(str).to_numpy()[keep],
@@ -38,47 +75,84 @@ def _long(records: pd.DataFrame, entity_ids: pd.Series, name: str, ftype: str) -
     })
     # newest first: rank dates descending so every sort below can be ascending
     long["_date_rank"] = -pd.to_datetime(long["_date"], errors="coerce").fillna(pd.Timestamp(0)).astype("int64")
-    if ftype in ("quantity", "money"):
+    if spec.type in NUMERIC_TYPES:
         long["value"] = long["value"].astype(float)
         long["_norm"] = long["value"].round(6).astype(str)
     else:
         long["value"] = long["value"].astype(str)
         long["_norm"] = map_distinct(long["value"], clean_text).fillna("").to_numpy()
-    return long
+        long = long[long["_norm"] != ""]  # blank text is no value
+    for key in spec.same_transaction or ():
+        if key not in ("source", "record_date", name):
+            other = records[key].astype("string").fillna("").to_numpy()[keep]
+            long["_tx_" + key] = other[long.index.to_numpy()]
+    return long.reset_index(drop=True)
 
 
-def _pick(long: pd.DataFrame, rule: str) -> pd.DataFrame:
-    """One winning row per entity for a choosing rule."""
+def _pick(long: pd.DataFrame, rule: str, spec: CanonicalField) -> pd.DataFrame:
+    """One winning row per entity for a choosing rule (sorted so the winner comes first)."""
     if rule == "most_common":
         long = long.assign(_count=-long.groupby(["entity_id", "_norm"])["_norm"].transform("size"))
         order = ["_count"] + _TIE_BREAK
     elif rule == "most_recent":
         order = ["_date_rank", "_trust", "_source", "_rid"]
     elif rule == "most_complete":
-        long = long.assign(_len=-long["value"].astype(str).str.len())
+        long = long.assign(_len=-long["_norm"].str.len())
         order = ["_len"] + _TIE_BREAK
+    elif rule == "first_non_empty":
+        preferred = {source: k for k, source in enumerate(spec.order or ())}
+        long = long.assign(_order=long["_source"].map(preferred).fillna(len(preferred)))
+        order = ["_order"] + _TIE_BREAK
     elif rule in ("min", "max"):
-        rank = long["value"].rank(method="dense")
+        key = long["value"] if spec.type in NUMERIC_TYPES else long["_sortable"]
+        rank = key.rank(method="dense")
         long = long.assign(_num=rank if rule == "min" else -rank)
         order = ["_num"] + _TIE_BREAK
-    else:  # trust (and the fallback for 'all')
+    else:  # trust, and the first value of 'all'
         order = _TIE_BREAK
     return long.sort_values(["entity_id"] + order, kind="mergesort").drop_duplicates("entity_id")
 
 
+def _sum_once(long: pd.DataFrame, name: str, spec: CanonicalField) -> pd.DataFrame:
+    """The values a ``sum`` adds: each record once, and one per transaction where keys say so."""
+    once = long.drop_duplicates(["entity_id", "_source", "_rid"])
+    if spec.same_transaction:
+        mapped = {"source": "_source", "record_date": "_date", name: "_norm"}
+        keys = [mapped.get(k, "_tx_" + k) for k in spec.same_transaction]
+        once = once.sort_values(["entity_id"] + _TIE_BREAK, kind="mergesort").drop_duplicates(["entity_id"] + keys)
+    return once
+
+
 def _aggregate(long: pd.DataFrame, rule: str, ftype: str, digits: int) -> pd.DataFrame:
-    grouped = long.groupby("entity_id", sort=True)
-    if rule == "sum" and ftype == "money":
+    if ftype == "money":
         # integer minor units: exact sums, no float drift
         scale = 10 ** digits
-        cents = np.round(long["value"].to_numpy() * scale).astype(np.int64)
-        value = pd.Series(cents, index=long.index).groupby(long["entity_id"]).sum() / scale
-    elif rule == "sum":
-        value = grouped["value"].sum()
+        units = pd.Series(np.round(long["value"].to_numpy() * scale).astype(np.int64), index=long.index)
+        total = units.groupby(long["entity_id"]).sum()
+        if rule == "sum":
+            value = total / scale
+        else:  # mean, rounded half away from zero in integers
+            count = units.groupby(long["entity_id"]).size()
+            t, c = total.to_numpy(), count.to_numpy()
+            value = pd.Series(np.sign(t) * ((2 * np.abs(t) + c) // (2 * c)) / scale, index=total.index)
     else:
-        value = grouped["value"].mean()
-    return pd.DataFrame({"entity_id": value.index, "value": value.to_numpy(), "_source": "",
-                         "_rid": ""})
+        grouped = long.groupby("entity_id", sort=True)["value"]
+        value = grouped.sum() if rule == "sum" else grouped.mean()
+    return pd.DataFrame({"entity_id": value.index, "value": value.to_numpy(), "_source": "", "_rid": ""})
+
+
+def check_orders(canonical: CanonicalSchema, sources: list[str], file: str | None = None) -> None:
+    """Every source named in a field's ``order`` must be a source of the workspace.
+
+    Raises:
+        MappingError: ``unknown_source`` naming the field and the source.
+    """
+    for name, spec in canonical.fields.items():
+        for source in spec.order or ():
+            if source not in sources:
+                raise MappingError(f"field '{name}': order names source '{source}', which has no mapping file",
+                                   file=file, value=source, reason="unknown_source",
+                                   hint=f"sources are: {', '.join(sorted(sources))}")
 
 
 def resolve(records: pd.DataFrame, entity_ids: pd.Series, canonical: CanonicalSchema,
@@ -98,74 +172,143 @@ def resolve(records: pd.DataFrame, entity_ids: pd.Series, canonical: CanonicalSc
         ...     "_trust": [1, 2, 3], "_record_date": ["2026-01-01"] * 3,
         ...     "email": ["x@example.org", "y@example.org", "y@example.org"]})
         >>> merged, prov = resolve(records, pd.Series(["E1", "E1", "E1"]), schema)
-        >>> merged["email"].tolist(), prov["source"].tolist()
-        (['y@example.org'], ['b'])
+        >>> merged["email"].tolist(), prov["source"].tolist(), prov["why"].tolist()
+        (['y@example.org'], ['b'], ['2 of 3 values agree; most trusted of them'])
     """
-    entity_ids = pd.Series(entity_ids.to_numpy(), index=records.index)
-    all_entities = pd.Index(sorted(entity_ids.unique()), name="entity_id")
-    merged = pd.DataFrame(index=all_entities)
+    ids = np.asarray(entity_ids.to_numpy(), dtype=object)
+    records = with_standard_forms(records, canonical, prepared)
+    merged = pd.DataFrame(index=pd.Index(sorted(set(ids.tolist())), name="entity_id"))
     prov_parts: list[pd.DataFrame] = []
-    if prepared is not None:
-        records = records.copy()
-        for name, spec in canonical.fields.items():
-            if spec.type in STANDARD_FORM_TYPES and name in prepared.columns:
-                records[name] = prepared[name].to_numpy()
     for name, spec in canonical.fields.items():
-        long = _long(records, entity_ids, name, spec.type)
-        if spec.range is not None and spec.type in ("quantity", "money"):
-            low, high = spec.range
-            plausible = long["value"].between(low, high)
-            long = long.assign(_excluded=~plausible)
-        else:
-            long = long.assign(_excluded=False)
+        long = _long(records, ids, name, spec)
+        excluded = np.zeros(len(long), bool)
+        if spec.range is not None and spec.type in NUMERIC_TYPES:
+            excluded = ~long["value"].between(*spec.range).to_numpy()
+        long["_excluded"] = excluded
+        if spec.type not in NUMERIC_TYPES:
+            # for min / max: a year alone sorts before every full date of that year
+            year_only = (long["value"].str.len() == 4) & (spec.type == "date")
+            long["_sortable"] = long["value"].where(~year_only, long["value"] + "-00-00")
         usable = long[~long["_excluded"]]
         digits = minor_units(canonical.base_currency) if spec.type == "money" else 0
-        if spec.resolve in AGGREGATE_RULES and spec.type in ("quantity", "money"):
-            usable = usable.drop_duplicates(["entity_id", "_source", "_rid"])
-            chosen = _aggregate(usable, spec.resolve, spec.type, digits)
+        counted = usable
+        if spec.resolve in AGGREGATE_RULES and spec.type in NUMERIC_TYPES:
+            counted = _sum_once(usable, name, spec) if spec.resolve == "sum" else usable
+            chosen = _aggregate(counted, spec.resolve, spec.type, digits)
         elif spec.resolve == "all":
             distinct = usable.sort_values(["entity_id"] + _TIE_BREAK, kind="mergesort").drop_duplicates(
                 ["entity_id", "_norm"])
-            joined = distinct.groupby("entity_id", sort=True)["value"].agg(lambda v: " | ".join(map(str, v)))
-            first = _pick(usable, "trust").set_index("entity_id")
+            shown = _shown(distinct["value"], spec, digits)
+            joined = shown.groupby(distinct["entity_id"], sort=True).agg(" | ".join)
+            first = _pick(usable, "trust", spec).set_index("entity_id").loc[joined.index]
             chosen = pd.DataFrame({"entity_id": joined.index, "value": joined.to_numpy(),
-                                   "_source": first.loc[joined.index, "_source"].to_numpy(),
-                                   "_rid": first.loc[joined.index, "_rid"].to_numpy()})
+                                   "_source": first["_source"].to_numpy(), "_rid": first["_rid"].to_numpy()})
         else:
-            chosen = _pick(usable, spec.resolve)[["entity_id", "value", "_source", "_rid"]]
-        if spec.type == "money":
-            chosen["value"] = chosen["value"].astype(float).round(digits)
+            chosen = _pick(usable, spec.resolve, spec)
+        if spec.type == "money" and spec.resolve != "all":
+            chosen = chosen.assign(value=chosen["value"].astype(float).round(digits))
         merged[name] = pd.Series(chosen["value"].to_numpy(), index=chosen["entity_id"].to_numpy())
-        prov_parts.append(_provenance(long, chosen, name, spec.resolve))
+        prov_parts.append(_provenance(long, usable, counted, chosen, name, spec, digits, merged.index))
     merged = merged.reset_index()
     for name, spec in canonical.fields.items():
-        if spec.type in ("quantity", "money"):
-            merged[name] = merged[name].astype("float64")
-        else:
-            merged[name] = merged[name].astype("string")
+        numeric = spec.type in NUMERIC_TYPES and spec.resolve != "all"  # 'all' lists values as text
+        merged[name] = merged[name].astype("float64" if numeric else "string")
     provenance = pd.concat(prov_parts, ignore_index=True) if prov_parts else pd.DataFrame(
         columns=PROVENANCE_COLUMNS)
     return merged, provenance
 
 
-def _provenance(long: pd.DataFrame, chosen: pd.DataFrame, name: str, rule: str) -> pd.DataFrame:
-    stats = long.groupby("entity_id").agg(candidates=("_norm", "size"), distinct=("_norm", "nunique"))
-    label = long["value"].astype(str) + " [" + long["_source"] + ":" + long["_rid"] + "]"
+def _shown(values: pd.Series, spec: CanonicalField, digits: int) -> pd.Series:
+    """Values as provenance shows them: money with its minor digits, quantities without float noise."""
+    if spec.type not in NUMERIC_TYPES or not pd.api.types.is_numeric_dtype(values):  # 'all' lists are text
+        return values.astype(object).where(values.notna(), "").astype(str)
+    number = values.astype(float).to_numpy()
+    text = np.char.mod(f"%.{digits}f" if spec.type == "money" else "%.10g", number).astype(object)
+    return pd.Series(np.where(np.isnan(number), "", text), index=values.index, dtype=object)
+
+
+def _provenance(long: pd.DataFrame, usable: pd.DataFrame, counted: pd.DataFrame, chosen: pd.DataFrame,
+                name: str, spec: CanonicalField, digits: int, entities: pd.Index) -> pd.DataFrame:
+    stats = long.groupby("entity_id").agg(candidates=("_norm", "size"), distinct=("_norm", "nunique"),
+                                          excluded=("_excluded", "sum"))
+    label = _shown(long["value"], spec, digits) + " [" + long["_source"] + ":" + long["_rid"] + "]"
     label = label.where(~long["_excluded"], label + " (out of range)")
-    alternatives = label.groupby(long["entity_id"]).agg(lambda v: "; ".join(v))
+    alternatives = label.groupby(long["entity_id"]).agg("; ".join)
     out = chosen.rename(columns={"_source": "source", "_rid": "record_id"}).set_index("entity_id")
-    # entities whose only values were excluded (out of range) keep a row with an empty value
-    out = out.join(stats, how="outer").join(alternatives.rename("alternatives"), how="left")
-    out["source"] = out["source"].fillna("")
-    out["record_id"] = out["record_id"].fillna("")
+    # every entity has a row: one without a usable value (none, or only out-of-range ones) shows it empty
+    out = out.join(stats, how="outer").join(alternatives.rename("alternatives"), how="left").reindex(entities)
+    out["why"] = _why(out, usable, counted, spec)
+    conflict = (out["distinct"].fillna(0) > 1).to_numpy() & (spec.resolve not in NO_CONFLICT_RULES)
     return pd.DataFrame({
         "entity_id": out.index.to_numpy(),
         "field": name,
-        "value": out["value"].astype(object).where(out["value"].notna(), "").astype(str).to_numpy(),
-        "source": out["source"].to_numpy(),
-        "record_id": out["record_id"].to_numpy(),
-        "rule": rule,
+        "value": _shown(out["value"], spec, digits).to_numpy(),
+        "source": out["source"].fillna("").to_numpy(),
+        "record_id": out["record_id"].fillna("").to_numpy(),
+        "rule": spec.resolve,
         "candidates": out["candidates"].fillna(0).astype(int).to_numpy(),
-        "conflict": (out["distinct"].fillna(0) > 1).to_numpy(),
+        "conflict": conflict,
         "alternatives": out["alternatives"].fillna("").to_numpy(),
+        "why": out["why"].to_numpy(),
     })
+
+
+def _why(out: pd.DataFrame, usable: pd.DataFrame, counted: pd.DataFrame, spec: CanonicalField) -> pd.Series:
+    """One sentence per entity on how its value was chosen (built column-wise)."""
+    n = usable.groupby("entity_id").size().reindex(out.index).fillna(0).astype(int)
+    text = n.astype(str)
+    rule = spec.resolve
+    if rule == "most_common":
+        agree = usable.groupby(["entity_id", "_norm"]).size().groupby("entity_id").max().reindex(out.index)
+        base = agree.fillna(0).astype(int).astype(str) + " of " + text + " values agree; most trusted of them"
+    elif rule == "sum":
+        used = counted.groupby("entity_id").size().reindex(out.index).fillna(0).astype(int)
+        base = "sum of " + used.astype(str) + " values"
+        twice = n - used
+        base = base.where(twice == 0, base + " (" + twice.astype(str) + " counted once as the same transaction)")
+    else:
+        fixed = {
+            "trust": "from the most trusted source with a value",
+            "most_recent": "from the newest record",
+            "most_complete": "the longest value after standardisation",
+            "first_non_empty": f"from the first source with a value, in the order {', '.join(spec.order or ())}",
+            "min": "the smallest value", "max": "the largest value",
+            "mean": "the mean of the values", "all": "every distinct value",
+        }[rule]
+        base = pd.Series(fixed, index=out.index) + " (" + text + " values)"
+    base = base.where(n != 1, "the only value")
+    excluded = out["excluded"].fillna(0).astype(int)
+    base = base.where(excluded == 0, base + "; " + excluded.astype(str) + " out of range left out")
+    return base.where(n > 0, "no usable value")
+
+
+def source_pair_conflicts(records: pd.DataFrame, entity_ids: pd.Series, canonical: CanonicalSchema,
+                          prepared: pd.DataFrame | None = None) -> pd.DataFrame:
+    """Per field and pair of sources: entities where a value from one differs from a value from the other.
+
+    Values are compared after standardisation; a pair of records of one source counts under
+    (source, source). Fields resolved by ``sum`` or ``all`` are left out (their values are meant
+    to differ).
+
+    Returns:
+        columns ``field``, ``source_a``, ``source_b`` (in text order), ``entities``.
+    """
+    ids = np.asarray(entity_ids.to_numpy(), dtype=object)
+    records = with_standard_forms(records, canonical, prepared)
+    parts = []
+    for name, spec in canonical.fields.items():
+        if spec.resolve in NO_CONFLICT_RULES:
+            continue
+        values = _long(records, ids, name, spec)[["entity_id", "_source", "_norm"]].drop_duplicates()
+        conflicted = values.groupby("entity_id")["_norm"].transform("nunique") > 1
+        values = values[conflicted]
+        both = values.merge(values, on="entity_id", suffixes=("_a", "_b"))
+        keep = (both["_norm_a"] != both["_norm_b"]) & (both["_source_a"] <= both["_source_b"])
+        pairs = both.loc[keep, ["entity_id", "_source_a", "_source_b"]].drop_duplicates()
+        counts = pairs.groupby(["_source_a", "_source_b"]).size().rename("entities").reset_index()
+        parts.append(counts.rename(columns={"_source_a": "source_a", "_source_b": "source_b"}).assign(field=name))
+    if not parts:
+        return pd.DataFrame(columns=["field", "source_a", "source_b", "entities"])
+    table = pd.concat(parts, ignore_index=True)[["field", "source_a", "source_b", "entities"]]
+    return table.sort_values(["entities", "field", "source_a", "source_b"], ascending=[False, True, True, True],
+                             kind="mergesort").reset_index(drop=True)

@@ -1,0 +1,338 @@
+"""The state store: every run with its time, file hashes, the crosswalk it produced and what changed.
+
+By default a SQLite file, ``WORKSPACE/.integrate/state.sqlite``. The environment variable
+``INTEGRATE_STATE_URL`` (a SQLAlchemy URL, e.g. ``postgresql+psycopg://user@host/integrate``)
+puts it in another database; the database's driver must be installed.
+
+Tables (all prefixed ``run``): ``run`` (one row per run: times, counts, output folder, change
+summary as JSON), ``run_file`` (SHA-256 of every mapping and input file the run read),
+``run_crosswalk`` (the crosswalk: source, record ID, entity ID, a hash of the record's values)
+and ``run_change`` (per entity, what changed against the previous run). A run is written in one
+transaction, so a failed write leaves no partial run behind.
+
+Other modules keep their own tables in the same database: they get the engine from
+``state_engine(workspace)`` and create their tables on it (on ``metadata`` here or on their own
+``MetaData``).
+
+Example:
+    >>> import tempfile, pandas as pd
+    >>> store = StateStore.for_workspace(tempfile.mkdtemp())
+    >>> crosswalk = pd.DataFrame({"source": ["a"], "record_id": ["1"], "entity_id": ["E1"]})
+    >>> run_id = store.record_run(NewRun(started_at="2026-01-01T00:00:00Z", crosswalk=crosswalk))
+    >>> store.last_run().run_id == run_id, store.crosswalk(run_id)["entity_id"].tolist()
+    (True, ['E1'])
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import json
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+from sqlalchemy import (
+    Column,
+    Engine,
+    ForeignKey,
+    Index,
+    Integer,
+    MetaData,
+    String,
+    Table,
+    Text,
+    create_engine,
+    event,
+    func,
+    insert,
+    select,
+)
+from sqlalchemy.engine import make_url
+from sqlalchemy.exc import ArgumentError, SQLAlchemyError
+
+from .errors import ConfigError, IntegrateError
+from .mapping.load import file_hash
+from .workspace import Workspace
+
+STATE_URL_ENV = "INTEGRATE_STATE_URL"  # SQLAlchemy URL of the state database (default: SQLite file)
+STATE_DIR = ".integrate"
+STATE_FILE = "state.sqlite"
+_INSERT_CHUNK = 5000  # rows per INSERT batch (keeps SQLite's bound-parameter count small)
+
+metadata = MetaData()
+
+run_table = Table(
+    "run", metadata,
+    Column("run_id", Integer, primary_key=True, autoincrement=True),
+    Column("started_at", String(32), nullable=False),  # ISO 8601, UTC
+    Column("finished_at", String(32), nullable=False),
+    Column("records", Integer, nullable=False),
+    Column("entities", Integer, nullable=False),
+    Column("output_dir", Text),
+    Column("report", Text),
+    Column("summary", Text),  # JSON: the change summary against the previous run
+)
+run_file_table = Table(
+    "run_file", metadata,
+    Column("run_id", Integer, ForeignKey("run.run_id"), nullable=False),
+    Column("kind", String(16), nullable=False),  # mapping / input
+    Column("path", Text, nullable=False),
+    Column("sha256", String(64)),  # empty for a database source read by URL
+)
+run_crosswalk_table = Table(
+    "run_crosswalk", metadata,
+    Column("run_id", Integer, ForeignKey("run.run_id"), primary_key=True),
+    Column("source", String(200), primary_key=True),
+    Column("record_id", String(200), primary_key=True),
+    Column("entity_id", String(32), nullable=False),
+    Column("record_hash", String(16)),
+    Index("ix_run_crosswalk_entity", "entity_id"),
+)
+run_change_table = Table(
+    "run_change", metadata,
+    Column("run_id", Integer, ForeignKey("run.run_id"), nullable=False),
+    Column("entity_id", String(32), nullable=False),
+    Column("change", String(16), nullable=False),
+    Column("related_ids", Text),
+    Column("records", Integer),
+    Column("records_added", Integer),
+    Column("records_removed", Integer),
+)
+
+CROSSWALK_COLUMNS = ["source", "record_id", "entity_id", "record_hash"]
+CHANGE_TABLE_COLUMNS = ["entity_id", "change", "related_ids", "records", "records_added", "records_removed"]
+
+
+class StateError(IntegrateError):
+    """The state database cannot be opened, read or written."""
+
+
+def now_iso() -> str:
+    return dt.datetime.now(dt.UTC).isoformat(timespec="seconds").replace("+00:00", "Z")
+
+
+def state_database(workspace: str | Path) -> Path:
+    """Where the default SQLite state file of a workspace lives."""
+    return Path(workspace) / STATE_DIR / STATE_FILE
+
+
+def state_url(workspace: str | Path) -> str:
+    """The state database's URL: ``INTEGRATE_STATE_URL`` if set, else the workspace's SQLite file."""
+    url = os.environ.get(STATE_URL_ENV, "").strip()
+    return url or f"sqlite:///{state_database(workspace).resolve()}"
+
+
+def shown_url(url: str) -> str:
+    """A URL fit for messages (password hidden)."""
+    try:
+        return make_url(url).render_as_string(hide_password=True)
+    except ArgumentError:
+        return url
+
+
+_ENGINES: dict[str, Engine] = {}
+
+
+def state_engine(workspace: str | Path) -> Engine:
+    """The (shared, cached) engine of a workspace's state database.
+
+    Raises:
+        ConfigError: ``INTEGRATE_STATE_URL`` is not a usable SQLAlchemy URL (or its driver is missing).
+    """
+    url = state_url(workspace)
+    if url in _ENGINES:
+        return _ENGINES[url]
+    try:
+        parsed = make_url(url)
+        if parsed.get_backend_name() == "sqlite" and parsed.database:
+            Path(parsed.database).parent.mkdir(parents=True, exist_ok=True)
+            engine = create_engine(url, connect_args={"timeout": 30})
+
+            @event.listens_for(engine, "connect")
+            def _pragmas(dbapi_connection: Any, _record: Any) -> None:
+                cursor = dbapi_connection.cursor()
+                cursor.execute("PRAGMA journal_mode=WAL")  # readers do not wait for a writing run
+                cursor.execute("PRAGMA foreign_keys=ON")
+                cursor.close()
+        else:
+            engine = create_engine(url)
+    except ArgumentError as exc:  # also a missing driver (NoSuchModuleError)
+        raise ConfigError(f"{STATE_URL_ENV}={shown_url(url)!r} is not a usable SQLAlchemy URL: {exc} "
+                          "(e.g. sqlite:///path/state.sqlite or postgresql+psycopg://user@host/db; "
+                          "the database's driver must be installed)") from exc
+    _ENGINES[url] = engine
+    return engine
+
+
+@dataclass(frozen=True)
+class RunRecord:
+    """One stored run."""
+
+    run_id: int
+    started_at: str
+    finished_at: str
+    records: int
+    entities: int
+    output_dir: str | None
+    report: str | None
+    summary: dict[str, Any]
+
+
+@dataclass
+class NewRun:
+    """What a run hands to the store."""
+
+    started_at: str
+    crosswalk: pd.DataFrame  # source, record_id, entity_id (+ record_hash)
+    mapping_hashes: dict[str, str] = field(default_factory=dict)
+    input_hashes: dict[str, str | None] = field(default_factory=dict)
+    summary: dict[str, Any] = field(default_factory=dict)
+    changes: pd.DataFrame | None = None
+    output_dir: str | None = None
+    report: str | None = None
+
+
+class StateStore:
+    """Runs of one workspace (see the module docstring)."""
+
+    def __init__(self, engine: Engine) -> None:
+        self.engine = engine
+        try:
+            metadata.create_all(engine)
+        except SQLAlchemyError as exc:
+            raise StateError(f"state database {shown_url(str(engine.url))} cannot be used: {exc}") from exc
+
+    @classmethod
+    def for_workspace(cls, workspace: str | Path) -> StateStore:
+        return cls(state_engine(workspace))
+
+    @classmethod
+    def existing(cls, workspace: str | Path) -> StateStore | None:
+        """The store if it exists already (a default SQLite file is not created just to read it)."""
+        if not os.environ.get(STATE_URL_ENV, "").strip() and not state_database(workspace).exists():
+            return None
+        return cls.for_workspace(workspace)
+
+    def record_run(self, run: NewRun) -> int:
+        """Store a run, its files, crosswalk and changes in one transaction; returns its number."""
+        crosswalk = run.crosswalk.reindex(columns=CROSSWALK_COLUMNS)
+        crosswalk = crosswalk.astype(object).where(crosswalk.notna(), None)
+        try:
+            with self.engine.begin() as conn:
+                run_id = int(conn.execute(insert(run_table).values(
+                    started_at=run.started_at, finished_at=now_iso(), records=len(crosswalk),
+                    entities=int(run.crosswalk["entity_id"].nunique()), output_dir=run.output_dir,
+                    report=run.report, summary=json.dumps(run.summary, sort_keys=True),
+                )).inserted_primary_key[0])
+                files = [{"run_id": run_id, "kind": "mapping", "path": p, "sha256": h}
+                         for p, h in sorted(run.mapping_hashes.items())]
+                files += [{"run_id": run_id, "kind": "input", "path": p, "sha256": h}
+                          for p, h in sorted(run.input_hashes.items())]
+                if files:
+                    conn.execute(insert(run_file_table), files)
+                self._insert(conn, run_crosswalk_table, crosswalk.assign(run_id=run_id))
+                if run.changes is not None and len(run.changes):
+                    changes = run.changes.reindex(columns=CHANGE_TABLE_COLUMNS).assign(run_id=run_id)
+                    self._insert(conn, run_change_table, changes.astype(object).where(changes.notna(), None))
+        except SQLAlchemyError as exc:
+            raise StateError(f"could not record the run in {shown_url(str(self.engine.url))}: {exc}") from exc
+        return run_id
+
+    @staticmethod
+    def _insert(conn: Any, table: Table, frame: pd.DataFrame) -> None:
+        rows = frame.to_dict("records")
+        for start in range(0, len(rows), _INSERT_CHUNK):
+            conn.execute(insert(table), rows[start:start + _INSERT_CHUNK])
+
+    def _read(self, statement: Any) -> list[dict[str, Any]]:
+        try:
+            with self.engine.connect() as conn:
+                return [dict(r) for r in conn.execute(statement).mappings().all()]
+        except SQLAlchemyError as exc:
+            raise StateError(f"could not read {shown_url(str(self.engine.url))}: {exc}") from exc
+
+    def runs(self) -> list[RunRecord]:
+        """Every stored run, oldest first."""
+        return [self._record(r) for r in self._read(select(run_table).order_by(run_table.c.run_id))]
+
+    def last_run(self) -> RunRecord | None:
+        rows = self._read(select(run_table).order_by(run_table.c.run_id.desc()).limit(1))
+        return self._record(rows[0]) if rows else None
+
+    def run(self, run_id: int) -> RunRecord | None:
+        rows = self._read(select(run_table).where(run_table.c.run_id == run_id))
+        return self._record(rows[0]) if rows else None
+
+    @staticmethod
+    def _record(row: dict[str, Any]) -> RunRecord:
+        return RunRecord(row["run_id"], row["started_at"], row["finished_at"], row["records"], row["entities"],
+                         row["output_dir"], row["report"], json.loads(row["summary"] or "{}"))
+
+    def files(self, run_id: int) -> pd.DataFrame:
+        t = run_file_table
+        rows = self._read(select(t.c.kind, t.c.path, t.c.sha256).where(t.c.run_id == run_id)
+                          .order_by(t.c.kind, t.c.path))
+        return pd.DataFrame(rows, columns=["kind", "path", "sha256"])
+
+    def crosswalk(self, run_id: int) -> pd.DataFrame:
+        """The crosswalk a run produced (source, record_id, entity_id, record_hash)."""
+        t = run_crosswalk_table
+        rows = self._read(select(t.c.source, t.c.record_id, t.c.entity_id, t.c.record_hash)
+                          .where(t.c.run_id == run_id).order_by(t.c.source, t.c.record_id))
+        return pd.DataFrame(rows, columns=CROSSWALK_COLUMNS)
+
+    def changes(self, run_id: int) -> pd.DataFrame:
+        """Per entity, what changed in a run against the run before it."""
+        t = run_change_table
+        rows = self._read(select(*[t.c[c] for c in CHANGE_TABLE_COLUMNS]).where(t.c.run_id == run_id)
+                          .order_by(t.c.change, t.c.entity_id))
+        return pd.DataFrame(rows, columns=CHANGE_TABLE_COLUMNS)
+
+    def issued_ids(self) -> set[str]:
+        """Every entity ID any stored run has issued."""
+        t = run_crosswalk_table
+        return {r["entity_id"] for r in self._read(select(t.c.entity_id).distinct())}
+
+    def entity_history(self, entity_id: str) -> pd.DataFrame:
+        """The runs in which an entity ID appears, with its number of records in each."""
+        t = run_crosswalk_table
+        rows = self._read(select(t.c.run_id, func.count().label("records")).where(t.c.entity_id == entity_id)
+                          .group_by(t.c.run_id).order_by(t.c.run_id))
+        return pd.DataFrame(rows, columns=["run_id", "records"])
+
+
+def input_hashes(workspace: Workspace) -> dict[str, str | None]:
+    """SHA-256 of every source's data file (a database read by URL gets its URL and no hash)."""
+    out: dict[str, str | None] = {}
+    for entry in workspace.sources:
+        path = entry.data_path(workspace.root)
+        if path is None:
+            out[shown_url(str(entry.mapping.read.url))] = None
+        elif path.is_file():
+            out[workspace.display(path)] = file_hash(path)
+    return out
+
+
+@dataclass
+class RunHistory:
+    """What a new run needs from the store: the previous run, its crosswalk, every ID issued so far."""
+
+    store: StateStore | None
+    previous: RunRecord | None
+    previous_crosswalk: pd.DataFrame | None
+    issued: set[str]
+
+    @classmethod
+    def load(cls, workspace: str | Path, *, create: bool = True) -> RunHistory:
+        """Read the history; with ``create=False`` a missing default SQLite file is not created."""
+        store = StateStore.for_workspace(workspace) if create else StateStore.existing(workspace)
+        previous = store.last_run() if store is not None else None
+        crosswalk = store.crosswalk(previous.run_id) if store is not None and previous is not None else None
+        issued = store.issued_ids() if store is not None else set()
+        return cls(store, previous, crosswalk, issued)
+
+    @property
+    def previous_run_id(self) -> int | None:
+        return None if self.previous is None else self.previous.run_id
