@@ -1,0 +1,218 @@
+"""The review queue: which pair a reviewer sees next, and everything shown about it.
+
+The queue holds the last run's possible links (the band between the two thresholds); an audit
+queue holds a random sample of automatic links drawn by ``integrate review --audit``. Possible
+links are ordered so that each decision counts most: priority = uncertainty × log2(1 + reach),
+where uncertainty = 1 − |2p − 1| is 1 at match probability 0.5 and 0 at 0 or 1, and reach is the
+number of records in the group the pair belongs to when links and possible links are joined
+(a decision there can move the most records). Audit items keep their random order, so stopping
+part-way still leaves a random sample.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import networkx as nx
+import numpy as np
+import pandas as pd
+
+from ..compare import GRADE_NAMES
+from ..errors import InputError
+from ..workspace import load_workspace
+from .diff import diff_segments
+from .store import KEY_COLUMNS, DecisionStore, order_pairs, pair_text
+
+POSSIBLE, AUDIT = "possible", "audit"
+Key = tuple[str, str, str, str]
+
+
+@dataclass
+class ReviewData:
+    """What the last run wrote, loaded once for a review session."""
+
+    root: Path
+    pairs: pd.DataFrame  # every candidate pair, ends ordered, indexed by the four key columns
+    queue: pd.DataFrame  # possible links in priority order (key columns, probability, priority, reach)
+    records: pd.DataFrame  # canonical records indexed by (_source, _record_id)
+    fields: dict[str, str]  # canonical field -> type, in schema order
+    as_of: dict[str, str]  # source -> as-of date (ISO 8601)
+    trust: dict[str, int]  # source -> trust rank
+
+    @property
+    def sources(self) -> list[str]:
+        return sorted(self.as_of)
+
+
+def _read_output(path: Path, what: str) -> pd.DataFrame:
+    if not path.exists():
+        raise InputError(f"no {what} from a run", file=str(path), reason="missing_file",
+                         hint="run 'integrate run' on this workspace first")
+    return pd.read_parquet(path)
+
+
+def reach_of(pairs: pd.DataFrame) -> np.ndarray:
+    """Records in the group of each pair when links and possible links are joined."""
+    graph = nx.Graph()
+    a = pairs["source_a"] + "\x1f" + pairs["record_id_a"]
+    b = pairs["source_b"] + "\x1f" + pairs["record_id_b"]
+    graph.add_edges_from(zip(a, b))
+    size: dict[str, int] = {}
+    for members in nx.connected_components(graph):
+        for m in members:
+            size[m] = len(members)
+    return a.map(size).to_numpy(np.int64) if len(a) else np.zeros(0, np.int64)
+
+
+def order_queue(pairs: pd.DataFrame) -> pd.DataFrame:
+    """Possible links with ``uncertainty``, ``reach`` and ``priority``, highest priority first."""
+    joined = pairs[pairs["decision"].isin(["link", "possible link"])].copy()
+    joined["reach"] = reach_of(joined)
+    queue = joined[joined["decision"] == "possible link"].copy()
+    queue["uncertainty"] = 1.0 - (2.0 * queue["probability"] - 1.0).abs()
+    queue["priority"] = queue["uncertainty"] * np.log2(1.0 + queue["reach"])
+    return queue.sort_values(["priority"] + KEY_COLUMNS, ascending=[False] + [True] * 4,
+                             kind="mergesort").reset_index(drop=True)
+
+
+def load_review_data(workspace: str | Path) -> ReviewData:
+    """Load the last run's pairs and records of a workspace for reviewing."""
+    ws = load_workspace(workspace)
+    out = ws.output_dir
+    pairs = order_pairs(_read_output(out / "pairs.parquet", "candidate pairs"))
+    records = _read_output(out / "records.parquet", "canonical records")
+    records = records.astype({"_source": str, "_record_id": str}).set_index(["_source", "_record_id"])
+    fields = {name: f.type for name, f in ws.canonical.fields.items()}
+    as_of = {e.mapping.source: e.mapping.as_of.isoformat() for e in ws.sources}
+    trust = {e.mapping.source: e.mapping.trust for e in ws.sources}
+    queue = order_queue(pairs)
+    return ReviewData(Path(workspace), pairs.set_index(KEY_COLUMNS, drop=False), queue, records, fields,
+                      as_of, trust)
+
+
+def _differs(frame: pd.DataFrame, field: str, ftype: str) -> pd.Series:
+    column = "grade_" + field
+    if column not in frame:
+        return pd.Series(False, index=frame.index)
+    top = GRADE_NAMES[ftype][-1]
+    return ~frame[column].isin([top, "missing"]) & frame[column].notna()
+
+
+def queue_items(data: ReviewData, store: DecisionStore, kind: str = POSSIBLE, *, source: str | None = None,
+                field: str | None = None) -> pd.DataFrame:
+    """The queue as it stands: key columns + ``state`` (open / deferred / decided) in review order."""
+    if kind == AUDIT:
+        sample = store.audit_sample()
+        items = sample[KEY_COLUMNS].merge(data.pairs.reset_index(drop=True), on=KEY_COLUMNS, how="inner")
+    else:
+        items = data.queue
+    if source:
+        items = items[(items["source_a"] == source) | (items["source_b"] == source)]
+    if field:
+        items = items[_differs(items, field, data.fields.get(field, "text")).to_numpy()]
+    decided = store.decided()
+    keys = list(items[KEY_COLUMNS].itertuples(index=False, name=None))
+    states = [decided.get(k) for k in keys]
+    out = items[KEY_COLUMNS + ["probability"]].copy()
+    out["state"] = ["open" if s is None else ("deferred" if s == "defer" else "decided") for s in states]
+    return out.reset_index(drop=True)
+
+
+def next_key(data: ReviewData, store: DecisionStore, reviewer: str, kind: str = POSSIBLE, *,
+             source: str | None = None, field: str | None = None, skip: Key | None = None
+             ) -> tuple[Key | None, dict[str, int]]:
+    """The next pair for this reviewer (claimed for them) and the queue's progress."""
+    items = queue_items(data, store, kind, source=source, field=field)
+    progress = {"total": len(items), "decided": int((items["state"] == "decided").sum()),
+                "deferred": int((items["state"] == "deferred").sum())}
+    progress["remaining"] = progress["total"] - progress["decided"]
+    others = store.claimed_by_others(reviewer)
+    keys = list(items[KEY_COLUMNS].itertuples(index=False, name=None))
+    state = items["state"].to_numpy()
+    chosen: Key | None = None
+    for wanted in ("open", "deferred"):
+        candidates = [k for k, s in zip(keys, state) if s == wanted and k != skip]
+        # first a pair nobody else holds (claiming is atomic, so two reviewers never get the same one)
+        chosen = next((k for k in candidates if pair_text(k) not in others and store.claim(k, reviewer)), None)
+        if chosen is None and candidates:
+            chosen = candidates[0]  # all held by others: show one anyway; the store settles any race
+        if chosen is not None:
+            break
+    return chosen, progress
+
+
+def format_value(value: Any, ftype: str) -> str:
+    """A canonical value as the reviewer reads it ('' when missing)."""
+    if value is None or (not isinstance(value, str) and pd.isna(value)):
+        return ""
+    if isinstance(value, float | np.floating):
+        if ftype == "money":
+            return f"{value:.2f}"
+        return f"{value:.2f}".rstrip("0").rstrip(".")
+    return str(value)
+
+
+def field_weights(row: pd.Series, fields: dict[str, str]) -> dict[str, tuple[float | None, str]]:
+    """Weight (bits) shown per field, with a note when fields were weighed together."""
+    shown: dict[str, tuple[float | None, str]] = {}
+    for column in row.index:
+        if not str(column).startswith("weight_"):
+            continue
+        parts = str(column)[len("weight_"):].split("+")
+        value = float(row[column]) if pd.notna(row[column]) else 0.0
+        for f in parts:  # exact agreement on a rare value adds bits (value-frequency weighting)
+            bonus = row.get("value_frequency_" + f)
+            if bonus is not None and pd.notna(bonus):
+                value += float(bonus)
+        note = "" if len(parts) == 1 else f"{' and '.join(parts)} weighed together"
+        shown[parts[0]] = (value, note)
+        for f in parts[1:]:
+            shown[f] = (None, f"counted with {parts[0]}")
+    return {f: shown.get(f, (None, "")) for f in fields}
+
+
+def item_payload(data: ReviewData, key: Key, kind: str = POSSIBLE) -> dict[str, Any]:
+    """Everything the page (or the terminal) shows about one pair; values are plain text."""
+    row = data.pairs.loc[key]
+    if isinstance(row, pd.DataFrame):
+        row = row.iloc[0]
+    ends = []
+    values = []
+    for source, record_id in ((key[0], key[1]), (key[2], key[3])):
+        ends.append({"source": source, "record_id": record_id, "as_of": data.as_of.get(source, ""),
+                     "trust": data.trust.get(source)})
+        found = (source, record_id) in data.records.index
+        values.append(data.records.loc[(source, record_id)] if found else None)
+    weights = field_weights(row, data.fields)
+    fields = []
+    for name, ftype in data.fields.items():
+        a = format_value(values[0][name], ftype) if values[0] is not None else ""
+        b = format_value(values[1][name], ftype) if values[1] is not None else ""
+        seg_a, seg_b = diff_segments(a, b) if a and b else ([(a, False)], [(b, False)])
+        grade = row.get("grade_" + name)
+        weight, note = weights[name]
+        fields.append({"name": name, "type": ftype, "a": a, "b": b, "a_parts": seg_a, "b_parts": seg_b,
+                       "grade": None if grade is None or pd.isna(grade) else str(grade),
+                       "weight": None if weight is None else round(weight, 2), "weight_note": note,
+                       "compared": grade is not None and not pd.isna(grade)})
+    probability = float(row["probability"])
+    return {
+        "key": dict(zip(KEY_COLUMNS, key)), "id": pair_text(key), "kind": kind,
+        "probability": probability, "weight": float(row["weight"]), "run_decision": str(row["decision"]),
+        "blocking_rules": str(row.get("blocking_rules") or ""), "records": ends, "fields": fields,
+        "uncertainty": round(1.0 - abs(2.0 * probability - 1.0), 4) if math.isfinite(probability) else None,
+    }
+
+
+def scores_snapshot(data: ReviewData, key: Key) -> dict[str, Any]:
+    """The scores at the time of a decision: probability, weight, grades and weights per field."""
+    row = data.pairs.loc[key]
+    if isinstance(row, pd.DataFrame):
+        row = row.iloc[0]
+    scores = {c: (None if pd.isna(row[c]) else (str(row[c]) if c.startswith("grade_") else float(row[c])))
+              for c in row.index if str(c).startswith(("grade_", "weight_", "value_frequency_"))}
+    return {"probability": float(row["probability"]), "weight": float(row["weight"]),
+            "run_decision": str(row["decision"]), "scores": scores}

@@ -1,0 +1,134 @@
+"""The review page in real headless Chromium (Debian's chromium, driven by Playwright)."""
+
+from __future__ import annotations
+
+import os
+import re
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+from integrate.review.queue import load_review_data
+from integrate.review.store import load_decisions
+
+from .conftest import running_server
+
+CHROMIUM = Path("/usr/bin/chromium")
+ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networking", "--disable-component-update",
+        "--disable-sync", "--no-first-run"]
+SCREENSHOT = Path(__file__).resolve().parents[2] / "docs" / "review-page.png"
+
+if not CHROMIUM.exists():
+    if os.environ.get("INTEGRATE_REQUIRE_BROWSER"):  # set by .ci/run: there a missing browser is a failure
+        raise RuntimeError(f"{CHROMIUM} is missing: install the Debian package 'chromium'")
+    pytest.skip("needs the Debian package 'chromium' at /usr/bin/chromium", allow_module_level=True)
+sync_api = pytest.importorskip("playwright.sync_api")
+
+
+@pytest.fixture()
+def browser():  # noqa: ANN201 - a Playwright Browser
+    with sync_api.sync_playwright() as p:
+        chromium = p.chromium.launch(executable_path=str(CHROMIUM), args=ARGS, headless=True)
+        yield chromium
+        chromium.close()
+
+
+def _relative_luminance(rgb: tuple[int, int, int]) -> float:
+    # WCAG 2.1, definition of relative luminance (sRGB)
+    def channel(c: int) -> float:
+        s = c / 255
+        return s / 12.92 if s <= 0.04045 else ((s + 0.055) / 1.055) ** 2.4
+
+    r, g, b = (channel(c) for c in rgb)
+    return 0.2126 * r + 0.7152 * g + 0.0722 * b
+
+
+def _contrast(fg: str, bg: str) -> float:
+    a, b = (_relative_luminance(tuple(int(x) for x in re.findall(r"\d+", c)[:3])) for c in (fg, bg))
+    return (max(a, b) + 0.05) / (min(a, b) + 0.05)
+
+
+def _status(page) -> str:  # noqa: ANN001
+    return page.locator("#status").inner_text()
+
+
+def test_keyboard_review_undo_and_store(reviewed_ws: Path, browser) -> None:  # noqa: ANN001
+    with running_server(reviewed_ws, reviewer="ana") as url:
+        page = browser.new_page(viewport={"width": 1000, "height": 900})
+        page.goto(url)
+        page.wait_for_selector("body[data-ready=yes]")
+        assert re.match(r"0 decided, \d+ remaining", page.locator("#progress-text").inner_text())
+        first = page.locator("#pair").get_attribute("data-item")
+        assert "as of 2026-10-31" in page.locator("#head-a").inner_text()
+        for key in ("S", "D", "L", "U", "N"):
+            assert page.locator("#keys kbd", has_text=key).count() == 1  # the shortcuts are on the page
+        SCREENSHOT.parent.mkdir(exist_ok=True)
+        page.screenshot(path=str(SCREENSHOT), full_page=True)
+
+        page.keyboard.press("n")
+        assert page.evaluate("document.activeElement.id") == "note"
+        page.keyboard.type("same phone, nickname")  # letters typed in the note are not shortcuts
+        page.keyboard.press("Escape")
+        page.keyboard.press("s")
+        sync_api.expect(page.locator("#status")).to_have_text(re.compile("^Saved: same person"))
+        assert page.locator("#pair").get_attribute("data-item") != first
+        stored = load_decisions(reviewed_ws)
+        assert stored[["decision", "reviewer", "note"]].values.tolist() == [["same", "ana", "same phone, nickname"]]
+
+        second = page.locator("#pair").get_attribute("data-item")
+        page.keyboard.press("d")
+        sync_api.expect(page.locator("#status")).to_have_text(re.compile("^Saved: different"))
+        assert sorted(load_decisions(reviewed_ws)["decision"]) == ["different", "same"]
+        assert "2 decided" in page.locator("#progress-text").inner_text()
+
+        page.keyboard.press("u")
+        sync_api.expect(page.locator("#status")).to_have_text(re.compile("^Undone"))
+        assert page.locator("#pair").get_attribute("data-item") == second
+        assert load_decisions(reviewed_ws)["decision"].tolist() == ["same"]
+
+        page.focus("#btn-defer")  # buttons work from the keyboard too
+        page.keyboard.press("Enter")
+        sync_api.expect(page.locator("#status")).to_have_text(re.compile("^Saved: decide later"))
+        assert sorted(load_decisions(reviewed_ws)["decision"]) == ["defer", "same"]
+
+        # readable: WCAG 2.1 SC 1.4.3 asks for a contrast of at least 4.5:1 for text
+        for selector in ("body", "#btn-same", "#btn-different", "#btn-defer", "#btn-undo", ".note"):
+            colours = page.eval_on_selector(selector, """e => { const s = getComputedStyle(e);
+                let b = s.backgroundColor, n = e;
+                while (b === 'rgba(0, 0, 0, 0)' && n.parentElement) {
+                    n = n.parentElement; b = getComputedStyle(n).backgroundColor; }
+                return [s.color, b === 'rgba(0, 0, 0, 0)' ? 'rgb(255, 255, 255)' : b]; }""")
+            assert _contrast(*colours) >= 4.5, (selector, colours)
+
+        # 200 % zoom: a 1000 px window shows 500 CSS pixels; nothing may need sideways scrolling
+        page.set_viewport_size({"width": 500, "height": 450})
+        assert page.evaluate("document.documentElement.scrollWidth <= window.innerWidth + 1")
+        page.keyboard.press("s")
+        sync_api.expect(page.locator("#status")).to_have_text(re.compile("^Saved: same person"))
+        assert len(load_decisions(reviewed_ws)) == 3
+        page.close()
+
+
+def test_hostile_values_render_as_text(reviewed_ws: Path, browser) -> None:  # noqa: ANN001
+    data = load_review_data(reviewed_ws)
+    top = data.queue.iloc[0]
+    records_path = reviewed_ws / "out" / "records.parquet"
+    records = pd.read_parquet(records_path)
+    hostile = {"given_name": "<script>window.__pwned = 1</script>",
+               "family_name": '<img src=x onerror="window.__pwned = 2">'}
+    target = (records["_source"] == top["source_a"]) & (records["_record_id"] == top["record_id_a"])
+    assert target.sum() == 1
+    for column, value in hostile.items():
+        records.loc[target, column] = value
+    records.to_parquet(records_path, index=False)
+    with running_server(reviewed_ws) as url:
+        page = browser.new_page()
+        page.goto(url)
+        page.wait_for_selector("body[data-ready=yes]")
+        for column, value in hostile.items():
+            row = page.locator("#fields tbody tr", has=page.locator("th", has_text=column))
+            assert row.locator("td.value").first.inner_text() == value
+        assert page.locator("#fields img, #fields script").count() == 0
+        assert page.evaluate("window.__pwned") is None
+        page.close()

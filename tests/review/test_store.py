@@ -1,0 +1,117 @@
+"""The decision store on a real SQLite file: conflicts, replacing, undo, history, load_decisions."""
+
+from __future__ import annotations
+
+import threading
+from pathlib import Path
+
+import pytest
+
+from integrate.review.store import (
+    DECISION_COLUMNS,
+    DecisionConflict,
+    DecisionStore,
+    NewDecision,
+    NothingToUndo,
+    load_decisions,
+    state_database,
+)
+
+
+def _decision(decision: str, reviewer: str, a: str = "1", b: str = "2", **extra: object) -> NewDecision:
+    return NewDecision(source_a="shop", record_id_a=a, source_b="club", record_id_b=b, decision=decision,
+                       reviewer=reviewer, **extra)
+
+
+def test_a_decision_is_stored_with_its_scores_and_note(tmp_path: Path) -> None:
+    store = DecisionStore.for_workspace(tmp_path)
+    row = store.record(_decision("same", "ana", note="same birthday and e-mail", probability=0.51, weight=3.2,
+                                 run_decision="possible link", scores={"grade_email": "exact"}))
+    assert state_database(tmp_path).exists()
+    frame = load_decisions(tmp_path)
+    assert list(frame.columns) == DECISION_COLUMNS
+    assert frame.iloc[0].to_dict() | {"decided_at": None} == {
+        # the ends are stored in a fixed order: (club, 2) sorts before (shop, 1)
+        "source_a": "club", "record_id_a": "2", "source_b": "shop", "record_id_b": "1", "decision": "same",
+        "reviewer": "ana", "decided_at": None, "note": "same birthday and e-mail"}
+    assert frame.iloc[0]["decided_at"].endswith("Z")
+    full = store.decisions().iloc[0]
+    assert (full["probability"], full["weight"], full["run_decision"]) == (0.51, 3.2, "possible link")
+    assert '"grade_email": "exact"' in full["scores"]
+    assert row["revision"] == 1
+
+
+def test_another_reviewers_decision_is_a_conflict_not_an_overwrite(tmp_path: Path) -> None:
+    store = DecisionStore.for_workspace(tmp_path)
+    store.record(_decision("same", "ana"))
+    with pytest.raises(DecisionConflict) as caught:
+        store.record(_decision("different", "bo"))
+    assert caught.value.existing["reviewer"] == "ana"
+    assert caught.value.existing["decision"] == "same"
+    assert load_decisions(tmp_path)["decision"].tolist() == ["same"]
+
+
+def test_own_decision_and_anyones_deferral_can_be_replaced(tmp_path: Path) -> None:
+    store = DecisionStore.for_workspace(tmp_path)
+    store.record(_decision("defer", "ana"))
+    row = store.record(_decision("different", "bo"))  # a deferral decides nothing: bo may decide
+    assert (row["decision"], row["reviewer"], row["revision"]) == ("different", "bo", 2)
+    row = store.record(_decision("same", "bo", note="second look"))  # bo changes their mind
+    assert (row["decision"], row["revision"]) == ("same", 3)
+    assert len(load_decisions(tmp_path)) == 1
+    assert store.history()["action"].tolist() == ["decide", "replace", "replace"]
+
+
+def test_undo_removes_only_the_reviewers_own_decision(tmp_path: Path) -> None:
+    store = DecisionStore.for_workspace(tmp_path)
+    mine = store.record(_decision("same", "ana"))
+    with pytest.raises(DecisionConflict):
+        store.undo(mine["id"], "bo")
+    store.undo(mine["id"], "ana")
+    assert load_decisions(tmp_path).empty
+    with pytest.raises(NothingToUndo):
+        store.undo(mine["id"], "ana")
+    assert store.history()["action"].tolist() == ["decide", "undo"]  # the undone decision stays in the history
+
+
+def test_no_database_means_no_decisions(tmp_path: Path) -> None:
+    frame = load_decisions(tmp_path / "nowhere")
+    assert frame.empty and list(frame.columns) == DECISION_COLUMNS
+    assert not (tmp_path / "nowhere").exists()  # reading never creates a database
+
+
+def test_bad_decision_values_are_refused(tmp_path: Path) -> None:
+    from pydantic import ValidationError
+
+    with pytest.raises(ValidationError, match="decision"):
+        _decision("maybe", "ana")
+    with pytest.raises(ValidationError, match="reviewer"):
+        _decision("same", "")
+
+
+def test_many_threads_deciding_the_same_pairs_store_each_pair_once(tmp_path: Path) -> None:
+    """Eight reviewers race over the same 40 pairs: every pair ends with exactly one decision."""
+    store = DecisionStore.for_workspace(tmp_path)
+    outcomes: dict[str, list[str]] = {f"r{k}": [] for k in range(8)}
+    barrier = threading.Barrier(8)
+
+    def work(name: str) -> None:
+        barrier.wait()
+        for pair in range(40):
+            try:
+                store.record(_decision("same" if pair % 2 else "different", name, a=str(pair), b=str(pair)))
+                outcomes[name].append("stored")
+            except DecisionConflict:
+                outcomes[name].append("conflict")
+
+    threads = [threading.Thread(target=work, args=(name,)) for name in outcomes]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    frame = load_decisions(tmp_path)
+    assert len(frame) == 40 and not frame.duplicated(["source_a", "record_id_a", "source_b", "record_id_b"]).any()
+    stored = sum(o.count("stored") for o in outcomes.values())
+    conflicts = sum(o.count("conflict") for o in outcomes.values())
+    assert stored == 40 and conflicts == 7 * 40
+    assert (store.history()["action"] == "decide").sum() == 40
