@@ -2,9 +2,10 @@
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Collection
 from dataclasses import dataclass
 
+import numpy as np
 import pandas as pd
 
 from .block import BlockingReport, block, default_rules
@@ -33,8 +34,15 @@ def _quiet(_: str) -> None:
 
 def match_records(records: pd.DataFrame, canonical: CanonicalSchema, *,
                   regions: dict[str, str | None] | None = None, across_sources_only: bool = False,
-                  progress: Progress = _quiet) -> MatchResult:
-    """Find and cluster duplicates among canonical records (positions 0..n-1)."""
+                  progress: Progress = _quiet, must_link: np.ndarray | None = None,
+                  cannot_link: np.ndarray | None = None, estimator: Callable[..., ScoreModel] | None = None,
+                  one_per_person: Collection[str] = ()) -> MatchResult:
+    """Find and cluster duplicates among canonical records (positions 0..n-1).
+
+    ``must_link`` / ``cannot_link`` are (k, 2) arrays of record positions that reviewers decided
+    are the same / different people; ``estimator`` replaces the scorer's EM (see ``score``);
+    ``one_per_person`` names sources that hold at most one record per person (see ``cluster``).
+    """
     records = records.reset_index(drop=True)
     progress("standardise")
     prepared = standardise(records, canonical, regions)
@@ -47,9 +55,10 @@ def match_records(records: pd.DataFrame, canonical: CanonicalSchema, *,
     progress("compare")
     grades = compare(prepared, pairs, canonical)
     progress("score")
-    scored, model = score(prepared, pairs, canonical, groups=group_codes, grades=grades)
+    scored, model = score(prepared, pairs, canonical, groups=group_codes, grades=grades, estimator=estimator)
     progress("cluster")
-    entities, splits = cluster(records, scored)
+    entities, splits = cluster(records, scored, must_link=must_link, cannot_link=cannot_link,
+                               one_per_person=one_per_person)
     return MatchResult(prepared, scored, entities, blocking, model, splits)
 
 

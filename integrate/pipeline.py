@@ -12,20 +12,27 @@ import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import pandas as pd
 
 from .block import BlockingReport
+from .cluster import Split, cluster_table, splits_frame
 from .columns import RECORD_ID, SOURCE
 from .compare import grade_name
 from .errors import InputError, InputErrors
+from .ids import ChangeSummary, assign_stable_ids, canonical_order, record_hashes
 from .mapping.apply import FAILURE_COLUMNS, MappedSource, apply_mapping
 from .mapping.money import RatesTable, load_rates
 from .matching import MatchResult, match_records
-from .resolve import resolve
+from .resolve import check_orders, resolve, source_pair_conflicts
 from .score import ScoreModel
 from .sources import read_source
+from .state import NewRun, RunHistory, input_hashes
 from .workspace import Workspace, load_workspace
+
+if TYPE_CHECKING:
+    from .review.apply import ReviewSummary
 
 log = logging.getLogger(__name__)
 
@@ -55,6 +62,13 @@ class RunResult:
     output_dir: Path | None = None
     report_path: Path | None = None
     warnings: list[str] = field(default_factory=list)
+    review: ReviewSummary | None = None  # decisions applied, model re-estimated, audit precision
+    splits: list[Split] = field(default_factory=list)  # cuts clustering made (constraints, chaining guard)
+    clusters: pd.DataFrame | None = None  # one row per entity: records, sources, weakest link, ...
+    changes: ChangeSummary | None = None  # against the previous run in the state store
+    entity_changes: pd.DataFrame | None = None  # per entity that is not unchanged: what changed
+    conflict_pairs: pd.DataFrame | None = None  # entities with conflicting values, per field and source pair
+    run_id: int | None = None  # the run's number in the state store (when written)
 
 
 def _quiet(_: str) -> None:
@@ -80,7 +94,8 @@ def read_and_map(ws: Workspace, progress: Progress = _quiet) -> tuple[pd.DataFra
         try:
             raw = read_source(mapping.read, ws.root, name=mapping.source)
             mapped.append(apply_mapping(raw, mapping, ws.canonical, rates, data_file=data_file,
-                                        mapping_file=ws.display(entry.mapping_file)))
+                                        mapping_file=ws.display(entry.mapping_file),
+                                        mapping_path=entry.mapping_file))
         except InputErrors as many:
             problems.extend(many.errors)
         except InputError as one:
@@ -156,14 +171,35 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
         clock[0], clock[1] = now, stage
         progress(stage)
 
+    check_orders(ws.canonical, [e.mapping.source for e in ws.sources], ws.display(ws.canonical_file))
+    inputs = input_hashes(ws) if write else {}
     records, mapped = read_and_map(ws, tick)
+    records = canonical_order(records)  # nothing downstream may depend on the order of rows in the files
     regions = {e.mapping.source: e.mapping.region for e in ws.sources}
-    match = match_records(records, ws.canonical, regions=regions, progress=tick)
+    # reviewers' decisions (state store) are applied on every run, whatever the scores say
+    from .review.apply import decision_constraints, summarise_review
+
+    decided = decision_constraints(ws.root, records)
+    match = match_records(records, ws.canonical, regions=regions, progress=tick, must_link=decided.must_link,
+                          cannot_link=decided.cannot_link, estimator=decided.estimator,
+                          one_per_person=[e.mapping.source for e in ws.sources if e.mapping.one_per_person])
+    # stable IDs: each cluster keeps the previous run's ID of the entity it shares most records with
+    history = RunHistory.load(ws.root, create=write)
+    current = pd.DataFrame({"source": records[SOURCE].astype(str).to_numpy(),
+                            "record_id": records[RECORD_ID].astype(str).to_numpy(),
+                            "cluster": match.entities["entity_id"].to_numpy(),
+                            "record_hash": record_hashes(records, list(ws.canonical.fields))})
+    stable, changes, entity_changes = assign_stable_ids(current, history.previous_crosswalk, history.issued,
+                                                        history.previous_run_id)
+    match.entities["entity_id"] = stable.to_numpy()
     tick("resolve")
     merged, provenance = resolve(records, match.entities["entity_id"], ws.canonical, match.prepared)
+    conflict_pairs = source_pair_conflicts(records, match.entities["entity_id"], ws.canonical, match.prepared)
     crosswalk = crosswalk_frame(records, match)
     types = {c[2:]: ws.canonical.fields[c[2:]].type for c in match.pairs.columns if c.startswith("g_")}
     pairs = pairs_frame(records, match, types)
+    thresholds = {"link": ws.canonical.thresholds.link, "review": ws.canonical.thresholds.review}
+    review = summarise_review(ws.root, decided, match.pairs, thresholds, types)
     failures = pd.concat([m.failures for m in mapped], ignore_index=True) if mapped else pd.DataFrame(
         columns=FAILURE_COLUMNS)
     result = RunResult(
@@ -172,7 +208,9 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
         source_counts={m.name: len(m.frame) for m in mapped},
         unmapped={m.name: m.unmapped_columns for m in mapped if m.unmapped_columns},
         mapping_hashes=ws.mapping_hashes(), timings=timings, started=started,
-        warnings=list(match.model.warnings),
+        warnings=list(match.model.warnings), review=review, splits=match.splits,
+        clusters=cluster_table(match.entities, records), changes=changes, entity_changes=entity_changes,
+        conflict_pairs=conflict_pairs,
     )
     for name, columns in result.unmapped.items():
         result.warnings.append(f"source '{name}': columns not mentioned in its mapping: {', '.join(columns)}")
@@ -187,9 +225,19 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
             "crosswalk": (crosswalk, ("csv", "parquet")),
             "provenance": (provenance, ("csv", "parquet")),
             "pairs": (pairs, ("parquet",)),
+            "records": (records, ("parquet",)),  # canonical records, for the review page
+            "clusters": (result.clusters, ("csv", "parquet")),
+            "splits": (splits_frame(match.splits, records), ("csv",)),
+            "changes": (entity_changes, ("csv",)),
             "failures": (failures.astype({c: "string" for c in failures.columns}), ("csv",)),
         })
         result.output_dir = out_dir
         result.report_path = write_report(result, ws)
+        if history.store is not None:
+            result.run_id = history.store.record_run(NewRun(
+                started_at=started.isoformat().replace("+00:00", "Z"), mapping_hashes=result.mapping_hashes,
+                crosswalk=current.assign(entity_id=stable.to_numpy()).drop(columns="cluster"),
+                input_hashes=inputs, summary=changes.as_dict(), changes=entity_changes,
+                output_dir=str(out_dir.resolve()), report=str(result.report_path.resolve())))
     tick("done")
     return result

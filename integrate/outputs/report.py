@@ -14,6 +14,7 @@ from .tables import write_text_atomic
 
 if TYPE_CHECKING:
     from ..pipeline import RunResult
+    from ..review.apply import ReviewSummary
     from ..workspace import Workspace
 
 CAUTIONS = [
@@ -84,6 +85,130 @@ def _histogram(values: np.ndarray, bins: int = 30) -> tuple[list[str], list[floa
     return [f"{e:.0f}" for e in edges[:-1]], counts.astype(float).tolist()
 
 
+def _review_section(review: ReviewSummary) -> str:
+    """Decisions applied, the model re-estimated with them, and the audited precision of auto-links."""
+    parts = ["<h2>Review decisions</h2>",
+             f"<p>Applied on this run: {review.same} <em>same</em> (kept together), {review.different} "
+             f"<em>different</em> (kept apart); {review.deferred} put off; {review.not_applied} not applied "
+             f"because a record no longer exists.</p>"]
+    if review.relearned and review.comparison is not None:
+        table = review.comparison.copy()
+        for column in ("precision (estimated)", "recall (estimated)"):
+            table[column] = table[column].map(lambda v: f"{v:.4f}")
+        parts.append(f"<p>The Fellegi–Sunter parameters were re-estimated with {review.labelled_same} <em>same</em> "
+                     f"and {review.labelled_different} <em>different</em> decisions on candidate pairs. Estimated "
+                     "precision and recall at the thresholds (from the match probabilities):</p>")
+        parts.append(_table(table[["threshold", "at", "model", "pairs at or above", "precision (estimated)",
+                                   "recall (estimated)"]], ("at", "pairs at or above", "precision (estimated)",
+                                                            "recall (estimated)")))
+    else:
+        parts.append(f"<p>The model is re-estimated with decisions once there are at least {review.min_each} of "
+                     "each kind (<em>same</em>, <em>different</em>) on candidate pairs.</p>")
+    audit = review.audit
+    if audit is not None:
+        parts.append(f"<p>Precision of automatic links, from a random sample checked by reviewers: "
+                     f"{audit.correct} of {audit.checked} correct ({audit.precision:.1%}); 95% Wilson score "
+                     f"interval {audit.low:.1%} to {audit.high:.1%} (sample size {audit.checked}; {audit.drawn} "
+                     f"drawn).</p>")
+    else:
+        parts.append("<p>No audit of automatic links yet: <code>integrate review --audit 50</code> draws a "
+                     "random sample to check, from which the precision of the links is estimated.</p>")
+    return "".join(parts)
+
+
+CHANGE_LABELS = {  # change-summary fields as the report words them
+    "created": "entities created (no record seen before)",
+    "merged": "entities formed by merging earlier entities",
+    "split": "earlier entities split",
+    "split_parts": "entities that are parts of a split",
+    "unchanged": "entities unchanged (same records, same ID)",
+    "changed": "entities kept with records added or removed",
+    "retired": "earlier entities whose records all left",
+    "ids_kept": "entity IDs kept",
+    "ids_minted": "entity IDs newly issued",
+    "records_added": "records added",
+    "records_removed": "records removed",
+    "records_moved": "records moved to another entity",
+    "records_changed": "records whose values changed",
+}
+
+
+def _clusters_section(result: RunResult) -> str:
+    """Cuts made by constraints and the chaining guard, and the clusters that deserve a look first."""
+    from ..cluster import CHAINING_GUARD, CONTRADICTION, DIFFERENT_BELOW, SPLIT_REASONS
+
+    parts = ["<h3>Cuts and constraints</h3>"]
+    splits = [sp for sp in result.splits if sp.reason in SPLIT_REASONS]
+    counts = {reason: sum(1 for sp in splits if sp.reason == reason) for reason in SPLIT_REASONS}
+    touched = len({sp.component for sp in splits if sp.reason == CHAINING_GUARD})
+    parts.append(
+        f"<p>A cluster may not hold two records that must be kept apart: a <em>different</em> decision, two "
+        f"records of a source declared one record per person, or (the chaining guard) two records compared "
+        f"directly with a match probability below {DIFFERENT_BELOW:g}. Such a cluster is cut between them "
+        f"along its weakest links (minimum cut). Cuts: {counts[SPLIT_REASONS[0]]} for different decisions, "
+        f"{counts[SPLIT_REASONS[1]]} for one record per person, {counts[CHAINING_GUARD]} by the chaining "
+        f"guard, which touched {touched} clusters.</p>")
+    keys = (result.records["_source"].astype(str) + ":" + result.records["_record_id"].astype(str)).to_numpy()
+    listed = splits + [sp for sp in result.splits if sp.reason == CONTRADICTION]
+    if listed:
+        table = pd.DataFrame([{
+            "why": sp.reason + (f" ({sp.detail})" if sp.detail else ""),
+            "kept apart": f"{keys[sp.kept_apart[0]]} / {keys[sp.kept_apart[1]]}",
+            "their probability": "" if sp.probability is None else f"{sp.probability:.3g}",
+            "links cut": sp.links_cut, "weight cut": f"{sp.cut_weight:.3f}"} for sp in listed[:200]])
+        parts.append(_table(table, ("their probability", "links cut", "weight cut")))
+        if len(listed) > 200:
+            parts.append(f"<p>... and {len(listed) - 200} more; all of them are in <code>splits.csv</code>.</p>")
+    if result.clusters is not None and len(result.clusters):
+        several = result.clusters[result.clusters["records"] > 1].head(15)
+        parts.append("<h3>Clusters held together most weakly</h3><p>Weakest link = the smallest match "
+                     "probability on the strongest tree of links holding the cluster together. The full list, "
+                     "to sort as you like, is in <code>clusters.csv</code>.</p>")
+        parts.append(_table(several, ("records", "sources", "weakest_link", "lowest_pair_probability",
+                                      "possible_links_inside")))
+    return "".join(parts)
+
+
+def _changes_section(result: RunResult) -> str:
+    changes = result.changes
+    if changes is None:
+        return ""
+    if changes.previous_run is None:
+        return (f"<h2>Changes since the previous run</h2><p>First run recorded in the state store: "
+                f"{changes.created} entities, all with new IDs.</p>")
+    values = changes.as_dict()
+    table = pd.DataFrame({"what": list(CHANGE_LABELS.values()), "count": [values[k] for k in CHANGE_LABELS]})
+    return (f"<h2>Changes since the previous run</h2><p>Compared with run {changes.previous_run}. Each entity "
+            "keeps the ID of the earlier entity it shares most records with; "
+            "<code>changes.csv</code> lists every entity that is not unchanged, and "
+            "<code>integrate changes</code> prints this summary.</p>" + _table(table, ("count",)))
+
+
+def _source_pair_section(result: RunResult) -> str:
+    pairs = result.conflict_pairs
+    if pairs is None or pairs.empty:
+        return ""
+    return ("<h3>Conflicts per source pair</h3><p>Entities where a value from one source differs from a value "
+            "from the other, after standardisation (a source paired with itself: its own duplicates "
+            "disagree).</p>" + _table(pairs.head(60), ("entities",)))
+
+
+def _meanings_section(result: RunResult, ws: Workspace) -> str:
+    """Which columns of which sources feed each field (with their notes), and numbers that look mislabelled."""
+    from ..mapping.checks import run_value_findings
+    from ..mapping.meanings import field_meanings
+
+    meanings = field_meanings(ws.canonical, [e.mapping for e in ws.sources])
+    table = meanings.assign(source=meanings["source"].replace("", "(no source feeds it)"))
+    parts = ["<h3>Meanings: what feeds each field</h3>",
+             _table(table[["field", "meaning", "source", "column", "how", "note"]])]
+    findings = run_value_findings(result.records, ws, result.crosswalk)
+    if findings:
+        parts.append("<h3>Numbers to look at</h3><ul>"
+                     + "".join(f"<li class='warn'>{_e(f)}</li>" for f in findings) + "</ul>")
+    return "".join(parts)
+
+
 def render_report(result: RunResult, ws: Workspace | None = None) -> str:
     s: list[str] = []
     add = s.append
@@ -146,6 +271,13 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
     conflicts = result.provenance.groupby("field")["conflict"].sum().astype(int)
     conflict_table = conflicts.rename_axis("field").reset_index(name="entities with conflicting values")
     add("<h3>Conflicts per field</h3>" + _table(conflict_table, ("entities with conflicting values",)))
+    add(_source_pair_section(result))
+    add(_clusters_section(result))
+    add(_changes_section(result))
+
+    review = getattr(result, "review", None)
+    if review is not None:
+        add(_review_section(review))
 
     add("<h2>Mapping files used</h2>")
     hashes = pd.DataFrame({"file": list(result.mapping_hashes), "sha256": list(result.mapping_hashes.values())})
@@ -154,6 +286,7 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
         fields = pd.DataFrame([{"field": n, "type": f.type, "meaning": f.meaning, "resolution rule": f.resolve}
                                for n, f in ws.canonical.fields.items()])
         add("<h3>Canonical fields</h3>" + _table(fields))
+        add(_meanings_section(result, ws))
     timing = pd.DataFrame({"stage": list(result.timings), "seconds": [f"{v:.2f}" for v in result.timings.values()]})
     add("<h2>Timings</h2>" + _table(timing, ("seconds",)))
     add("</body></html>")
