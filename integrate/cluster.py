@@ -259,9 +259,15 @@ def _entity_frame(records: pd.DataFrame, scored: pd.DataFrame, comp: _Components
                   cut_by: np.ndarray) -> pd.DataFrame:
     """Entity IDs and per-cluster figures, repeated on every member record."""
     n = len(records)
-    keys = record_keys(records)
-    ids = pd.Series(keys).groupby(label).min().map(lambda k: entity_id_for([k]))
-    sizes = np.bincount(label, minlength=label.max() + 1 if n else 0)
+    keys = np.asarray(record_keys(records), dtype=object)
+    clusters = label.max() + 1 if n else 0
+    # each cluster's smallest record key, found through the records' key ranks (no string min)
+    first_rank = np.full(clusters, n, np.int64)
+    np.minimum.at(first_rank, label, comp.rank)
+    by_rank = np.empty(n, np.int64)
+    by_rank[comp.rank] = np.arange(n)
+    ids = pd.Series([entity_id_for([k]) for k in keys[by_rank[first_rank]]] if n else [], dtype=object)
+    sizes = np.bincount(label, minlength=clusters)
     i, j = scored["i"].to_numpy(np.int64), scored["j"].to_numpy(np.int64)
     inside = label[i] == label[j] if len(scored) else np.zeros(0, bool)
     prob = scored["probability"].to_numpy(float)
@@ -274,7 +280,6 @@ def _entity_frame(records: pd.DataFrame, scored: pd.DataFrame, comp: _Components
         strength[best.index.to_numpy()] = best.to_numpy()
     # the weakest link a cluster hangs by: smallest edge of its maximum spanning tree
     kept = nx.Graph()
-    kept.add_nodes_from(comp.graph.nodes)
     kept.add_edges_from((a, b, {"p": d.get("capacity", 1.0)}) for a, b, d in comp.graph.edges(data=True)
                         if label[a] == label[b])
     tree = [(a, p) for a, _, p in nx.maximum_spanning_tree(kept, weight="p").edges(data="p")]

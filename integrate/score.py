@@ -21,6 +21,7 @@ from .compare import GRADE_NAMES, MISSING, NAME_PAIR, compare, name_pair_grades
 from .mapping.spec import CanonicalSchema, Thresholds
 
 LINK, POSSIBLE, NON_LINK = "link", "possible link", "non-link"
+LABEL_SAME, LABEL_DIFFERENT = 1, 2  # codes of reviewed pairs passed to estimate (0: undecided)
 RANDOM_PAIRS = 100_000  # random record pairs drawn to estimate u (seeded)
 EM_MAX_ITER = 500
 EM_TOLERANCE = 1e-8  # relative change of the log-likelihood that ends EM
@@ -200,7 +201,8 @@ def model_grades(grades: pd.DataFrame, types: dict[str, str]) -> tuple[pd.DataFr
 
 
 def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np.ndarray],
-             background: pd.DataFrame | None = None, background_weight: float = 0.0) -> ScoreModel:
+             background: pd.DataFrame | None = None, background_weight: float = 0.0, *,
+             labels: np.ndarray | None = None, start: ScoreModel | None = None) -> ScoreModel:
     """EM for the class profiles and shares over the distinct grade patterns of all record pairs.
 
     A latent-class mixture (Winkler's EM generalised to more than two classes): each class has
@@ -208,22 +210,37 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
     did not propose are represented by a random sample (``background``), each standing for
     ``background_weight`` pairs; without it the model describes the candidate pairs alone, whose
     non-matches agree far more often than random pairs because blocking chose them for it.
+
+    Args:
+        labels: per candidate pair 0 (undecided), ``LABEL_SAME`` or ``LABEL_DIFFERENT``: decided
+            pairs are held to their decision (EM with partly classified data).
+        start: a fitted model whose profiles and shares start EM (default: the sensible guesses).
     """
     names = list(grades.columns)
-    frames = [grades.assign(_w=1.0)]
+    marks = np.zeros(len(grades), np.int8) if labels is None else np.asarray(labels, np.int8)
+    frames = [grades.assign(_w=1.0, _label=marks)]
     if background is not None and len(background) and background_weight > 0:
-        frames.append(background[names].assign(_w=background_weight))
+        frames.append(background[names].assign(_w=background_weight, _label=np.int8(0)))
     stacked = pd.concat(frames, ignore_index=True)
-    patterns = stacked.groupby(names, sort=False)["_w"].sum().reset_index()
+    patterns = stacked.groupby(names + ["_label"], sort=False)["_w"].sum().reset_index()
     counts = patterns["_w"].to_numpy(float)
     G = patterns[names].to_numpy(np.int64)
+    label = patterns["_label"].to_numpy()
     theta, shares, free = _initial_classes(types, u_random)
-    if background is not None and background_weight > 0:
+    if start is not None:
+        theta = {k: {f: v.copy() for f, v in profile.items()} for k, profile in start._theta.items()}
+        shares = dict(start.class_shares)
+    elif background is not None and background_weight > 0:
         # matches and relatives are a small share of all pairs: start them near the candidate count
         base = min(0.5, 0.3 * len(grades) / counts.sum())
         shares = {k: (base if k != UNRELATED else 1.0) for k in shares}
         shares[UNRELATED] = 1.0 - base * (len(shares) - 1)
     classes = list(theta)
+    # a decided pair can only belong to the classes its decision allows
+    allowed = np.ones((len(classes), len(G)), dtype=bool)
+    allowed[:, label == LABEL_SAME] = False
+    allowed[classes.index(MATCH), label == LABEL_SAME] = True
+    allowed[classes.index(MATCH), label == LABEL_DIFFERENT] = False
     converged = False
     previous = -np.inf
     iteration = 0
@@ -235,6 +252,7 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
                 g = G[:, col]
                 present = g != MISSING
                 log_f[c, present] += np.log(theta[k][f][g[present]])
+        log_f = np.where(allowed, log_f, -np.inf)
         log_total = np.logaddexp.reduce(log_f, axis=0)
         post = np.exp(log_f - log_total)
         likelihood = float((counts * log_total).sum())
@@ -244,15 +262,13 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
         previous = likelihood
         for c, k in enumerate(classes):
             w = counts * post[c]
-            new_share = float(np.clip(w.sum() / counts.sum(), 1e-9, 1 - 1e-9))
-            shares[k] = new_share
+            shares[k] = float(np.clip(w.sum() / counts.sum(), 1e-9, 1 - 1e-9))
             for col, f in enumerate(names):
                 if f not in free[k]:
                     continue
                 g = G[:, col]
                 present = g != MISSING
-                levels = _levels(types[f])
-                new = np.bincount(g[present], weights=w[present], minlength=levels) + PSEUDO_COUNT
+                new = np.bincount(g[present], weights=w[present], minlength=_levels(types[f])) + PSEUDO_COUNT
                 if k == RELATED and types[f] == NAME_PAIR:
                     new = _relatives_names(new, u_random[f])
                 theta[k][f] = new / new.sum()

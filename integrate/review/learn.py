@@ -5,24 +5,21 @@ with every decided pair held to its decision: a ``same`` pair belongs to the mat
 probability 1, a ``different`` pair to the non-match classes (shared among them as EM sees fit).
 The undecided pairs are estimated as before. This is EM with partly classified data: the
 decisions anchor the classes where unsupervised EM is least sure, and the m/u estimates follow.
-The M-step is score.estimate's, step for step (keep the two in step);
+The EM is score.estimate's (its ``labels`` argument);
 EM starts from the model fitted without decisions, so the two are directly comparable; the run
 report shows both models' precision and recall estimates at the two thresholds.
 """
 
 from __future__ import annotations
 
-import copy
-
 import numpy as np
 import pandas as pd
 
 from .. import score as fs
-from ..compare import MISSING, NAME_PAIR
-from ..score import MATCH, FieldModel, ScoreModel, model_grades
+from ..score import ScoreModel, model_grades
 
 MIN_EACH = 50  # decisions of each kind (same, different) needed before they re-estimate the model
-SAME, DIFFERENT = 1, 2  # label codes for decided pairs (0: undecided)
+SAME, DIFFERENT = fs.LABEL_SAME, fs.LABEL_DIFFERENT  # label codes for decided pairs (0: undecided)
 
 
 def estimate_with_labels(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np.ndarray],
@@ -37,65 +34,7 @@ def estimate_with_labels(grades: pd.DataFrame, types: dict[str, str], u_random: 
         background, background_weight: the random record pairs standing for the pairs blocking
             did not propose, as in ``score.estimate``.
     """
-    names = list(grades.columns)
-    frames = [grades.assign(_w=1.0, _label=np.asarray(labels, np.int8))]
-    if background is not None and len(background) and background_weight > 0:
-        frames.append(background[names].assign(_w=background_weight, _label=np.int8(0)))
-    patterns = pd.concat(frames, ignore_index=True).groupby(names + ["_label"], sort=False)["_w"].sum().reset_index()
-    counts = patterns["_w"].to_numpy(float)
-    label = patterns["_label"].to_numpy()
-    G = patterns[names].to_numpy(np.int64)
-    _, _, free = fs._initial_classes(types, u_random)
-    relatives_names = getattr(fs, "_relatives_names", None)
-    theta = copy.deepcopy(start._theta)
-    shares = dict(start.class_shares)
-    classes = list(theta)
-    match_row = classes.index(MATCH)
-    same, different = label == SAME, label == DIFFERENT
-    converged, previous, iteration = False, -np.inf, 0
-    for iteration in range(1, fs.EM_MAX_ITER + 1):  # noqa: B007 - the count is reported
-        log_f = np.zeros((len(classes), len(G)))
-        for c, k in enumerate(classes):
-            log_f[c] += np.log(shares[k])
-            for col, f in enumerate(names):
-                g = G[:, col]
-                present = g != MISSING
-                log_f[c, present] += np.log(theta[k][f][g[present]])
-        # a decided pair can only be in the classes its decision allows
-        allowed = np.ones_like(log_f, dtype=bool)
-        allowed[:, same] = False
-        allowed[match_row, same] = True
-        allowed[match_row, different] = False
-        log_f = np.where(allowed, log_f, -np.inf)
-        log_total = np.logaddexp.reduce(log_f, axis=0)
-        post = np.exp(log_f - log_total)
-        likelihood = float((counts * log_total).sum())
-        if abs(likelihood - previous) <= fs.EM_TOLERANCE * abs(likelihood):
-            converged = True
-            break
-        previous = likelihood
-        for c, k in enumerate(classes):
-            w = counts * post[c]
-            shares[k] = float(np.clip(w.sum() / counts.sum(), 1e-9, 1 - 1e-9))
-            for col, f in enumerate(names):
-                if f not in free[k]:
-                    continue
-                g = G[:, col]
-                present = g != MISSING
-                new = np.bincount(g[present], weights=w[present], minlength=len(theta[k][f])) + fs.PSEUDO_COUNT
-                if k == fs.RELATED and types[f] == NAME_PAIR and relatives_names is not None:
-                    new = relatives_names(new, u_random[f])  # the same M-step as score.estimate
-                theta[k][f] = new / new.sum()
-    non = [k for k in classes if k != MATCH]
-    total_non = sum(shares[k] for k in non)
-    fields = {}
-    for f in names:
-        u = sum(shares[k] * theta[k][f] for k in non) / total_non
-        related = theta[fs.RELATED][f].tolist() if fs.RELATED in theta else None
-        fields[f] = FieldModel(f, types[f], theta[MATCH][f].tolist(), u.tolist(), u_random[f].tolist(), related)
-    model = ScoreModel(fields, shares[MATCH], iteration, converged, dict(shares), _theta=theta)
-    model.warnings.extend(fs._plausibility(model))
-    return model
+    return fs.estimate(grades, types, u_random, background, background_weight, labels=labels, start=start)
 
 
 class DecisionEstimator:
