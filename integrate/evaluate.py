@@ -9,9 +9,12 @@ true matches; reduction ratio = 1 - candidates / all pairs. B-cubed averages per
 from __future__ import annotations
 
 from dataclasses import asdict, dataclass
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
+
+from .errors import InputError
 
 
 @dataclass(frozen=True)
@@ -108,3 +111,49 @@ def evaluate(crosswalk: pd.DataFrame, truth: pd.DataFrame, candidates: pd.DataFr
         reduction = 1.0 - len(candidates) / total if total else 0.0
     return Evaluation(pairwise, bcubed_scores(p_labels, t_labels), true_pairs, pred_pairs, completeness,
                       reduction)
+
+
+def read_crosswalk_file(path: str | Path) -> pd.DataFrame:
+    """A crosswalk CSV (source, record_id, entity_id), checked."""
+    if not Path(path).exists():
+        raise InputError("file not found", file=str(path), reason="missing_file")
+    frame = pd.read_csv(path, dtype=str)
+    missing = {"source", "record_id", "entity_id"} - set(frame.columns)
+    if missing:
+        raise InputError(f"missing columns {sorted(missing)}", file=str(path), line=1, reason="missing_column",
+                         hint="a crosswalk has columns source, record_id, entity_id")
+    return frame
+
+
+def hard_negatives(records: pd.DataFrame, prepared: pd.DataFrame, candidates: pd.DataFrame,
+                   entity_ids: np.ndarray, truth: pd.DataFrame, *, given: str, family: str,
+                   contact: list[str]) -> pd.DataFrame:
+    """How the hardest non-matches fared: candidate pairs of different true people who share
+    a family name and a contact detail (relatives), or a full name (namesakes).
+
+    Returns one row per kind: pairs of that kind among the candidates and how many of them ended
+    up in one entity (a wrong merge).
+    """
+    key = pd.MultiIndex.from_arrays([records["_source"].astype(str), records["_record_id"].astype(str)])
+    true_entity = truth.assign(source=truth["source"].astype(str), record_id=truth["record_id"].astype(str)) \
+        .set_index(["source", "record_id"])["entity_id"].reindex(key).to_numpy()
+    i, j = candidates["i"].to_numpy(), candidates["j"].to_numpy()
+    different = (true_entity[i] != true_entity[j]) & pd.notna(true_entity[i]) & pd.notna(true_entity[j])
+
+    def same(column: str) -> np.ndarray:
+        codes = pd.factorize(prepared[column], use_na_sentinel=True)[0]
+        return (codes[i] == codes[j]) & (codes[i] >= 0)
+
+    same_family = same(family)
+    shares_contact = np.zeros(len(i), bool)
+    for column in contact:
+        shares_contact |= same(column)
+    kinds = {
+        "relatives (same family name and a shared contact detail, different given name)":
+            different & same_family & shares_contact & ~same(given),
+        "namesakes (same given and family name)": different & same_family & same(given),
+    }
+    merged = entity_ids[i] == entity_ids[j]
+    rows = [{"kind": kind, "candidate pairs": int(mask.sum()), "wrongly merged": int((mask & merged).sum())}
+            for kind, mask in kinds.items()]
+    return pd.DataFrame(rows)

@@ -21,6 +21,7 @@ from .cluster import Split, cluster_table, splits_frame
 from .columns import RECORD_ID, SOURCE
 from .compare import grade_name
 from .errors import InputError, InputErrors
+from .evaluate import Evaluation, evaluate, hard_negatives, read_crosswalk_file
 from .ids import ChangeSummary, assign_stable_ids, canonical_order, record_hashes
 from .mapping.apply import FAILURE_COLUMNS, MappedSource, apply_mapping
 from .mapping.money import RatesTable, load_rates
@@ -69,10 +70,38 @@ class RunResult:
     entity_changes: pd.DataFrame | None = None  # per entity that is not unchanged: what changed
     conflict_pairs: pd.DataFrame | None = None  # entities with conflicting values, per field and source pair
     run_id: int | None = None  # the run's number in the state store (when written)
+    quality: RunQuality | None = None  # against the schema's 'truth' crosswalk, when one is given
+
+
+@dataclass
+class RunQuality:
+    """How the run compares with a known-true crosswalk."""
+
+    evaluation: Evaluation
+    hard_negatives: pd.DataFrame
+    truth_file: str
 
 
 def _quiet(_: str) -> None:
     return None
+
+
+def judge_against_truth(ws: Workspace, records: pd.DataFrame, match: MatchResult, crosswalk: pd.DataFrame
+                        ) -> RunQuality | None:
+    """Precision / recall and the hard non-matches, when the schema names a true crosswalk."""
+    if not ws.canonical.truth:
+        return None
+    path = ws.root / ws.canonical.truth
+    truth = read_crosswalk_file(path)
+    evaluation = evaluate(crosswalk, truth, match.pairs, records, match.blocking.all_pairs)
+    types = {n: f.type for n, f in ws.canonical.fields.items() if f.is_compared()}
+    names = [n for n, t in types.items() if t == "person_name"]
+    hard = pd.DataFrame(columns=["kind", "candidate pairs", "wrongly merged"])
+    if len(names) >= 2:
+        contact = [n for n, t in types.items() if t in ("email", "phone", "postcode", "text")]
+        hard = hard_negatives(records, match.prepared, match.pairs, match.entities["entity_id"].to_numpy(), truth,
+                              given=names[0], family=names[1], contact=contact)
+    return RunQuality(evaluation, hard, ws.display(path))
 
 
 def read_and_map(ws: Workspace, progress: Progress = _quiet) -> tuple[pd.DataFrame, list[MappedSource]]:
@@ -210,7 +239,7 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
         mapping_hashes=ws.mapping_hashes(), timings=timings, started=started,
         warnings=list(match.model.warnings), review=review, splits=match.splits,
         clusters=cluster_table(match.entities, records), changes=changes, entity_changes=entity_changes,
-        conflict_pairs=conflict_pairs,
+        conflict_pairs=conflict_pairs, quality=judge_against_truth(ws, records, match, crosswalk),
     )
     for name, columns in result.unmapped.items():
         result.warnings.append(f"source '{name}': columns not mentioned in its mapping: {', '.join(columns)}")

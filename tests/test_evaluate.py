@@ -43,3 +43,22 @@ def test_reduction_ratio_and_pairs_completeness() -> None:
     result = evaluate(truth, truth, candidates, records)
     assert result.pairs_completeness == 0.5  # (0,1) found, (2,3) missed
     assert result.reduction_ratio == pytest.approx(1 - 2 / 6)  # RR = 1 - candidates / all pairs
+
+
+def test_hard_negatives_count_relatives_and_namesakes() -> None:
+    from integrate.evaluate import hard_negatives
+
+    records = pd.DataFrame({"_source": ["a"] * 4, "_record_id": ["1", "2", "3", "4"]})
+    prepared = pd.DataFrame({"given": ["ann", "bob", "ann", "ann"], "family": ["lee", "lee", "lee", "lee"],
+                             "phone": ["+1", "+1", None, "+2"]})
+    truth = records.rename(columns={"_source": "source", "_record_id": "record_id"}).assign(
+        entity_id=["p1", "p2", "p3", "p1"])
+    candidates = pd.DataFrame({"i": [0, 0, 0, 1], "j": [1, 2, 3, 2]})
+    merged_as = np.array(["e1", "e1", "e2", "e1"])  # records 1 and 2 wrongly merged with 1
+    table = hard_negatives(records, prepared, candidates, merged_as, truth, given="given", family="family",
+                           contact=["phone"]).set_index("kind")
+    relatives = table.loc[table.index.str.startswith("relatives")].iloc[0]
+    namesakes = table.loc[table.index.str.startswith("namesakes")].iloc[0]
+    # (0,1): ann/bob lee sharing +1 -> relatives, merged; (0,2): two different Ann Lees -> namesakes
+    assert (relatives["candidate pairs"], relatives["wrongly merged"]) == (1, 1)
+    assert (namesakes["candidate pairs"], namesakes["wrongly merged"]) == (1, 0)

@@ -98,3 +98,16 @@ def test_money_sums_are_exact_in_minor_units(demo_run) -> None:
         both = ~pd.isna(got) & ~pd.isna(want)
         assert both.sum() > 100
         assert (abs(got[both] - want[both]) < 0.005).mean() == 1.0, column
+
+
+def test_report_measures_itself_against_the_truth(demo_run) -> None:
+    """The demo schema names its truth file: the run judges itself, hard non-matches included."""
+    quality = demo_run.quality
+    assert quality is not None and quality.truth_file == "demo_sources/truth/crosswalk.csv"
+    assert quality.evaluation.pairwise.f1 >= 0.95
+    hard = quality.hard_negatives.set_index("kind")
+    assert len(hard) == 2 and (hard["candidate pairs"] > 100).all()
+    # relatives and namesakes are the cases most at risk: fewer than 5% of them may be merged
+    assert (hard["wrongly merged"] <= 0.05 * hard["candidate pairs"]).all()
+    html = demo_run.report_path.read_text(encoding="utf-8")
+    assert "Hard non-matches" in html and "Borderline pairs" in html

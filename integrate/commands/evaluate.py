@@ -5,8 +5,6 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from ..errors import InputError
-
 
 def register(sub: argparse._SubParsersAction) -> None:
     ev = sub.add_parser("evaluate", help="precision, recall and F1 of a crosswalk against a true crosswalk")
@@ -17,16 +15,9 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def read_crosswalk(path: str):  # noqa: ANN201 - a DataFrame
-    import pandas as pd
+    from ..evaluate import read_crosswalk_file
 
-    if not Path(path).exists():
-        raise InputError("file not found", file=path, reason="missing_file")
-    frame = pd.read_csv(path, dtype=str)
-    missing = {"source", "record_id", "entity_id"} - set(frame.columns)
-    if missing:
-        raise InputError(f"missing columns {sorted(missing)}", file=path, line=1, reason="missing_column",
-                         hint="a crosswalk has columns source, record_id, entity_id")
-    return frame
+    return read_crosswalk_file(path)
 
 
 def main(args: argparse.Namespace) -> int:

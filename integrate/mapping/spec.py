@@ -133,6 +133,10 @@ class CanonicalSchema(_Strict):
     rate_max_age_days: int = Field(7, ge=0, description="How old the latest rate may be on a pricing date.")
     output: str = Field("out", description="Folder for the output tables, relative to the workspace.")
     reports: str = Field("reports", description="Folder for run reports, relative to the workspace.")
+    truth: str | None = Field(
+        None, description="A known-true crosswalk CSV (source, record_id, entity_id), e.g. a hand-checked "
+        "sample, relative to the workspace; the run report then shows precision and recall against it.",
+    )
     fields: dict[str, CanonicalField]
     blocking: list[BlockingRule] = Field(default_factory=list)
     thresholds: Thresholds = Field(default_factory=Thresholds)

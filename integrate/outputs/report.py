@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 
 from ..compare import GRADE_NAMES
+from ..mapping.spec import Thresholds
 from .tables import write_text_atomic
 
 if TYPE_CHECKING:
@@ -209,6 +210,50 @@ def _meanings_section(result: RunResult, ws: Workspace) -> str:
     return "".join(parts)
 
 
+def _borderline_section(result: RunResult, link: float, count: int = 15) -> str:
+    """The pairs nearest the link threshold, each with its grades and weights (the explanation)."""
+    pairs = result.pairs
+    if pairs.empty:
+        return ""
+    near = pairs.iloc[(pairs["probability"] - link).abs().argsort()[:count]]
+    grade_columns = [c for c in pairs.columns if c.startswith("grade_")]
+    shown = pd.DataFrame({
+        "record a": near["source_a"] + ":" + near["record_id_a"],
+        "record b": near["source_b"] + ":" + near["record_id_b"],
+        "probability": near["probability"].map(lambda p: f"{p:.3f}"),
+        "decision": near["decision"],
+        "grades (field: grade)": near[grade_columns].apply(
+            lambda row: "; ".join(f"{c[6:]}: {v}" for c, v in row.items() if v != "missing"), axis=1),
+        "total weight": near["weight"].map(lambda w: f"{w:+.1f}"),
+    })
+    return ("<h3>Borderline pairs</h3><p>The candidate pairs closest to the link threshold, with each field's "
+            "agreement grade; <code>integrate explain A B</code> shows a pair's weights field by field, and "
+            "<code>pairs.parquet</code> holds them for every pair.</p>"
+            + _table(shown, ("probability", "total weight")))
+
+
+def _quality_section(result: RunResult) -> str:
+    """Precision and recall against a known-true crosswalk, and how the hardest non-matches fared."""
+    quality = result.quality
+    if quality is None:
+        return ""
+    e = quality.evaluation
+    rows = pd.DataFrame([
+        {"measure": "pairwise", "precision": f"{e.pairwise.precision:.4f}", "recall": f"{e.pairwise.recall:.4f}",
+         "F1": f"{e.pairwise.f1:.4f}"},
+        {"measure": "B-cubed", "precision": f"{e.bcubed.precision:.4f}", "recall": f"{e.bcubed.recall:.4f}",
+         "F1": f"{e.bcubed.f1:.4f}"},
+    ])
+    text = (f"<h2>Quality against {_e(quality.truth_file)}</h2><p>Known-true crosswalk: {e.true_pairs} true pairs, "
+            f"{e.predicted_pairs} pairs merged by this run; blocking kept {e.pairs_completeness:.4f} of the true "
+            f"pairs (pairs completeness).</p>" + _table(rows, ("precision", "recall", "F1")))
+    if not quality.hard_negatives.empty:
+        text += ("<h3>Hard non-matches</h3><p>Different people who look alike: candidate pairs of each kind and how "
+                 "many were wrongly merged.</p>"
+                 + _table(quality.hard_negatives, ("candidate pairs", "wrongly merged")))
+    return text
+
+
 def render_report(result: RunResult, ws: Workspace | None = None) -> str:
     s: list[str] = []
     add = s.append
@@ -240,6 +285,10 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
     rules = pd.DataFrame({"rule": b.rules, "pairs": [b.pairs_per_rule[r] for r in b.rules],
                           "found by this rule only": [b.unique_per_rule[r] for r in b.rules]})
     add(_table(rules, ("pairs", "found by this rule only")))
+    largest = [{"rule": r, "largest blocks (key: records)": ", ".join(f"{k}: {n}" for k, n in b.largest_blocks[r][:3])}
+               for r in b.rules if b.largest_blocks.get(r)]
+    if largest:
+        add("<details><summary>Largest blocks per rule</summary>" + _table(pd.DataFrame(largest)) + "</details>")
     if b.skipped_blocks:
         add("<p class='warn'>Blocks skipped because they were too large: "
             + "; ".join(f"{_e(r)} = '{_e(k)}' ({n} records)" for r, k, n in b.skipped_blocks[:20]) + "</p>")
@@ -253,15 +302,20 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
           "non-matches on the left; the valley between them is where review matters.</figcaption></figure>")
     model = result.model
     add(f"<p>Fellegi–Sunter model estimated by EM in {model.iterations} iterations "
-        f"({'converged' if model.converged else 'not converged'}); share of matches among candidate pairs "
-        f"λ = {model.prior:.4f}.</p>")
+        f"({'converged' if model.converged else 'not converged'}); share of matches among all record pairs "
+        f"λ = {model.prior:.6f}. Besides matches, the model has classes for pairs that are not the same person "
+        f"but share something: " + ", ".join(f"{_e(k)} ({v:.6f})" for k, v in model.class_shares.items()
+                                             if k not in ("match",)) + ".</p>")
     rows = []
     for fm in model.fields.values():
         for level, (m, u, ur, w) in enumerate(zip(fm.m, fm.u, fm.u_random, fm.weights)):
             rows.append({"field": fm.name, "grade": GRADE_NAMES[fm.type][level], "m": f"{m:.4f}",
-                         "u (candidates)": f"{u:.4f}", "u (random pairs)": f"{ur:.5f}", "weight (bits)": f"{w:+.2f}"})
+                         "u (non-matches)": f"{u:.6f}", "u (random pairs)": f"{ur:.5f}", "weight (bits)": f"{w:+.2f}"})
     add("<details><summary>m- and u-probabilities and weights per field and grade</summary>"
-        + _table(pd.DataFrame(rows), ("m", "u (candidates)", "u (random pairs)", "weight (bits)")) + "</details>")
+        + _table(pd.DataFrame(rows), ("m", "u (non-matches)", "u (random pairs)", "weight (bits)")) + "</details>")
+
+    add(_borderline_section(result, (ws.canonical.thresholds if ws is not None else Thresholds()).link))
+    add(_quality_section(result))
 
     add("<h2>Entities</h2>")
     sizes = result.crosswalk.groupby("entity_id").size().value_counts().sort_index()
