@@ -241,17 +241,19 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
     allowed[:, label == LABEL_SAME] = False
     allowed[classes.index(MATCH), label == LABEL_SAME] = True
     allowed[classes.index(MATCH), label == LABEL_DIFFERENT] = False
+    # one-hot design: column offset[f] + grade is 1 where a pattern has that grade (missing: none)
+    sizes = [_levels(types[f]) for f in names]
+    offset = np.concatenate([[0], np.cumsum(sizes)])
+    design = np.zeros((len(G), int(offset[-1])))
+    for col in range(len(names)):
+        present = G[:, col] != MISSING
+        design[np.flatnonzero(present), offset[col] + G[present, col]] = 1.0
     converged = False
     previous = -np.inf
     iteration = 0
     for iteration in range(1, EM_MAX_ITER + 1):  # noqa: B007 - the count is reported
-        log_f = np.zeros((len(classes), len(G)))
-        for c, k in enumerate(classes):
-            log_f[c] += np.log(shares[k])
-            for col, f in enumerate(names):
-                g = G[:, col]
-                present = g != MISSING
-                log_f[c, present] += np.log(theta[k][f][g[present]])
+        log_theta = np.column_stack([np.concatenate([np.log(theta[k][f]) for f in names]) for k in classes])
+        log_f = (design @ log_theta).T + np.log([shares[k] for k in classes])[:, None]
         log_f = np.where(allowed, log_f, -np.inf)
         log_total = np.logaddexp.reduce(log_f, axis=0)
         post = np.exp(log_f - log_total)
@@ -260,15 +262,14 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
             converged = True
             break
         previous = likelihood
+        weighted = post * counts  # classes x patterns
+        level_counts = design.T @ weighted.T  # levels x classes
         for c, k in enumerate(classes):
-            w = counts * post[c]
-            shares[k] = float(np.clip(w.sum() / counts.sum(), 1e-9, 1 - 1e-9))
+            shares[k] = float(np.clip(weighted[c].sum() / counts.sum(), 1e-9, 1 - 1e-9))
             for col, f in enumerate(names):
                 if f not in free[k]:
                     continue
-                g = G[:, col]
-                present = g != MISSING
-                new = np.bincount(g[present], weights=w[present], minlength=_levels(types[f])) + PSEUDO_COUNT
+                new = level_counts[offset[col]:offset[col + 1], c] + PSEUDO_COUNT
                 if k == RELATED and types[f] == NAME_PAIR:
                     new = _relatives_names(new, u_random[f])
                 theta[k][f] = new / new.sum()
