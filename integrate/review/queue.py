@@ -1,7 +1,12 @@
 """The review queue: which pair a reviewer sees next, and everything shown about it.
 
-The queue holds the last run's possible links (the band between the two thresholds); an audit
-queue holds a random sample of automatic links drawn by ``integrate review --audit``. Possible
+The queue holds the last run's possible links (the band between the two thresholds) and, for every
+suspicious cluster, the weakest link holding it together; an audit queue holds a random sample of
+automatic links drawn by ``integrate review --audit``. A cluster is suspicious when it was cut (by
+the chaining guard or a constraint), when two of its records compared as clearly different
+(lowest pair probability below ``SUSPICIOUS_PAIR``), or when it has at least three records hanging
+by a link weaker than ``SUSPICIOUS_LINK``: judging its weakest link decides whether it stays whole
+(a ``different`` decision cuts it there on the next run). Possible
 links are ordered so that each decision counts most: priority = uncertainty × log2(1 + reach),
 where uncertainty = 1 − |2p − 1| is 1 at match probability 0.5 and 0 at 0 or 1, and reach is the
 number of records in the group the pair belongs to when links and possible links are joined
@@ -27,6 +32,8 @@ from .diff import diff_segments
 from .store import KEY_COLUMNS, DecisionStore, order_pairs, pair_text
 
 POSSIBLE, AUDIT = "possible", "audit"
+SUSPICIOUS_LINK = 0.95  # a cluster of 3+ records held by a link below this is worth a look
+SUSPICIOUS_PAIR = 0.2  # ... and so is one holding two records that compared below this
 Key = tuple[str, str, str, str]
 
 
@@ -67,11 +74,41 @@ def reach_of(pairs: pd.DataFrame) -> np.ndarray:
     return a.map(size).to_numpy(np.int64) if len(a) else np.zeros(0, np.int64)
 
 
-def order_queue(pairs: pd.DataFrame) -> pd.DataFrame:
-    """Possible links with ``uncertainty``, ``reach`` and ``priority``, highest priority first."""
+def suspicious_links(pairs: pd.DataFrame, crosswalk: pd.DataFrame | None, clusters: pd.DataFrame | None
+                     ) -> pd.DataFrame:
+    """The weakest link of every suspicious cluster (see the module docstring), with a ``reason``."""
+    if crosswalk is None or clusters is None or pairs.empty:
+        return pairs.iloc[0:0].assign(reason="")
+    cut = clusters["cut_by"].fillna("").astype(str) != ""
+    odd = (clusters["lowest_pair_probability"] < SUSPICIOUS_PAIR) | (
+        (clusters["records"] >= 3) & (clusters["weakest_link"] < SUSPICIOUS_LINK))
+    flagged = clusters[cut | odd].set_index("entity_id")
+    entity = crosswalk.astype({"source": str, "record_id": str}).set_index(["source", "record_id"])["entity_id"]
+    links = pairs[pairs["decision"] == "link"]
+    ea = entity.reindex(pd.MultiIndex.from_arrays([links["source_a"], links["record_id_a"]])).to_numpy()
+    eb = entity.reindex(pd.MultiIndex.from_arrays([links["source_b"], links["record_id_b"]])).to_numpy()
+    held = (ea == eb) & pd.Series(ea).isin(flagged.index).to_numpy()
+    inside = links[held].assign(entity_id=ea[held])
+    weakest = inside.sort_values(["probability"] + KEY_COLUMNS, kind="mergesort").drop_duplicates("entity_id")
+    info = flagged.loc[weakest["entity_id"]]
+    reasons = [
+        f"weakest link of entity {e} ({n} records from {k} sources"
+        + (f"; cut by {c}" if c else "") + f"; lowest pair probability {low:.3f})"
+        for e, n, k, c, low in zip(weakest["entity_id"], info["records"], info["sources"],
+                                    info["cut_by"].fillna("").astype(str), info["lowest_pair_probability"])
+    ]
+    return weakest.drop(columns="entity_id").assign(reason=reasons)
+
+
+def order_queue(pairs: pd.DataFrame, crosswalk: pd.DataFrame | None = None,
+                clusters: pd.DataFrame | None = None) -> pd.DataFrame:
+    """Possible links and suspicious clusters' weakest links with ``uncertainty``, ``reach`` and
+    ``priority``, highest priority first."""
     joined = pairs[pairs["decision"].isin(["link", "possible link"])].copy()
     joined["reach"] = reach_of(joined)
-    queue = joined[joined["decision"] == "possible link"].copy()
+    possible = joined[joined["decision"] == "possible link"].assign(reason="possible link")
+    weakest = suspicious_links(joined, crosswalk, clusters)
+    queue = pd.concat([possible, weakest], ignore_index=True)
     queue["uncertainty"] = 1.0 - (2.0 * queue["probability"] - 1.0).abs()
     queue["priority"] = queue["uncertainty"] * np.log2(1.0 + queue["reach"])
     return queue.sort_values(["priority"] + KEY_COLUMNS, ascending=[False] + [True] * 4,
@@ -88,7 +125,9 @@ def load_review_data(workspace: str | Path) -> ReviewData:
     fields = {name: f.type for name, f in ws.canonical.fields.items()}
     as_of = {e.mapping.source: e.mapping.as_of.isoformat() for e in ws.sources}
     trust = {e.mapping.source: e.mapping.trust for e in ws.sources}
-    queue = order_queue(pairs)
+    crosswalk = pd.read_csv(out / "crosswalk.csv", dtype=str) if (out / "crosswalk.csv").exists() else None
+    clusters = pd.read_parquet(out / "clusters.parquet") if (out / "clusters.parquet").exists() else None
+    queue = order_queue(pairs, crosswalk, clusters)
     return ReviewData(Path(workspace), pairs.set_index(KEY_COLUMNS, drop=False), queue, records, fields,
                       as_of, trust)
 
@@ -203,8 +242,18 @@ def item_payload(data: ReviewData, key: Key, kind: str = POSSIBLE) -> dict[str, 
         "key": dict(zip(KEY_COLUMNS, key)), "id": pair_text(key), "kind": kind,
         "probability": probability, "weight": float(row["weight"]), "run_decision": str(row["decision"]),
         "blocking_rules": str(row.get("blocking_rules") or ""), "records": ends, "fields": fields,
+        "reason": _queue_reason(data, key),
         "uncertainty": round(1.0 - abs(2.0 * probability - 1.0), 4) if math.isfinite(probability) else None,
     }
+
+
+def _queue_reason(data: ReviewData, key: Key) -> str:
+    """Why the pair is in the queue ('possible link', or which suspicious cluster it holds together)."""
+    mask = np.ones(len(data.queue), bool)
+    for column, value in zip(KEY_COLUMNS, key):
+        mask &= (data.queue[column] == value).to_numpy()
+    hits = data.queue.loc[mask, "reason"] if "reason" in data.queue else pd.Series(dtype=str)
+    return str(hits.iloc[0]) if len(hits) else ""
 
 
 def scores_snapshot(data: ReviewData, key: Key) -> dict[str, Any]:

@@ -44,7 +44,8 @@ def render_item(item: dict[str, Any], progress: dict[str, int]) -> list[str]:
         "",
         f"== {progress['decided']} decided, {progress['remaining']} remaining (of {progress['total']}) ==",
         f"match probability {100 * item['probability']:.1f} %, total weight {item['weight']:.2f} bits "
-        f"({item['run_decision']})",
+        f"({item['run_decision']})" + (f"; {item['reason']}" if item.get("reason") not in (None, "", "possible link")
+                                       else ""),
         f"A: {printable(a['source'])} {printable(a['record_id'])} (as of {a['as_of']})",
         f"B: {printable(b['source'])} {printable(b['record_id'])} (as of {b['as_of']})",
     ]

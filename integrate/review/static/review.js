@@ -87,6 +87,7 @@ function render(item) {
   summary.appendChild(el("p", `Total weight ${item.weight.toFixed(2)} bits; the last run called this a ${item.run_decision}.`));
   if (item.blocking_rules) summary.appendChild(el("p", `Found as a candidate pair by: ${item.blocking_rules.split(",").join(", ")}`));
   if (item.kind === "audit") summary.appendChild(el("p", "Audit: a randomly drawn automatic link. Is it right?"));
+  else if (item.reason && item.reason !== "possible link") summary.appendChild(el("p", `In the queue as the ${item.reason}.`));
   recordHeading($("head-a"), "A", item.records[0]);
   recordHeading($("head-b"), "B", item.records[1]);
   const bothEmpty = [];
