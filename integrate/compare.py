@@ -15,7 +15,7 @@ from rapidfuzz import fuzz, process
 from rapidfuzz.distance import OSA, JaroWinkler
 
 from .mapping.spec import CanonicalSchema
-from .standardise import DAY, FIRST_WORD, MONTH, ROOT_SUFFIX, YEAR
+from .standardise import DAY, FIRST_WORD, MONTH, OTHER_ROOT, ROOT_SUFFIX, YEAR
 
 MISSING = -1
 
@@ -128,7 +128,7 @@ def _edit_grades(col: Coded, i: np.ndarray, j: np.ndarray) -> np.ndarray:
 def _name_grades(cols: _Columns, name: str, i: np.ndarray, j: np.ndarray) -> np.ndarray:
     col = cols[name]
     jw = col.scores(i, j, JaroWinkler.normalized_similarity)
-    same_root = cols[name + ROOT_SUFFIX].equal(i, j)
+    same_root = _share_a_root(cols, name, name, i, j)
     same_first = cols[name + FIRST_WORD].equal(i, j)
     # one name's words all within the other's: 'smith jones' / 'jones', 'van der berg' / 'berg'
     part_of = col.scores(i, j, fuzz.token_set_ratio) == 100
@@ -166,15 +166,35 @@ def _quantity_grades(x: np.ndarray, y: np.ndarray) -> np.ndarray:
     return np.where(np.isnan(x) | np.isnan(y), MISSING, grade)
 
 
+def _share_a_root(cols: _Columns, field_a: str, field_b: str, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+    """Whether record i's name in field_a and record j's in field_b can stand for one formal name."""
+    columns = [field_a + ROOT_SUFFIX, field_a + OTHER_ROOT, field_b + ROOT_SUFFIX, field_b + OTHER_ROOT]
+    coded = Coded(pd.concat([cols.prepared[c] for c in columns], ignore_index=True))
+    n = len(cols.prepared)
+    out = np.zeros(len(i), bool)
+    for a in (0, 1):
+        for b in (2, 3):
+            x, y = coded.codes[i + a * n], coded.codes[j + b * n]
+            out |= (x == y) & (x >= 0)
+    return out
+
+
 def _swap_names(grades: dict[str, np.ndarray], cols: _Columns, names: list[str],
                 i: np.ndarray, j: np.ndarray) -> None:
-    """Given and family name written the wrong way round count as equivalent on both fields."""
+    """Given and family name written the wrong way round count as equivalent on both fields, also
+    with a typo or a nickname on top ('Clark, Kate' / 'Katherine Clark')."""
     first, second = names[:2]
     # code both name columns together so that a given name can equal a family name
     both = Coded(pd.concat([cols.prepared[first], cols.prepared[second]], ignore_index=True))
     n = len(cols.prepared)
-    a1, a2, b1, b2 = both.codes[i], both.codes[i + n], both.codes[j], both.codes[j + n]
-    crossed = (a1 == b2) & (a2 == b1) & (a1 != a2) & (a1 >= 0) & (a2 >= 0)
+
+    def alike(x: np.ndarray, y: np.ndarray, x_field: str, y_field: str) -> np.ndarray:
+        close = both.scores(x, y, JaroWinkler.normalized_similarity) >= JW_CLOSE
+        same = both.codes[x] == both.codes[y]
+        roots = _share_a_root(cols, x_field, y_field, x % n, y % n)
+        return (both.codes[x] >= 0) & (same | roots | close)
+
+    crossed = alike(i, j + n, first, second) & alike(i + n, j, second, first) & (both.codes[i] != both.codes[i + n])
     for name in (first, second):
         grades[name] = np.where(crossed, np.maximum(grades[name], 3), grades[name])
 

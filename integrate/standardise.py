@@ -22,6 +22,7 @@ from .text_normalise import (
 )
 
 ROOT_SUFFIX = "__root"  # formal given name behind a nickname
+OTHER_ROOT = "__root2"  # a second formal name for a short form shared by two ('kate')
 FIRST_WORD = "__first"  # first word of a name ('anna' of 'anna marie')
 YEAR, MONTH, DAY = "__y", "__m", "__d"
 
@@ -81,6 +82,7 @@ def standardise(records: pd.DataFrame, canonical: CanonicalSchema,
             cleaned = map_distinct(values, clean_name)
             out[name] = cleaned
             out[name + ROOT_SUFFIX] = map_distinct(cleaned, name_root)
+            out[name + OTHER_ROOT] = map_distinct(cleaned, lambda v: name_root(v, 1))
             out[name + FIRST_WORD] = map_distinct(cleaned, lambda v: v.split(" ", 1)[0])
         elif spec.type == "email":
             out[name] = map_distinct(values, clean_email)

@@ -49,24 +49,30 @@ def clean_name(text: str) -> str | None:
 
 
 @lru_cache(maxsize=1)
-def given_name_roots() -> dict[str, str]:
-    """Short form -> formal given name, from the packaged equivalents table (common practice)."""
+def given_name_forms() -> dict[str, tuple[str, ...]]:
+    """Name -> the formal given names it can stand for, from the packaged table (common practice).
+
+    A formal name stands for itself; a short form shared by several formal names ('kate':
+    Catherine and Katherine) stands for each of them, in table order.
+    """
     text = resources.files("integrate.data").joinpath("given_names.csv").read_text(encoding="utf-8")
-    roots: dict[str, str] = {}
+    forms: dict[str, list[str]] = {}
     lines = [ln for ln in text.splitlines() if ln and not ln.startswith("#")]
     for line in lines[1:]:
         formal, shorts = line.split(",", 1)
-        roots.setdefault(formal, formal)
+        forms.setdefault(formal, [formal])
         for short in shorts.split("|"):
-            # a short form shared by two formal names (e.g. 'alex') keeps its first formal name
-            roots.setdefault(short, formal)
-    return roots
+            if formal not in forms.setdefault(short, []):
+                forms[short].append(formal)
+    return {name: tuple(formals) for name, formals in forms.items()}
 
 
-def name_root(cleaned: str) -> str:
-    """The formal form of a cleaned given name's first word ('bob smith' -> 'robert')."""
+def name_root(cleaned: str, which: int = 0) -> str:
+    """A formal form of a cleaned given name's first word ('bob smith' -> 'robert'); ``which``
+    picks among several ('kate' -> 'catherine' (0) or 'katherine' (1)), the last repeating."""
     first = cleaned.split(" ", 1)[0]
-    return given_name_roots().get(first, first)
+    formals = given_name_forms().get(first, (first,))
+    return formals[min(which, len(formals) - 1)]
 
 
 def digits_only(text: str) -> str | None:

@@ -78,3 +78,13 @@ def test_multi_part_family_names() -> None:
     g = _grades({"given_name": "Anna", "family_name": "Smith-Jones", "birth_date": None},
                 {"given_name": "Anna", "family_name": "Jones", "birth_date": None})
     assert g["family_name"] == 3
+
+
+def test_swapped_names_with_a_nickname_or_typo() -> None:
+    # 'Clark, Kate' typed the wrong way round against 'Katherine Clark' (Kate: a common short form)
+    g = _grades({"given_name": "Clark", "family_name": "Kate", "birth_date": None},
+                {"given_name": "Katherine", "family_name": "Clark", "birth_date": None})
+    assert g["given_name"] == 3 and g["family_name"] == 3
+    g = _grades({"given_name": "Benntt", "family_name": "Henry", "birth_date": None},
+                {"given_name": "Henry", "family_name": "Bennett", "birth_date": None})
+    assert g["given_name"] == 3 and g["family_name"] == 3
