@@ -188,13 +188,18 @@ def _swap_names(grades: dict[str, np.ndarray], cols: _Columns, names: list[str],
     both = Coded(pd.concat([cols.prepared[first], cols.prepared[second]], ignore_index=True))
     n = len(cols.prepared)
 
-    def alike(x: np.ndarray, y: np.ndarray, x_field: str, y_field: str) -> np.ndarray:
-        close = both.scores(x, y, JaroWinkler.normalized_similarity) >= JW_CLOSE
+    def alike(x: np.ndarray, y: np.ndarray, x_field: str, y_field: str) -> tuple[np.ndarray, np.ndarray]:
+        """(strongly alike: equal, one formal name or close; at least fairly close)"""
+        jw = both.scores(x, y, JaroWinkler.normalized_similarity)
         same = both.codes[x] == both.codes[y]
         roots = _share_a_root(cols, x_field, y_field, x % n, y % n)
-        return (both.codes[x] >= 0) & (same | roots | close)
+        present = both.codes[x] >= 0
+        return present & (same | roots | (jw >= JW_CLOSE)), present & (jw >= JW_FAIR)
 
-    crossed = alike(i, j + n, first, second) & alike(i + n, j, second, first) & (both.codes[i] != both.codes[i + n])
+    strong_1, fair_1 = alike(i, j + n, first, second)
+    strong_2, fair_2 = alike(i + n, j, second, first)
+    # both crossed names alike, one of them strongly: a swap, whatever typo the other carries
+    crossed = ((strong_1 & (strong_2 | fair_2)) | (fair_1 & strong_2)) & (both.codes[i] != both.codes[i + n])
     for name in (first, second):
         grades[name] = np.where(crossed, np.maximum(grades[name], 3), grades[name])
 
