@@ -18,10 +18,12 @@ from .text_normalise import (
     clean_text,
     digits_only,
     map_distinct,
+    name_affixes,
     name_root,
 )
 
 ROOT_SUFFIX = "__root"  # formal given name behind a nickname
+AFFIXES = "__affixes"  # honorifics and suffixes taken out of a name ('dr', 'jr')
 OTHER_ROOT = "__root2"  # a second formal name for a short form shared by two ('kate')
 FIRST_WORD = "__first"  # first word of a name ('anna' of 'anna marie')
 YEAR, MONTH, DAY = "__y", "__m", "__d"
@@ -70,6 +72,7 @@ def standardise(records: pd.DataFrame, canonical: CanonicalSchema,
 
     Returns:
         One column per compared field holding its standard form, plus helper columns:
+        ``<field>__affixes`` for person names (honorifics and suffixes taken out, e.g. 'dr jr'),
         ``<field>__root`` for person names (formal given name behind a nickname) and
         ``<field>__y/__m/__d`` for dates.
     """
@@ -81,6 +84,7 @@ def standardise(records: pd.DataFrame, canonical: CanonicalSchema,
         if spec.type == "person_name":
             cleaned = map_distinct(values, clean_name)
             out[name] = cleaned
+            out[name + AFFIXES] = map_distinct(values, name_affixes)
             out[name + ROOT_SUFFIX] = map_distinct(cleaned, name_root)
             out[name + OTHER_ROOT] = map_distinct(cleaned, lambda v: name_root(v, 1))
             out[name + FIRST_WORD] = map_distinct(cleaned, lambda v: v.split(" ", 1)[0])

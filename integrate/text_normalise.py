@@ -39,6 +39,15 @@ def clean_text(text: str) -> str | None:
     return out or None
 
 
+def name_affixes(text: str) -> str | None:
+    """The honorifics and suffixes a name carries ('Dr Anna Lee Jr' -> 'dr jr'), or None."""
+    cleaned = clean_text(text.replace("-", " ").replace("'", "").replace("’", ""))
+    if not cleaned:
+        return None
+    found = [t for t in cleaned.split(" ") if t in HONORIFICS or t in SUFFIXES]
+    return " ".join(found) or None
+
+
 def clean_name(text: str) -> str | None:
     """A person-name part without honorifics and suffixes; hyphens become spaces."""
     cleaned = clean_text(text.replace("-", " ").replace("'", "").replace("’", ""))

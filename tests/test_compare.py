@@ -88,3 +88,16 @@ def test_swapped_names_with_a_nickname_or_typo() -> None:
     g = _grades({"given_name": "Benntt", "family_name": "Henry", "birth_date": None},
                 {"given_name": "Henry", "family_name": "Bennett", "birth_date": None})
     assert g["given_name"] == 3 and g["family_name"] == 3
+
+
+def test_titles_and_suffixes_go_to_a_field_of_their_own() -> None:
+    from integrate.standardise import standardise
+
+    records = pd.DataFrame({"given_name": ["Dr. Anna", "anna"], "family_name": ["Lee Jr", "LEE"],
+                            "birth_date": [None, None], "_source": "a", "_record_id": ["1", "2"]})
+    prepared = standardise(records, _schema())
+    assert prepared["given_name"].tolist() == ["anna", "anna"]
+    assert prepared["family_name"].tolist() == ["lee", "lee"]
+    assert prepared["given_name__affixes"].tolist()[0] == "dr"
+    assert prepared["family_name__affixes"].tolist()[0] == "jr"
+    assert prepared["given_name__affixes"].isna().tolist()[1]
