@@ -40,3 +40,12 @@ def test_explain_unknown_record_is_a_clear_error(workspace: Path) -> None:
     proc = run_cli("explain", "webshop:NOPE", "membership:M-000634", str(workspace))
     assert proc.returncode == 2
     assert "no record 'NOPE' in source 'webshop'" in proc.stderr and "Traceback" not in proc.stderr
+
+
+def test_a_second_run_prints_what_changed(workspace: Path) -> None:
+    assert run_cli("run", str(workspace)).returncode == 0
+    again = run_cli("run", str(workspace))
+    assert again.returncode == 0, again.stderr
+    line = next(ln for ln in again.stdout.splitlines() if ln.startswith("since run 1:"))
+    entities = int(re.search(r"-> (\d+) entities", again.stdout).group(1))
+    assert f"{entities} entities unchanged, 0 created, 0 merged, 0 split" in line

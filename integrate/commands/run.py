@@ -26,6 +26,12 @@ def main(args: argparse.Namespace) -> int:
     for source, count in result.source_counts.items():
         print(f"  {source:<14} {count:>7} records")
     print(f"candidate pairs {len(result.pairs)}: " + ", ".join(f"{k} {v}" for k, v in decisions.items()))
+    changes = result.changes
+    if changes is not None and changes.previous_run is not None:
+        print(f"since run {changes.previous_run}: {changes.unchanged} entities unchanged, {changes.created} created, "
+              f"{changes.merged} merged, {changes.split} split, {changes.retired} retired; "
+              f"records {changes.records_added} added, {changes.records_removed} removed, "
+              f"{changes.records_moved} moved (integrate changes lists them)")
     if not result.failures.empty:
         print(f"{len(result.failures)} values could not be read and were left empty (see failures.csv)")
     for warning in result.warnings:
