@@ -121,15 +121,16 @@ def load_review_data(workspace: str | Path) -> ReviewData:
     out = ws.output_dir
     pairs = order_pairs(_read_output(out / "pairs.parquet", "candidate pairs"))
     records = _read_output(out / "records.parquet", "canonical records")
-    records = records.astype({"_source": str, "_record_id": str}).set_index(["_source", "_record_id"])
+    # sorted indexes: look-ups from the server's worker threads never touch an unsorted MultiIndex
+    records = records.astype({"_source": str, "_record_id": str}).set_index(["_source", "_record_id"]).sort_index()
     fields = {name: f.type for name, f in ws.canonical.fields.items()}
     as_of = {e.mapping.source: e.mapping.as_of.isoformat() for e in ws.sources}
     trust = {e.mapping.source: e.mapping.trust for e in ws.sources}
     crosswalk = pd.read_csv(out / "crosswalk.csv", dtype=str) if (out / "crosswalk.csv").exists() else None
     clusters = pd.read_parquet(out / "clusters.parquet") if (out / "clusters.parquet").exists() else None
     queue = order_queue(pairs, crosswalk, clusters)
-    return ReviewData(Path(workspace), pairs.set_index(KEY_COLUMNS, drop=False), queue, records, fields,
-                      as_of, trust)
+    return ReviewData(Path(workspace), pairs.set_index(KEY_COLUMNS, drop=False).sort_index(), queue, records,
+                      fields, as_of, trust)
 
 
 def _differs(frame: pd.DataFrame, field: str, ftype: str) -> pd.Series:
