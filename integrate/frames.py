@@ -9,6 +9,7 @@ from functools import cached_property
 import pandas as pd
 
 from .columns import RECORD_DATE, RECORD_ID, ROW, SOURCE, TRUST
+from .ids import canonical_order
 from .mapping.spec import CanonicalSchema, FieldType, Thresholds
 from .matching import MatchResult, match_records
 from .resolve import resolve
@@ -106,7 +107,8 @@ def _records(frame: pd.DataFrame, fields: dict[str, FieldType], source: str, id_
 
 
 def _run(records: pd.DataFrame, schema: CanonicalSchema, across: bool) -> FrameResult:
-    records = records.reset_index(drop=True)
+    # the same record order as a workspace run, so results never depend on the frames' row order
+    records = canonical_order(records)
     match = match_records(records, schema, across_sources_only=across)
     crosswalk = pd.DataFrame({"source": records[SOURCE].to_numpy(), "record_id": records[RECORD_ID].to_numpy(),
                               "entity_id": match.entities["entity_id"].to_numpy()})

@@ -18,3 +18,17 @@ def test_types_from_names_then_values() -> None:
     })
     assert infer_fields(frame) == {"Surname": "person_name", "contact": "email", "born": "date",
                                    "tel no.": "phone", "notes": "text", "x": "phone"}
+
+
+def test_deduplicate_does_not_depend_on_row_order() -> None:
+    import integrate
+
+    given = "anna bruno chloe dmitri elena farid greta hugo ines jonas kofi lena".split()
+    family = "lee park novak silva berg haddad moreau keller costa weber mensah fox".split()
+    people = pd.DataFrame({"id": [f"r{k}" for k in range(12)], "given_name": given, "surname": family,
+                           "dob": [f"19{60 + k}-0{1 + k % 9}-1{k % 9}" for k in range(12)]})
+    again = people.iloc[[0, 3, 7]].assign(id=["r12", "r13", "r14"], surname=["lee", "silvaa", "keller"])
+    frame = pd.concat([people, again], ignore_index=True)
+    first = integrate.deduplicate(frame, id_column="id").crosswalk.sort_values("record_id")
+    shuffled = integrate.deduplicate(frame.sample(frac=1.0, random_state=3), id_column="id").crosswalk
+    assert first.reset_index(drop=True).equals(shuffled.sort_values("record_id").reset_index(drop=True))
