@@ -74,6 +74,9 @@ def _key_part(prepared: pd.DataFrame, canonical: CanonicalSchema | None, express
     if transform == "sounds":
         # sorted Soundex codes of every word: catches swapped given/family names despite a typo
         return map_distinct(base, lambda v: " ".join(sorted({jellyfish.soundex(t) for t in v.split()})))
+    if transform == "initials":
+        # sorted first letters of every word: survives typos after the first letter and swaps
+        return map_distinct(base, lambda v: "".join(sorted(t[0] for t in v.split())))
     if transform == "tokens":
         return map_distinct(base, lambda v: " ".join(sorted(v.split())))
     if transform.startswith("first") and transform[5:].isdigit():
@@ -229,6 +232,11 @@ def default_rules(canonical: CanonicalSchema) -> list[BlockingRule]:
     for pc in postcodes[:1]:
         for p in names:
             add(f"{pc}_{p}_start", [pc, f"{p}:first2"])
+            add(f"{p}_{pc}_area", [p, f"{pc}:first2"])
+        if len(names) >= 2:
+            add(f"{pc}_initials", [pc, f"{names[0]}+{names[1]}:initials"])
+        for d in dates[:1]:
+            add(f"{pc}_{d}_year", [pc, f"{d}:year"])
         for t in texts[:2]:
             add(f"{pc}_{t}_start", [pc, f"{t}:first3"])
     if len(names) >= 2:

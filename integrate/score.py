@@ -23,8 +23,8 @@ from .mapping.spec import CanonicalSchema, Thresholds
 LINK, POSSIBLE, NON_LINK = "link", "possible link", "non-link"
 LABEL_SAME, LABEL_DIFFERENT = 1, 2  # codes of reviewed pairs passed to estimate (0: undecided)
 RANDOM_PAIRS = 100_000  # random record pairs drawn to estimate u (seeded)
-EM_MAX_ITER = 500
-EM_TOLERANCE = 1e-8  # relative change of the log-likelihood that ends EM
+EM_MAX_ITER = 1000
+EM_TOLERANCE = 1e-7  # relative change of the log-likelihood that ends EM
 PSEUDO_COUNT = 0.5  # added to every level's count so no probability is exactly 0 or 1
 TF_TYPES = frozenset({"person_name", "date", "identifier"})
 SEED = 20261202

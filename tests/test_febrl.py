@@ -68,6 +68,9 @@ def test_febrl_without_the_identifier(name: str) -> None:
     result = _run(name, WITHOUT_ID)
     scores = integrate.evaluate(result.crosswalk, _truth(result.crosswalk))
     assert scores.pairwise.f1 >= 0.99, scores
+    assert _pairs_completeness(result) >= 0.999
+    assert len(result.match.pairs) <= 30 * len(result.crosswalk)
+    assert not [w for w in result.match.model.warnings if "converge" in w]
 
 
 def test_metrics_agree_with_recordlinkage() -> None:
