@@ -134,6 +134,10 @@ class _Components:
                 continue
             self.cannot.setdefault(a, []).append(b)
             self.cannot.setdefault(b, []).append(a)
+        # only pairs whose records the links join can ever be cut apart: keep just those
+        joined = self._components(n)
+        same_component = joined[scored["i"].to_numpy(np.int64)] == joined[scored["j"].to_numpy(np.int64)]
+        scored = scored[same_component]
         clear = scored[scored["probability"] < DIFFERENT_BELOW]
         self.different: dict[int, list[tuple[int, float]]] = {}
         for a, b, p in self._ordered(clear["i"].to_numpy(), clear["j"].to_numpy(), clear["probability"].to_numpy()):
@@ -141,6 +145,14 @@ class _Components:
             self.different.setdefault(b, []).append((a, p))
         pair_p = scored.set_index(["i", "j"])["probability"] if len(scored) else pd.Series(dtype=float)
         self.pair_probability = pair_p[~pair_p.index.duplicated()].to_dict()
+
+    def _components(self, n: int) -> np.ndarray:
+        """A component number per record in the link graph (singletons get their own)."""
+        joined = np.arange(n, dtype=np.int64)
+        for number, members in enumerate(nx.connected_components(self.graph)):
+            if len(members) > 1:
+                joined[list(members)] = n + number
+        return joined
 
     def _ordered(self, i: np.ndarray, j: np.ndarray, p: np.ndarray) -> list[tuple[int, int, float]]:
         """Pairs with the lower-ranked record first, sorted by rank (the graph's insertion order)."""
