@@ -41,7 +41,7 @@ class BlockingReport:
         return 1.0 - self.candidate_pairs / self.all_pairs if self.all_pairs else 0.0
 
 
-def _key_part(prepared: pd.DataFrame, canonical: CanonicalSchema | None, expression: str) -> pd.Series:
+def _key_part(prepared: pd.DataFrame, expression: str) -> pd.Series:
     """Evaluate one key expression ``field[+field...][:transform]`` on the prepared frame."""
     names, _, transform = expression.partition(":")
     fields = names.split("+")
@@ -86,9 +86,9 @@ def _key_part(prepared: pd.DataFrame, canonical: CanonicalSchema | None, express
     raise ValueError(f"unknown key transform '{transform}'")
 
 
-def rule_key(prepared: pd.DataFrame, rule: BlockingRule, canonical: CanonicalSchema | None = None) -> pd.Series:
+def rule_key(prepared: pd.DataFrame, rule: BlockingRule) -> pd.Series:
     """The blocking key of every record under one rule (NA when any part is missing)."""
-    parts = [_key_part(prepared, canonical, k) for k in rule.keys]
+    parts = [_key_part(prepared, k) for k in rule.keys]
     key = parts[0].astype("string")
     for part in parts[1:]:
         key = key + "\x1f" + part.astype("string")
@@ -131,7 +131,6 @@ def block(
     *,
     groups: pd.Series | None = None,
     max_block_size: int = 1000,
-    canonical: CanonicalSchema | None = None,
 ) -> tuple[pd.DataFrame, BlockingReport]:
     """Union of the candidate pairs of every rule.
 
@@ -158,7 +157,7 @@ def block(
     largest: dict[str, list[tuple[str, int]]] = {}
     skipped: list[tuple[str, str, int]] = []
     for bit, rule in enumerate(rules):
-        key = rule_key(prepared, rule, canonical)
+        key = rule_key(prepared, rule)
         if rule.window:
             i, j = _neighbour_pairs(key, rule.window)
             big = pd.Series(dtype="int64")

@@ -46,12 +46,11 @@ def match_records(records: pd.DataFrame, canonical: CanonicalSchema, *,
     records = records.reset_index(drop=True)
     progress("standardise")
     prepared = standardise(records, canonical, regions)
-    groups = records["_source"].to_numpy() if across_sources_only else None
     group_codes = pd.factorize(records["_source"])[0] if across_sources_only else None
     progress("block")
     rules = list(canonical.blocking) or default_rules(canonical)
-    pairs, blocking = block(prepared, rules, groups=None if groups is None else pd.Series(groups),
-                            max_block_size=canonical.max_block_size, canonical=canonical)
+    pairs, blocking = block(prepared, rules, groups=None if group_codes is None else pd.Series(group_codes),
+                            max_block_size=canonical.max_block_size)
     progress("compare")
     grades = compare(prepared, pairs, canonical)
     progress("score")

@@ -297,12 +297,6 @@ def _plausibility(model: ScoreModel) -> list[str]:
     return notes
 
 
-def value_frequencies(prepared: pd.DataFrame, name: str) -> tuple[pd.Series, float]:
-    """Share of records holding each value, and the chance two random records share a value."""
-    freq = prepared[name].value_counts(normalize=True)
-    return freq, float((freq ** 2).sum())
-
-
 def _rarity(keys: pd.Series, freq_of: pd.Series) -> np.ndarray:
     """log2(Σp² / p_v): how much rarer than average the agreeing value is (bits), capped at ±6."""
     freq = freq_of.value_counts(normalize=True)

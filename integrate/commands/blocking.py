@@ -14,11 +14,10 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def main(args: argparse.Namespace) -> int:
     from ..block import block, default_rules
-    from ..evaluate import evaluate
+    from ..evaluate import evaluate, read_crosswalk_file
     from ..pipeline import read_and_map
     from ..standardise import standardise
     from ..workspace import load_workspace
-    from .evaluate import read_crosswalk
 
     ws = load_workspace(args.workspace)
     records, _ = read_and_map(ws)
@@ -38,7 +37,7 @@ def main(args: argparse.Namespace) -> int:
     for rule, key, size in report.skipped_blocks:
         print(f"skipped: rule '{rule}', key '{key}' shared by {size} records (over max_block_size)")
     if args.truth:
-        truth = read_crosswalk(args.truth)
+        truth = read_crosswalk_file(args.truth)
         crosswalk = records[["_source", "_record_id"]].rename(columns={"_source": "source", "_record_id": "record_id"})
         crosswalk = crosswalk.assign(entity_id=crosswalk["source"] + ":" + crosswalk["record_id"])
         result = evaluate(crosswalk, truth, pairs, records, report.all_pairs)

@@ -14,17 +14,11 @@ def register(sub: argparse._SubParsersAction) -> None:
     ev.set_defaults(func=main)
 
 
-def read_crosswalk(path: str):  # noqa: ANN201 - a DataFrame
-    from ..evaluate import read_crosswalk_file
-
-    return read_crosswalk_file(path)
-
-
 def main(args: argparse.Namespace) -> int:
-    from ..evaluate import evaluate
+    from ..evaluate import evaluate, read_crosswalk_file
 
     crosswalk_path = args.crosswalk or str(Path(args.workspace) / "out" / "crosswalk.csv")
-    result = evaluate(read_crosswalk(crosswalk_path), read_crosswalk(args.truth))
+    result = evaluate(read_crosswalk_file(crosswalk_path), read_crosswalk_file(args.truth))
     for name, scores in (("pairwise", result.pairwise), ("B-cubed", result.bcubed)):
         print(f"{name:<9} precision {scores.precision:.4f}  recall {scores.recall:.4f}  F1 {scores.f1:.4f}")
     print(f"true pairs {result.true_pairs}, predicted pairs {result.predicted_pairs}")

@@ -109,9 +109,7 @@ def _known_keys(model: type[BaseModel], parent: tuple[Any, ...]) -> list[str]:
             current = _model_in(annotation)
         elif isinstance(part, str) and part[:1].isupper():
             continue
-        else:
-            # a dict key (e.g. a field name) or list index: descend into the value model
-            current = _value_model(current)
+        # else: a dict key (e.g. a field name) or list index; the value's model is the current one
     fields = getattr(current, "model_fields", None)
     if not fields:
         return []
@@ -126,10 +124,6 @@ def _model_in(annotation: Any) -> Any:
         if found is not None:
             return found
     return None
-
-
-def _value_model(current: Any) -> Any:
-    return current
 
 
 def validate_model(model: type[Model], data: Any, root: Any, file: str) -> Model:
