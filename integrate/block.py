@@ -55,6 +55,11 @@ def _key_part(prepared: pd.DataFrame, expression: str) -> pd.Series:
         return (prepared[fields[0] + MONTH].astype("string") + "-" + prepared[fields[0] + DAY].astype("string"))
     if transform == "root":
         return prepared[fields[0] + ROOT_SUFFIX]
+    if transform == "roots" and len(fields) == 2:
+        # the formal forms of two names' first words in sorted order: 'Jimmy Roberts' and
+        # 'Roberts, James' share 'james roberts' (a swap with a nickname on top)
+        a, b = (prepared[f + ROOT_SUFFIX].astype("string") for f in fields)
+        return a.where(a < b, b) + " " + b.where(a < b, a)
     if len(fields) > 1:
         base = prepared[fields[0]].astype("string").fillna("")
         for name in fields[1:]:
@@ -242,6 +247,7 @@ def default_rules(canonical: CanonicalSchema) -> list[BlockingRule]:
         first, second = names[:2]
         add("name_sounds", [f"{first}+{second}:sounds"])
         add("name_roots", [f"{first}:root", f"{second}:soundex"])
+        add("names_any_order", [f"{first}+{second}:roots"])
         add("names_sorted", [f"{second}+{first}"], window=SORTED_WINDOW)
         add("names_sorted_reversed", [f"{first}+{second}"], window=SORTED_WINDOW)
     elif names:

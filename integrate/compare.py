@@ -126,14 +126,18 @@ def _edit_grades(col: Coded, i: np.ndarray, j: np.ndarray) -> np.ndarray:
 
 
 def _name_grades(cols: _Columns, name: str, i: np.ndarray, j: np.ndarray) -> np.ndarray:
-    col = cols[name]
-    jw = col.scores(i, j, JaroWinkler.normalized_similarity)
+    col, first = cols[name], cols[name + FIRST_WORD]
+    # the whole names and their first words ('bejamin' / 'benjamin rowan' compare as first words)
+    jw = np.fmax(col.scores(i, j, JaroWinkler.normalized_similarity),
+                 first.scores(i, j, JaroWinkler.normalized_similarity))
+    # one keystroke apart counts as close however short the name ('km' / 'kim', 'aav' / 'ava'),
+    # where Jaro–Winkler's scale is too coarse
+    one_edit = (col.scores(i, j, OSA.distance) <= 1) | (first.scores(i, j, OSA.distance) <= 1)
     same_root = _share_a_root(cols, name, name, i, j)
-    same_first = cols[name + FIRST_WORD].equal(i, j)
     # one name's words all within the other's: 'smith jones' / 'jones', 'van der berg' / 'berg'
     part_of = col.scores(i, j, fuzz.token_set_ratio) == 100
-    grade = np.select([col.equal(i, j), same_root | same_first | part_of, jw >= JW_CLOSE, jw >= JW_FAIR],
-                      [4, 3, 2, 1], 0)
+    grade = np.select([col.equal(i, j), same_root | first.equal(i, j) | part_of, (jw >= JW_CLOSE) | one_edit,
+                       jw >= JW_FAIR], [4, 3, 2, 1], 0)
     return np.where(col.missing(i, j), MISSING, grade)
 
 

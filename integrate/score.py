@@ -26,6 +26,11 @@ RANDOM_PAIRS = 100_000  # random record pairs drawn to estimate u (seeded)
 EM_MAX_ITER = 1000
 EM_TOLERANCE = 1e-7  # relative change of the log-likelihood that ends EM
 PSEUDO_COUNT = 0.5  # added to every level's count so no probability is exactly 0 or 1
+# Share of relatives' pairs (one household or family) born on the same day. About one birth in 60
+# is a twin birth in the UK (common practice, recalled from memory), so roughly 3 in 100 sibling
+# pairs are twins; partners and parent-child pairs never are. 0.02 is a middle estimate; it keeps
+# a same-household pair with one birth date and another first name from passing for one person.
+TWIN_SHARE = 0.02
 TF_TYPES = frozenset({"person_name", "date", "identifier"})
 SEED = 20261202
 
@@ -155,6 +160,8 @@ def _initial_classes(types: dict[str, str], u_random: dict[str, np.ndarray]
                 related[f] = profile / profile.sum()
             elif t == "person_name":
                 related[f] = 0.5 * (agree[f] + u_random[f])
+            elif t == "date":
+                related[f] = _with_twins(u_random[f])
             else:
                 related[f] = u_random[f].copy()
         theta[RELATED] = related
@@ -168,6 +175,14 @@ def _initial_classes(types: dict[str, str], u_random: dict[str, np.ndarray]
             free[NEIGHBOUR] = {f for f, t in types.items() if t in ("postcode", "text")}
             shares = {MATCH: 0.2, RELATED: 0.1, NEIGHBOUR: 0.1, UNRELATED: 0.6}
     return theta, shares, free
+
+
+def _with_twins(profile: np.ndarray) -> np.ndarray:
+    """A date profile for relatives: as random pairs', except that some relatives share a birth
+    date (twins). Held fixed, so the class cannot absorb matches that carry a name error."""
+    out = profile.copy()
+    out[-1] = max(out[-1], TWIN_SHARE)
+    return out / out.sum()
 
 
 def _relatives_names(counts: np.ndarray, random_profile: np.ndarray) -> np.ndarray:

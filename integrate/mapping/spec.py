@@ -98,8 +98,11 @@ class CanonicalField(_Strict):
 class BlockingRule(_Strict):
     """Records sharing every key of a rule become candidate pairs.
 
-    A key is ``field`` or ``field:transform``; transforms: ``exact``, ``soundex``, ``nysiis``,
-    ``first3`` (any ``firstN``), ``year``, ``month_day``, ``digits_last7``, ``tokens`` (sorted name tokens).
+    A key is ``field`` or ``field:transform``; ``a+b`` joins fields first. Transforms: ``exact``,
+    ``soundex``, ``nysiis``, ``first3`` (any ``firstN``), ``last3`` (any ``lastN``), ``year``,
+    ``month_day``, ``root`` (formal form of a given name: Bob -> robert), ``roots`` (two names'
+    formal forms in sorted order, for swapped names), ``sounds`` (sorted Soundex codes of the words),
+    ``initials`` (sorted first letters), ``tokens`` (sorted words).
     """
 
     name: str = Field(pattern=_NAME)

@@ -137,8 +137,10 @@ def _differs(frame: pd.DataFrame, field: str, ftype: str) -> pd.Series:
     column = "grade_" + field
     if column not in frame:
         return pd.Series(False, index=frame.index)
-    top = GRADE_NAMES[ftype][-1]
-    return ~frame[column].isin([top, "missing"]) & frame[column].notna()
+    agree = [GRADE_NAMES[ftype][-1], "missing"]
+    if ftype == "date":
+        agree.append(GRADE_NAMES["date"][2])  # the year agrees and one side has nothing more
+    return ~frame[column].isin(agree) & frame[column].notna()
 
 
 def queue_items(data: ReviewData, store: DecisionStore, kind: str = POSSIBLE, *, source: str | None = None,
