@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import importlib
 import logging
+import os
 import sys
 
 from . import __version__
@@ -37,7 +38,9 @@ def main(argv: list[str] | None = None) -> int:
         parser.print_help()
         return 0
     try:
-        return int(args.func(args))
+        code = int(args.func(args))
+        sys.stdout.flush()  # a reader that went away shows here, not at interpreter exit
+        return code
     except InputErrors as many:
         print(f"error: {many}", file=sys.stderr)
         return EXIT_INPUT
@@ -50,6 +53,10 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("interrupted; previous outputs are unchanged", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # the reader went away ('integrate evaluate | head'): stop quietly, as shell tools do
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 141
 
 
 if __name__ == "__main__":

@@ -49,3 +49,13 @@ def test_a_second_run_prints_what_changed(workspace: Path) -> None:
     line = next(ln for ln in again.stdout.splitlines() if ln.startswith("since run 1:"))
     entities = int(re.search(r"-> (\d+) entities", again.stdout).group(1))
     assert f"{entities} entities unchanged, 0 created, 0 merged, 0 split" in line
+
+
+def test_a_reader_that_goes_away_gets_no_traceback(workspace: Path) -> None:
+    # 'integrate blocking ... | head -1' : the pipe closes before the report is written
+    proc = subprocess.Popen([sys.executable, "-m", "integrate", "blocking", str(workspace)], stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True, env={"PATH": "/usr/bin:/bin"})
+    proc.stdout.close()
+    _, err = proc.communicate(timeout=600)
+    assert proc.returncode == 141
+    assert "Traceback" not in err and "BrokenPipeError" not in err
