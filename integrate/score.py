@@ -116,6 +116,15 @@ def random_pairs(n: int, count: int, groups: np.ndarray | None = None, seed: int
     return pd.DataFrame({"i": np.minimum(i, j), "j": np.maximum(i, j)})
 
 
+def pattern_codes(matrix: np.ndarray) -> np.ndarray:
+    """A code per row of a small-integer matrix, equal for equal rows, numbered in order of first
+    appearance (a hash per column, so no sort of the rows)."""
+    codes = np.zeros(len(matrix), np.int64)
+    for column in matrix.T:
+        codes = pd.factorize(codes * (column.max(initial=0) - column.min(initial=0) + 1) + column)[0]
+    return codes
+
+
 def _level_freq(grades: np.ndarray, levels: int) -> np.ndarray:
     present = grades[grades != MISSING]
     counts = np.bincount(present, minlength=levels).astype(float) + PSEUDO_COUNT
@@ -367,8 +376,11 @@ def weigh(prepared: pd.DataFrame, pairs: pd.DataFrame, grades: pd.DataFrame, fie
     out = pairs.copy()
     names = list(joint.columns)
     if len(joint):
-        unique_grades, codes = np.unique(joint[names].to_numpy(np.int64), axis=0, return_inverse=True)
-        total = model.pattern_weight(unique_grades, names)[codes.reshape(-1)]
+        matrix = joint[names].to_numpy(np.int64)
+        codes = pattern_codes(matrix)
+        representative = np.empty(codes.max() + 1, np.int64)
+        representative[codes] = np.arange(len(codes))  # any row of a pattern stands for it
+        total = model.pattern_weight(matrix[representative], names)[codes]
     else:
         total = np.zeros(0)
     i = pairs["i"].to_numpy()
