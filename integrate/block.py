@@ -7,6 +7,7 @@ that produced them. Keys are visible columns, computed once per distinct value.
 from __future__ import annotations
 
 import logging
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import jellyfish
@@ -15,7 +16,6 @@ import pandas as pd
 
 from .mapping.spec import BlockingRule, CanonicalSchema
 from .standardise import DAY, MONTH, ROOT_SUFFIX, YEAR
-from .text_normalise import map_distinct
 
 log = logging.getLogger(__name__)
 
@@ -41,81 +41,148 @@ class BlockingReport:
         return 1.0 - self.candidate_pairs / self.all_pairs if self.all_pairs else 0.0
 
 
-def _key_part(prepared: pd.DataFrame, expression: str) -> pd.Series:
-    """Evaluate one key expression ``field[+field...][:transform]`` on the prepared frame."""
-    names, _, transform = expression.partition(":")
-    fields = names.split("+")
-    for name in fields:
-        if name not in prepared.columns:
-            raise KeyError(name)
-    transform = transform or "exact"
-    if transform == "year":
-        return prepared[fields[0] + YEAR].astype("string")
-    if transform == "month_day":
-        return (prepared[fields[0] + MONTH].astype("string") + "-" + prepared[fields[0] + DAY].astype("string"))
-    if transform == "root":
-        return prepared[fields[0] + ROOT_SUFFIX]
-    if len(fields) > 1:
-        base = prepared[fields[0]].astype("string").fillna("")
-        for name in fields[1:]:
-            base = base + " " + prepared[name].astype("string").fillna("")
-        base = base.str.strip().replace("", pd.NA)
-    else:
-        base = prepared[fields[0]].astype("string")
-        if fields[0] + YEAR in prepared.columns and transform == "exact":
+@dataclass
+class _Key:
+    """A blocking key as integer codes per record (-1: missing) and the distinct key texts.
+
+    Transforms run on the distinct values only, and keys of several parts are combined as codes,
+    so no key text is ever built per record.
+    """
+
+    codes: np.ndarray
+    values: np.ndarray  # object array of str, indexed by code
+
+    @classmethod
+    def of(cls, values: pd.Series) -> _Key:
+        codes, uniques = pd.factorize(values.astype("string"), use_na_sentinel=True)
+        return cls(codes.astype(np.int64), np.asarray(uniques, dtype=object))
+
+    def map(self, func: Callable[[str], str | None]) -> _Key:
+        """``func`` once per distinct value; values it maps to None or '' become missing."""
+        mapped = pd.Series([func(v) or None for v in self.values], dtype=object)
+        codes, uniques = pd.factorize(mapped, use_na_sentinel=True)
+        return _Key(np.append(codes, -1)[self.codes], np.asarray(uniques, dtype=object))
+
+    @staticmethod
+    def combine(keys: list[_Key], separator: str, *, missing_as_empty: bool = False) -> _Key:
+        """The keys' texts joined per record; missing when any part is missing, unless
+        ``missing_as_empty`` (a missing part is then '', the result is stripped, and only an
+        empty result is missing)."""
+        codes = np.zeros(len(keys[0].codes), np.int64)
+        for key in keys:
+            codes = pd.factorize(codes * (len(key.values) + 1) + key.codes + 1)[0]
+        first = np.empty(codes.max(initial=-1) + 1, np.int64)
+        first[codes] = np.arange(len(codes))  # one record stands for each combination of parts
+        texts = np.append(keys[0].values, "")[keys[0].codes[first]]
+        for key in keys[1:]:
+            texts = texts + separator + np.append(key.values, "")[key.codes[first]]
+        if missing_as_empty:
+            # equal texts from different parts ('a b' + 'c', 'a' + 'b c') must share one code
+            return _Key(codes, np.array([t.strip() for t in texts.tolist()], dtype=object)).map(lambda v: v)
+        # parts never hold the separator, so each combination has a text of its own
+        missing = np.any([key.codes < 0 for key in keys], axis=0)
+        return _Key(np.where(missing, -1, codes), texts)
+
+    def series(self, index: pd.Index) -> pd.Series:
+        return pd.Series(pd.array(np.append(self.values, None)[self.codes].tolist(), dtype="string"), index=index)
+
+
+class _Keys:
+    """Blocking keys of one prepared frame; each column and key expression is worked out once."""
+
+    def __init__(self, prepared: pd.DataFrame) -> None:
+        self.prepared = prepared
+        self._columns: dict[str, _Key] = {}
+        self._parts: dict[str, _Key] = {}
+
+    def column(self, name: str) -> _Key:
+        if name not in self._columns:
+            self._columns[name] = _Key.of(self.prepared[name])
+        return self._columns[name]
+
+    def rule(self, rule: BlockingRule) -> _Key:
+        parts = [self.part(expression) for expression in rule.keys]
+        return parts[0] if len(parts) == 1 else _Key.combine(parts, "\x1f")
+
+    def part(self, expression: str) -> _Key:
+        if expression not in self._parts:
+            self._parts[expression] = self._evaluate(expression)
+        return self._parts[expression]
+
+    def _evaluate(self, expression: str) -> _Key:
+        """Evaluate one key expression ``field[+field...][:transform]``."""
+        names, _, transform = expression.partition(":")
+        fields = names.split("+")
+        for name in fields:
+            if name not in self.prepared.columns:
+                raise KeyError(name)
+        transform = transform or "exact"
+        if transform == "year":
+            return self.column(fields[0] + YEAR)
+        if transform == "month_day":
+            return _Key.combine([self.column(fields[0] + part) for part in (MONTH, DAY)], "-")
+        if transform == "root":
+            return self.column(fields[0] + ROOT_SUFFIX)
+        if len(fields) > 1:
+            base = _Key.combine([self.column(name) for name in fields], " ", missing_as_empty=True)
+        else:
+            base = self.column(fields[0])
+        if len(fields) == 1 and fields[0] + YEAR in self.prepared.columns and transform == "exact":
             # an exact date key uses full dates only: a year-only value would block a whole year
-            base = base.where(prepared[fields[0] + DAY].notna(), pd.NA)
-    if transform == "exact":
-        return base
-    if transform == "soundex":
-        return map_distinct(base, lambda v: jellyfish.soundex(v.replace(" ", "")))
-    if transform == "nysiis":
-        return map_distinct(base, lambda v: jellyfish.nysiis(v.replace(" ", "")))
-    if transform == "sounds":
-        # sorted Soundex codes of every word: catches swapped given/family names despite a typo
-        return map_distinct(base, lambda v: " ".join(sorted({jellyfish.soundex(t) for t in v.split()})))
-    if transform == "initials":
-        # sorted first letters of every word: survives typos after the first letter and swaps
-        return map_distinct(base, lambda v: "".join(sorted(t[0] for t in v.split())))
-    if transform == "tokens":
-        return map_distinct(base, lambda v: " ".join(sorted(v.split())))
-    if transform.startswith("first") and transform[5:].isdigit():
-        return base.str.replace(" ", "", regex=False).str.slice(0, int(transform[5:]))
-    if transform.startswith("last") and transform[4:].isdigit():
-        return base.str.replace(" ", "", regex=False).str.slice(-int(transform[4:]))
-    raise ValueError(f"unknown key transform '{transform}'")
+            base = _Key(np.where(self.prepared[fields[0] + DAY].notna().to_numpy(), base.codes, -1), base.values)
+        if transform == "exact":
+            return base
+        if transform == "soundex":
+            return base.map(lambda v: jellyfish.soundex(v.replace(" ", "")))
+        if transform == "nysiis":
+            return base.map(lambda v: jellyfish.nysiis(v.replace(" ", "")))
+        if transform == "sounds":
+            # sorted Soundex codes of every word: catches swapped given/family names despite a typo
+            return base.map(lambda v: " ".join(sorted({jellyfish.soundex(t) for t in v.split()})))
+        if transform == "initials":
+            # sorted first letters of every word: survives typos after the first letter and swaps
+            return base.map(lambda v: "".join(sorted(t[0] for t in v.split())))
+        if transform == "tokens":
+            return base.map(lambda v: " ".join(sorted(v.split())))
+        if transform.startswith("first") and transform[5:].isdigit():
+            return base.map(lambda v: v.replace(" ", "")[:int(transform[5:])])
+        if transform.startswith("last") and transform[4:].isdigit():
+            return base.map(lambda v: v.replace(" ", "")[-int(transform[4:]):])
+        raise ValueError(f"unknown key transform '{transform}'")
 
 
 def rule_key(prepared: pd.DataFrame, rule: BlockingRule) -> pd.Series:
     """The blocking key of every record under one rule (NA when any part is missing)."""
-    parts = [_key_part(prepared, k) for k in rule.keys]
-    key = parts[0].astype("string")
-    for part in parts[1:]:
-        key = key + "\x1f" + part.astype("string")
-    return key
+    return _Keys(prepared).rule(rule).series(prepared.index)
 
 
-def _pairs_for_key(key: pd.Series, max_block: int) -> tuple[np.ndarray, np.ndarray, pd.Series]:
-    codes, uniques = pd.factorize(key, use_na_sentinel=True)
-    sizes = np.bincount(codes[codes >= 0], minlength=len(uniques))
-    keep = (codes >= 0)
-    big = sizes > max_block
-    if big.any():
-        keep &= ~big[np.where(codes >= 0, codes, 0)]
-    frame = pd.DataFrame({"code": codes[keep], "pos": np.flatnonzero(keep)})
-    frame = frame[sizes[frame["code"].to_numpy()] > 1]
-    joined = frame.merge(frame, on="code", suffixes=("_a", "_b"))
-    joined = joined[joined["pos_a"] < joined["pos_b"]]
-    big_blocks = pd.Series(sizes[big], index=pd.Index(uniques[big], dtype="object")).sort_values(ascending=False)
-    return joined["pos_a"].to_numpy(np.int64), joined["pos_b"].to_numpy(np.int64), big_blocks
+def _pairs_for_key(key: _Key, max_block: int) -> tuple[np.ndarray, np.ndarray, list[tuple[str, int]]]:
+    """Every pair of records sharing a key value, leaving out blocks larger than ``max_block``."""
+    sizes = np.bincount(key.codes[key.codes >= 0], minlength=len(key.values))
+    big = np.flatnonzero(sizes > max_block)
+    size_of = np.append(sizes, 0)[key.codes]  # a missing key (-1) is in no block
+    keep = (size_of > 1) & (size_of <= max_block)
+    records = np.flatnonzero(keep)
+    records = records[np.argsort(key.codes[records], kind="stable")]  # by block, then position
+    block_sizes = size_of[records]
+    starts = np.flatnonzero(np.r_[True, key.codes[records][1:] != key.codes[records][:-1]]) if len(records) else \
+        np.zeros(0, np.int64)
+    place = np.arange(len(records)) - np.repeat(starts, np.diff(np.r_[starts, len(records)]))
+    followers = block_sizes - 1 - place  # each record pairs with the records after it in its block
+    left = np.repeat(np.arange(len(records)), followers)
+    right = left + 1 + np.arange(len(left)) - np.repeat(np.cumsum(followers) - followers, followers)
+    big_blocks = [(str(key.values[b]), int(sizes[b])) for b in big[np.argsort(-sizes[big], kind="stable")]]
+    return records[left], records[right], big_blocks
 
 
-def _neighbour_pairs(key: pd.Series, window: int) -> tuple[np.ndarray, np.ndarray]:
+def _neighbour_pairs(key: _Key, window: int) -> tuple[np.ndarray, np.ndarray]:
     """Sorted neighbourhood (Hernández & Stolfo 1995): pairs within ``window`` places in key order."""
-    present = np.flatnonzero(key.notna().to_numpy())
+    present = np.flatnonzero(key.codes >= 0)
     if len(present) < 2:
         return np.zeros(0, np.int64), np.zeros(0, np.int64)
-    order = present[np.argsort(key.to_numpy(dtype=object)[present].astype(str), kind="mergesort")]
+    value_rank = np.empty(len(key.values), np.int64)
+    value_rank[np.argsort(key.values.astype(str), kind="mergesort")] = np.arange(len(key.values))
+    order = present[np.argsort(value_rank[key.codes[present]], kind="mergesort")]
     left, right = [], []
     for step in range(1, window):
         left.append(order[:-step])
@@ -123,6 +190,13 @@ def _neighbour_pairs(key: pd.Series, window: int) -> tuple[np.ndarray, np.ndarra
     i = np.concatenate(left)
     j = np.concatenate(right)
     return np.minimum(i, j).astype(np.int64), np.maximum(i, j).astype(np.int64)
+
+
+def _largest_blocks(key: _Key, count: int = 5) -> list[tuple[str, int]]:
+    """The ``count`` largest blocks as (key, records), largest first (ties: first seen first)."""
+    sizes = np.bincount(key.codes[key.codes >= 0], minlength=len(key.values))
+    top = np.argsort(-sizes, kind="stable")[:count]
+    return [(str(key.values[b]), int(sizes[b])) for b in top if sizes[b] > 0]
 
 
 def block(
@@ -156,23 +230,23 @@ def block(
     collected: list[pd.DataFrame] = []
     largest: dict[str, list[tuple[str, int]]] = {}
     skipped: list[tuple[str, str, int]] = []
+    keys = _Keys(prepared)
     for bit, rule in enumerate(rules):
-        key = rule_key(prepared, rule)
+        key = keys.rule(rule)
         if rule.window:
             i, j = _neighbour_pairs(key, rule.window)
-            big = pd.Series(dtype="int64")
+            big: list[tuple[str, int]] = []
         else:
             i, j, big = _pairs_for_key(key, max_block_size)
         if group_codes is not None:
             across = group_codes[i] != group_codes[j]
             i, j = i[across], j[across]
-        for value, size in big.items():
-            shown = str(value).replace("\x1f", " + ")
+        for value, size in big:
+            shown = value.replace("\x1f", " + ")
             log.warning("blocking rule '%s': key '%s' is shared by %d records; block skipped", rule.name,
                         shown, size)
-            skipped.append((rule.name, shown, int(size)))
-        counts = key.value_counts().head(5)
-        largest[rule.name] = [(str(k).replace("\x1f", " + "), int(v)) for k, v in counts.items()]
+            skipped.append((rule.name, shown, size))
+        largest[rule.name] = [(k.replace("\x1f", " + "), v) for k, v in _largest_blocks(key)]
         collected.append(pd.DataFrame({"i": i, "j": j, "rules": np.int64(1 << bit)}))
     if collected:
         allp = pd.concat(collected, ignore_index=True)
