@@ -227,14 +227,15 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
     """
     names = list(grades.columns)
     marks = np.zeros(len(grades), np.int8) if labels is None else np.asarray(labels, np.int8)
-    frames = [grades.assign(_w=1.0, _label=marks)]
+    rows, weights = [np.column_stack([grades[names].to_numpy(np.int64), marks])], [np.ones(len(grades))]
     if background is not None and len(background) and background_weight > 0:
-        frames.append(background[names].assign(_w=background_weight, _label=np.int8(0)))
-    stacked = pd.concat(frames, ignore_index=True)
-    patterns = stacked.groupby(names + ["_label"], sort=False)["_w"].sum().reset_index()
-    counts = patterns["_w"].to_numpy(float)
-    G = patterns[names].to_numpy(np.int64)
-    label = patterns["_label"].to_numpy()
+        rows.append(np.column_stack([background[names].to_numpy(np.int64), np.zeros(len(background), np.int64)]))
+        weights.append(np.full(len(background), background_weight))
+    stacked = np.concatenate(rows)
+    codes = pattern_codes(stacked)  # distinct (grades, label) rows, in order of first appearance
+    counts = np.bincount(codes, weights=np.concatenate(weights))
+    first = np.unique(codes, return_index=True)[1]
+    G, label = stacked[first, :-1], stacked[first, -1]
     theta, shares, free = _initial_classes(types, u_random)
     if start is not None:
         theta = {k: {f: v.copy() for f, v in profile.items()} for k, profile in start._theta.items()}
@@ -306,12 +307,13 @@ def _plausibility(model: ScoreModel) -> list[str]:
     return notes
 
 
-def _rarity(keys: pd.Series, freq_of: pd.Series) -> np.ndarray:
-    """log2(Σp² / p_v): how much rarer than average the agreeing value is (bits), capped at ±6."""
-    freq = freq_of.value_counts(normalize=True)
+def _rarity(keys: np.ndarray, codes: np.ndarray) -> np.ndarray:
+    """log2(Σp² / p_v): how much rarer than average the agreeing value is (bits), capped at ±6.
+
+    ``codes`` are every record's value codes (-1: missing), ``keys`` the agreeing values' codes."""
+    freq = np.bincount(codes[codes >= 0]) / max(int((codes >= 0).sum()), 1)
     mean_share = float((freq ** 2).sum())
-    share = keys.map(freq).to_numpy(float)
-    return np.log2(mean_share / np.maximum(share, 1e-12)).clip(-6.0, 6.0)
+    return np.log2(mean_share / np.maximum(freq[keys], 1e-12)).clip(-6.0, 6.0)
 
 
 def frequency_adjustments(prepared: pd.DataFrame, grades: pd.DataFrame, field_types: dict[str, str],
@@ -328,7 +330,8 @@ def frequency_adjustments(prepared: pd.DataFrame, grades: pd.DataFrame, field_ty
         top = grades[f].to_numpy(np.int64) == len(GRADE_NAMES[ftype]) - 1
         adjust = np.zeros(len(top))
         if top.any():
-            adjust[top] = _rarity(prepared[f].iloc[i[top]], prepared[f])
+            codes = pd.factorize(prepared[f], use_na_sentinel=True)[0]
+            adjust[top] = _rarity(codes[i[top]], codes)
         out[f] = adjust
     return out
 
