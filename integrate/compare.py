@@ -132,9 +132,21 @@ def pair_scores(a: pd.Series, b: pd.Series, scorer: Callable[..., float]) -> np.
 class _Columns:
     """Coded columns of the prepared frame, each coded once per comparison run."""
 
-    def __init__(self, prepared: pd.DataFrame) -> None:
+    def __init__(self, prepared: pd.DataFrame, names: list[str]) -> None:
         self.prepared = prepared
+        self.names = names  # the person-name fields
         self._coded: dict[str, Coded] = {}
+        self._roots: dict[str, np.ndarray] = {}
+
+    def roots(self, name: str) -> list[np.ndarray]:
+        """Codes of a name field's two formal-name columns, coded together with every other name
+        field's so that a given name's formal name can equal a family name's."""
+        if not self._roots:
+            columns = [f + suffix for f in self.names for suffix in (ROOT_SUFFIX, OTHER_ROOT)]
+            coded = Coded(pd.concat([self.prepared[c] for c in columns], ignore_index=True))
+            n = len(self.prepared)
+            self._roots = {c: coded.codes[k * n:(k + 1) * n] for k, c in enumerate(columns)}
+        return [self._roots[name + ROOT_SUFFIX], self._roots[name + OTHER_ROOT]]
 
     def __getitem__(self, column: str) -> Coded:
         if column not in self._coded:
@@ -197,13 +209,10 @@ def _quantity_grades(x: np.ndarray, y: np.ndarray) -> np.ndarray:
 
 def _share_a_root(cols: _Columns, field_a: str, field_b: str, i: np.ndarray, j: np.ndarray) -> np.ndarray:
     """Whether record i's name in field_a and record j's in field_b can stand for one formal name."""
-    columns = [field_a + ROOT_SUFFIX, field_a + OTHER_ROOT, field_b + ROOT_SUFFIX, field_b + OTHER_ROOT]
-    coded = Coded(pd.concat([cols.prepared[c] for c in columns], ignore_index=True))
-    n = len(cols.prepared)
     out = np.zeros(len(i), bool)
-    for a in (0, 1):
-        for b in (2, 3):
-            x, y = coded.codes[i + a * n], coded.codes[j + b * n]
+    for a in cols.roots(field_a):
+        for b in cols.roots(field_b):
+            x, y = a[i], b[j]
             out |= (x == y) & (x >= 0)
     return out
 
@@ -253,7 +262,8 @@ def compare(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSch
     """
     i = pairs["i"].to_numpy()
     j = pairs["j"].to_numpy()
-    cols = _Columns(prepared)
+    cols = _Columns(prepared, [n for n, spec in canonical.fields.items()
+                               if spec.is_compared() and spec.type == "person_name"])
     grades: dict[str, np.ndarray] = {}
     names: list[str] = []
     for name, spec in canonical.fields.items():
