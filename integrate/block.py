@@ -20,6 +20,7 @@ from .standardise import DAY, MONTH, ROOT_SUFFIX, YEAR
 log = logging.getLogger(__name__)
 
 PAIR_COLUMNS = ("i", "j", "rules")
+SEPARATOR = "\x1f"  # between the parts of a rule's key text
 SORTED_WINDOW = 5  # sorted-neighbourhood window of the default rules (records compared with the next 4)
 
 
@@ -46,45 +47,78 @@ class _Key:
     """A blocking key as integer codes per record (-1: missing) and the distinct key texts.
 
     Transforms run on the distinct values only, and keys of several parts are combined as codes,
-    so no key text is ever built per record.
+    so no key text is built per record. A key of several parts builds its texts only when they
+    are asked for (the report's largest blocks, sorted neighbourhoods).
     """
 
     codes: np.ndarray
-    values: np.ndarray  # object array of str, indexed by code
+    count: int  # distinct values: codes run from 0 to count - 1
+    _texts: np.ndarray | None = None  # object array of str by code, or None: joined from the parts
+    _parts: tuple[_Key, ...] = ()
+    _records: np.ndarray | None = None  # a record holding each code, to look up the parts' texts
+    _separator: str = SEPARATOR
 
     @classmethod
     def of(cls, values: pd.Series) -> _Key:
         codes, uniques = pd.factorize(values.astype("string"), use_na_sentinel=True)
-        return cls(codes.astype(np.int64), np.asarray(uniques, dtype=object))
+        return cls(codes.astype(np.int64), len(uniques), np.asarray(uniques, dtype=object))
+
+    def texts(self, wanted: np.ndarray | None = None) -> np.ndarray:
+        """The texts of the codes ``wanted`` (default: all), as an object array."""
+        if self._texts is not None:
+            return self._texts if wanted is None else self._texts[wanted]
+        assert self._records is not None
+        records = self._records if wanted is None else self._records[wanted]
+        out = self._parts[0].texts(self._parts[0].codes[records])
+        for part in self._parts[1:]:
+            out = out + self._separator + part.texts(part.codes[records])
+        return out
 
     def map(self, func: Callable[[str], str | None]) -> _Key:
         """``func`` once per distinct value; values it maps to None or '' become missing."""
-        mapped = pd.Series([func(v) or None for v in self.values], dtype=object)
+        mapped = pd.Series([func(v) or None for v in self.texts().tolist()], dtype=object)
         codes, uniques = pd.factorize(mapped, use_na_sentinel=True)
-        return _Key(np.append(codes, -1)[self.codes], np.asarray(uniques, dtype=object))
+        return _Key(np.append(codes, -1)[self.codes], len(uniques), np.asarray(uniques, dtype=object))
+
+    def without(self, missing: np.ndarray) -> _Key:
+        """The same key with the records of ``missing`` taken out (their code becomes -1)."""
+        return _Key(np.where(missing, -1, self.codes), self.count, self._texts, self._parts, self._records,
+                    self._separator)
 
     @staticmethod
-    def combine(keys: list[_Key], separator: str, *, missing_as_empty: bool = False) -> _Key:
-        """The keys' texts joined per record; missing when any part is missing, unless
-        ``missing_as_empty`` (a missing part is then '', the result is stripped, and only an
-        empty result is missing)."""
-        codes = np.zeros(len(keys[0].codes), np.int64)
+    def _combined_codes(keys: list[_Key], present: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """A code per distinct combination of the keys' codes among ``present`` records (-1 for
+        the others), and a record holding each code."""
+        codes = np.zeros(int(present.sum()), np.int64)
         for key in keys:
-            codes = pd.factorize(codes * (len(key.values) + 1) + key.codes + 1)[0]
-        first = np.empty(codes.max(initial=-1) + 1, np.int64)
-        first[codes] = np.arange(len(codes))  # one record stands for each combination of parts
-        texts = np.append(keys[0].values, "")[keys[0].codes[first]]
+            codes = pd.factorize(codes * (key.count + 1) + key.codes[present] + 1)[0]
+        out = np.full(len(present), -1, np.int64)
+        out[present] = codes
+        records = np.empty(codes.max(initial=-1) + 1, np.int64)
+        records[codes] = np.flatnonzero(present)
+        return out, records
+
+    @staticmethod
+    def joined(keys: list[_Key], separator: str = SEPARATOR) -> _Key:
+        """Several keys together, texts joined by ``separator``; missing when any part is missing.
+        Parts never hold the separator, so each combination of codes has a text of its own."""
+        codes, records = _Key._combined_codes(keys, np.all([k.codes >= 0 for k in keys], axis=0))
+        return _Key(codes, len(records), None, tuple(keys), records, separator)
+
+    @staticmethod
+    def spaced(keys: list[_Key]) -> _Key:
+        """Several fields as one text 'a b c', a missing field counting as '' (missing when all are)."""
+        codes, records = _Key._combined_codes(keys, np.ones(len(keys[0].codes), bool))
+        texts = np.append(keys[0].texts(), "")[keys[0].codes[records]]
         for key in keys[1:]:
-            texts = texts + separator + np.append(key.values, "")[key.codes[first]]
-        if missing_as_empty:
-            # equal texts from different parts ('a b' + 'c', 'a' + 'b c') must share one code
-            return _Key(codes, np.array([t.strip() for t in texts.tolist()], dtype=object)).map(lambda v: v)
-        # parts never hold the separator, so each combination has a text of its own
-        missing = np.any([key.codes < 0 for key in keys], axis=0)
-        return _Key(np.where(missing, -1, codes), texts)
+            texts = texts + " " + np.append(key.texts(), "")[key.codes[records]]
+        # equal texts from different parts ('a b' + 'c', 'a' + 'b c') must share one code
+        stripped = np.array([t.strip() for t in texts.tolist()], dtype=object)
+        return _Key(codes, len(records), stripped).map(lambda v: v)
 
     def series(self, index: pd.Index) -> pd.Series:
-        return pd.Series(pd.array(np.append(self.values, None)[self.codes].tolist(), dtype="string"), index=index)
+        texts = np.append(self.texts(), None)[self.codes]
+        return pd.Series(pd.array(texts.tolist(), dtype="string"), index=index)
 
 
 class _Keys:
@@ -102,7 +136,7 @@ class _Keys:
 
     def rule(self, rule: BlockingRule) -> _Key:
         parts = [self.part(expression) for expression in rule.keys]
-        return parts[0] if len(parts) == 1 else _Key.combine(parts, "\x1f")
+        return parts[0] if len(parts) == 1 else _Key.joined(parts)
 
     def part(self, expression: str) -> _Key:
         if expression not in self._parts:
@@ -120,16 +154,16 @@ class _Keys:
         if transform == "year":
             return self.column(fields[0] + YEAR)
         if transform == "month_day":
-            return _Key.combine([self.column(fields[0] + part) for part in (MONTH, DAY)], "-")
+            return _Key.joined([self.column(fields[0] + MONTH), self.column(fields[0] + DAY)], "-")
         if transform == "root":
             return self.column(fields[0] + ROOT_SUFFIX)
         if len(fields) > 1:
-            base = _Key.combine([self.column(name) for name in fields], " ", missing_as_empty=True)
+            base = _Key.spaced([self.column(name) for name in fields])
         else:
             base = self.column(fields[0])
         if len(fields) == 1 and fields[0] + YEAR in self.prepared.columns and transform == "exact":
             # an exact date key uses full dates only: a year-only value would block a whole year
-            base = _Key(np.where(self.prepared[fields[0] + DAY].notna().to_numpy(), base.codes, -1), base.values)
+            base = base.without(self.prepared[fields[0] + DAY].isna().to_numpy())
         if transform == "exact":
             return base
         if transform == "soundex":
@@ -158,7 +192,7 @@ def rule_key(prepared: pd.DataFrame, rule: BlockingRule) -> pd.Series:
 
 def _pairs_for_key(key: _Key, max_block: int) -> tuple[np.ndarray, np.ndarray, list[tuple[str, int]]]:
     """Every pair of records sharing a key value, leaving out blocks larger than ``max_block``."""
-    sizes = np.bincount(key.codes[key.codes >= 0], minlength=len(key.values))
+    sizes = np.bincount(key.codes[key.codes >= 0], minlength=key.count)
     big = np.flatnonzero(sizes > max_block)
     size_of = np.append(sizes, 0)[key.codes]  # a missing key (-1) is in no block
     keep = (size_of > 1) & (size_of <= max_block)
@@ -171,7 +205,8 @@ def _pairs_for_key(key: _Key, max_block: int) -> tuple[np.ndarray, np.ndarray, l
     followers = block_sizes - 1 - place  # each record pairs with the records after it in its block
     left = np.repeat(np.arange(len(records)), followers)
     right = left + 1 + np.arange(len(left)) - np.repeat(np.cumsum(followers) - followers, followers)
-    big_blocks = [(str(key.values[b]), int(sizes[b])) for b in big[np.argsort(-sizes[big], kind="stable")]]
+    big = big[np.argsort(-sizes[big], kind="stable")]
+    big_blocks = [(str(text), int(size)) for text, size in zip(key.texts(big).tolist(), sizes[big].tolist())]
     return records[left], records[right], big_blocks
 
 
@@ -180,8 +215,8 @@ def _neighbour_pairs(key: _Key, window: int) -> tuple[np.ndarray, np.ndarray]:
     present = np.flatnonzero(key.codes >= 0)
     if len(present) < 2:
         return np.zeros(0, np.int64), np.zeros(0, np.int64)
-    value_rank = np.empty(len(key.values), np.int64)
-    value_rank[np.argsort(key.values.astype(str), kind="mergesort")] = np.arange(len(key.values))
+    value_rank = np.empty(key.count, np.int64)
+    value_rank[np.argsort(key.texts().astype(str), kind="mergesort")] = np.arange(key.count)
     order = present[np.argsort(value_rank[key.codes[present]], kind="mergesort")]
     left, right = [], []
     for step in range(1, window):
@@ -194,9 +229,10 @@ def _neighbour_pairs(key: _Key, window: int) -> tuple[np.ndarray, np.ndarray]:
 
 def _largest_blocks(key: _Key, count: int = 5) -> list[tuple[str, int]]:
     """The ``count`` largest blocks as (key, records), largest first (ties: first seen first)."""
-    sizes = np.bincount(key.codes[key.codes >= 0], minlength=len(key.values))
+    sizes = np.bincount(key.codes[key.codes >= 0], minlength=key.count)
     top = np.argsort(-sizes, kind="stable")[:count]
-    return [(str(key.values[b]), int(sizes[b])) for b in top if sizes[b] > 0]
+    top = top[sizes[top] > 0]
+    return [(str(text), int(size)) for text, size in zip(key.texts(top).tolist(), sizes[top].tolist())]
 
 
 def block(
@@ -242,11 +278,11 @@ def block(
             across = group_codes[i] != group_codes[j]
             i, j = i[across], j[across]
         for value, size in big:
-            shown = value.replace("\x1f", " + ")
+            shown = value.replace(SEPARATOR, " + ")
             log.warning("blocking rule '%s': key '%s' is shared by %d records; block skipped", rule.name,
                         shown, size)
             skipped.append((rule.name, shown, size))
-        largest[rule.name] = [(k.replace("\x1f", " + "), v) for k, v in _largest_blocks(key)]
+        largest[rule.name] = [(k.replace(SEPARATOR, " + "), v) for k, v in _largest_blocks(key)]
         collected.append(pd.DataFrame({"i": i, "j": j, "rules": np.int64(1 << bit)}))
     if collected:
         allp = pd.concat(collected, ignore_index=True)
