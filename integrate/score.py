@@ -234,7 +234,7 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
     stacked = np.concatenate(rows)
     codes = pattern_codes(stacked)  # distinct (grades, label) rows, in order of first appearance
     counts = np.bincount(codes, weights=np.concatenate(weights))
-    first = np.unique(codes, return_index=True)[1]
+    first = np.flatnonzero(np.diff(np.maximum.accumulate(codes), prepend=-1) > 0)  # each pattern's first row
     G, label = stacked[first, :-1], stacked[first, -1]
     theta, shares, free = _initial_classes(types, u_random)
     if start is not None:
