@@ -227,13 +227,15 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
     """
     names = list(grades.columns)
     marks = np.zeros(len(grades), np.int8) if labels is None else np.asarray(labels, np.int8)
-    rows, weights = [np.column_stack([grades[names].to_numpy(np.int64), marks])], [np.ones(len(grades))]
+    rows = [np.column_stack([grades[names].to_numpy(np.int64), marks])]
     if background is not None and len(background) and background_weight > 0:
         rows.append(np.column_stack([background[names].to_numpy(np.int64), np.zeros(len(background), np.int64)]))
-        weights.append(np.full(len(background), background_weight))
     stacked = np.concatenate(rows)
     codes = pattern_codes(stacked)  # distinct (grades, label) rows, in order of first appearance
-    counts = np.bincount(codes, weights=np.concatenate(weights))
+    # candidate pairs count 1 each, background pairs background_weight each
+    counts = np.bincount(codes[:len(grades)], minlength=codes.max(initial=-1) + 1).astype(float)
+    if len(rows) > 1:
+        counts += background_weight * np.bincount(codes[len(grades):], minlength=len(counts))
     first = np.flatnonzero(np.diff(np.maximum.accumulate(codes), prepend=-1) > 0)  # each pattern's first row
     G, label = stacked[first, :-1], stacked[first, -1]
     theta, shares, free = _initial_classes(types, u_random)
