@@ -142,6 +142,7 @@ class _Components:
             self.cannot.setdefault(a, []).append(b)
             self.cannot.setdefault(b, []).append(a)
         self.component, self.count = self._components(n)
+        self._links_index, self._must_index = self._by_component(self.links), self._by_component(self.must)
         # only pairs whose records the links join can ever be cut apart: keep just those
         i, j = scored["i"].to_numpy(np.int64), scored["j"].to_numpy(np.int64)
         same_component = self.component[i] == self.component[j]
@@ -202,14 +203,27 @@ class _Components:
         number = self.component[members[0]]
         graph = nx.Graph()
         graph.add_nodes_from(members)
-        a, b, p = (x[self.component[self.links[0]] == number].tolist() for x in self.links)
+        a, b, p = self._edges_of(self.links, self._links_index, number)
         graph.add_edges_from((x, y, {"capacity": q}) for x, y, q in zip(a, b, p))
         # must-links: no 'capacity' attribute means infinite capacity to networkx' flow algorithms
-        a, b, _ = (x[self.component[self.must[0]] == number].tolist() for x in self.must)
+        a, b, _ = self._edges_of(self.must, self._must_index, number)
         for x, y in zip(a, b):
             graph.add_edge(x, y, must=True)
             graph.edges[x, y].pop("capacity", None)
         return graph
+
+    def _edges_of(self, edges: tuple[np.ndarray, np.ndarray, np.ndarray], index: tuple[np.ndarray, np.ndarray],
+                  number: int) -> tuple[list[int], list[int], list[float]]:
+        """The edges of component ``number``, in rank order; ``index`` is (their order by component,
+        the sorted component numbers), so finding them is a binary search."""
+        order, sorted_component = index
+        span = order[np.searchsorted(sorted_component, number):np.searchsorted(sorted_component, number, "right")]
+        return edges[0][span].tolist(), edges[1][span].tolist(), edges[2][span].tolist()
+
+    def _by_component(self, edges: tuple[np.ndarray, np.ndarray, np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+        component = self.component[edges[0]]
+        order = np.argsort(component, kind="stable")  # stable: rank order within a component
+        return order, component[order]
 
     def probability_of(self, a: int, b: int) -> float | None:
         p = self.pair_probability.get((a, b), self.pair_probability.get((b, a)))
