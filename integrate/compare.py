@@ -11,7 +11,7 @@ from collections.abc import Callable
 
 import numpy as np
 import pandas as pd
-from rapidfuzz import fuzz, process
+from rapidfuzz import process
 from rapidfuzz.distance import OSA, JaroWinkler
 
 from .mapping.spec import CanonicalSchema
@@ -80,19 +80,45 @@ class Coded:
     def missing(self, i: np.ndarray, j: np.ndarray) -> np.ndarray:
         return (self.codes[i] < 0) | (self.codes[j] < 0)
 
-    def scores(self, i: np.ndarray, j: np.ndarray, scorer: Callable[..., float]) -> np.ndarray:
-        """``scorer`` of every pair's two values, once per distinct pair; NaN where one is missing."""
+    def scores(self, i: np.ndarray, j: np.ndarray, scorer: Callable[..., float], *,
+               where: np.ndarray | None = None) -> np.ndarray:
+        """``scorer`` of every pair's two values, once per distinct pair; NaN where one is missing
+        or ``where`` is False (pairs whose grade is settled without it)."""
         a, b = self.codes[i], self.codes[j]
         both = (a >= 0) & (b >= 0)
+        if where is not None:
+            both &= where
         out = np.full(len(a), np.nan)
         if not both.any():
             return out
         keys = a[both].astype(np.int64) * (len(self.values) + 1) + b[both]
-        unique, inverse = np.unique(keys, return_inverse=True)
+        inverse, unique = pd.factorize(keys)
         left = self.values[unique // (len(self.values) + 1)].tolist()
         right = self.values[unique % (len(self.values) + 1)].tolist()
         scores = process.cpdist(left, right, scorer=scorer, workers=-1)
         out[both] = np.asarray(scores, dtype=float)[inverse]
+        return out
+
+    def words_within(self, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+        """Whether all words of one value are among the other's ('smith jones' / 'jones').
+
+        The same as rapidfuzz's token_set_ratio reaching 100, without scoring: two one-word
+        values compare by their word, and only pairs with a longer value compare word sets.
+        """
+        words = [frozenset(v.split()) for v in self.values.tolist()]
+        single = np.array([len(w) == 1 for w in words] + [False])
+        word_code = np.append(pd.factorize(np.array([next(iter(w)) if len(w) == 1 else None for w in words],
+                                                    dtype=object))[0], -1)
+        a, b = self.codes[i], self.codes[j]
+        out = single[a] & single[b] & (word_code[a] == word_code[b])
+        longer = (a >= 0) & (b >= 0) & ~(single[a] & single[b])
+        if longer.any():
+            keys = a[longer].astype(np.int64) * (len(self.values) + 1) + b[longer]
+            inverse, unique = pd.factorize(keys)
+            within = [bool(x and y and (x <= y or y <= x)) for x, y in
+                      zip((words[k] for k in (unique // (len(self.values) + 1)).tolist()),
+                          (words[k] for k in (unique % (len(self.values) + 1)).tolist()))]
+            out[longer] = np.asarray(within, dtype=bool)[inverse]
         return out
 
 
@@ -106,9 +132,21 @@ def pair_scores(a: pd.Series, b: pd.Series, scorer: Callable[..., float]) -> np.
 class _Columns:
     """Coded columns of the prepared frame, each coded once per comparison run."""
 
-    def __init__(self, prepared: pd.DataFrame) -> None:
+    def __init__(self, prepared: pd.DataFrame, names: list[str]) -> None:
         self.prepared = prepared
+        self.names = names  # the person-name fields
         self._coded: dict[str, Coded] = {}
+        self._roots: dict[str, np.ndarray] = {}
+
+    def roots(self, name: str) -> list[np.ndarray]:
+        """Codes of a name field's two formal-name columns, coded together with every other name
+        field's so that a given name's formal name can equal a family name's."""
+        if not self._roots:
+            columns = [f + suffix for f in self.names for suffix in (ROOT_SUFFIX, OTHER_ROOT)]
+            coded = Coded(pd.concat([self.prepared[c] for c in columns], ignore_index=True))
+            n = len(self.prepared)
+            self._roots = {c: coded.codes[k * n:(k + 1) * n] for k, c in enumerate(columns)}
+        return [self._roots[name + ROOT_SUFFIX], self._roots[name + OTHER_ROOT]]
 
     def __getitem__(self, column: str) -> Coded:
         if column not in self._coded:
@@ -120,24 +158,28 @@ class _Columns:
 
 
 def _edit_grades(col: Coded, i: np.ndarray, j: np.ndarray) -> np.ndarray:
-    dist = col.scores(i, j, OSA.distance)
-    grade = np.where(col.equal(i, j), 2, np.where(dist <= 1, 1, 0))
+    equal = col.equal(i, j)
+    dist = col.scores(i, j, OSA.distance, where=~equal)
+    grade = np.where(equal, 2, np.where(dist <= 1, 1, 0))
     return np.where(col.missing(i, j), MISSING, grade)
 
 
 def _name_grades(cols: _Columns, name: str, i: np.ndarray, j: np.ndarray) -> np.ndarray:
     col, first = cols[name], cols[name + FIRST_WORD]
-    # the whole names and their first words ('bejamin' / 'benjamin rowan' compare as first words)
-    jw = np.fmax(col.scores(i, j, JaroWinkler.normalized_similarity),
-                 first.scores(i, j, JaroWinkler.normalized_similarity))
-    # one keystroke apart counts as close however short the name ('km' / 'kim', 'aav' / 'ava'),
-    # where Jaro–Winkler's scale is too coarse
-    one_edit = (col.scores(i, j, OSA.distance) <= 1) | (first.scores(i, j, OSA.distance) <= 1)
+    equal = col.equal(i, j)
     same_root = _share_a_root(cols, name, name, i, j)
     # one name's words all within the other's: 'smith jones' / 'jones', 'van der berg' / 'berg'
-    part_of = col.scores(i, j, fuzz.token_set_ratio) == 100
-    grade = np.select([col.equal(i, j), same_root | first.equal(i, j) | part_of, (jw >= JW_CLOSE) | one_edit,
-                       jw >= JW_FAIR], [4, 3, 2, 1], 0)
+    part_of = col.words_within(i, j)
+    equivalent = same_root | first.equal(i, j) | part_of
+    rest = ~(equal | equivalent)
+    # the whole names and their first words ('bejamin' / 'benjamin rowan' compare as first words)
+    jw = np.fmax(col.scores(i, j, JaroWinkler.normalized_similarity, where=rest),
+                 first.scores(i, j, JaroWinkler.normalized_similarity, where=rest))
+    # one keystroke apart counts as close however short the name ('km' / 'kim', 'aav' / 'ava'),
+    # where Jaro–Winkler's scale is too coarse
+    one_edit = ((col.scores(i, j, OSA.distance, where=rest) <= 1)
+                | (first.scores(i, j, OSA.distance, where=rest) <= 1))
+    grade = np.select([equal, equivalent, (jw >= JW_CLOSE) | one_edit, jw >= JW_FAIR], [4, 3, 2, 1], 0)
     return np.where(col.missing(i, j), MISSING, grade)
 
 
@@ -157,8 +199,9 @@ def _date_grades(cols: _Columns, name: str, i: np.ndarray, j: np.ndarray) -> np.
 
 
 def _text_grades(col: Coded, i: np.ndarray, j: np.ndarray) -> np.ndarray:
-    jw = col.scores(i, j, JaroWinkler.normalized_similarity)
-    grade = np.select([col.equal(i, j), jw >= JW_CLOSE, jw >= JW_FAIR], [3, 2, 1], 0)
+    equal = col.equal(i, j)
+    jw = col.scores(i, j, JaroWinkler.normalized_similarity, where=~equal)
+    grade = np.select([equal, jw >= JW_CLOSE, jw >= JW_FAIR], [3, 2, 1], 0)
     return np.where(col.missing(i, j), MISSING, grade)
 
 
@@ -172,13 +215,10 @@ def _quantity_grades(x: np.ndarray, y: np.ndarray) -> np.ndarray:
 
 def _share_a_root(cols: _Columns, field_a: str, field_b: str, i: np.ndarray, j: np.ndarray) -> np.ndarray:
     """Whether record i's name in field_a and record j's in field_b can stand for one formal name."""
-    columns = [field_a + ROOT_SUFFIX, field_a + OTHER_ROOT, field_b + ROOT_SUFFIX, field_b + OTHER_ROOT]
-    coded = Coded(pd.concat([cols.prepared[c] for c in columns], ignore_index=True))
-    n = len(cols.prepared)
     out = np.zeros(len(i), bool)
-    for a in (0, 1):
-        for b in (2, 3):
-            x, y = coded.codes[i + a * n], coded.codes[j + b * n]
+    for a in cols.roots(field_a):
+        for b in cols.roots(field_b):
+            x, y = a[i], b[j]
             out |= (x == y) & (x >= 0)
     return out
 
@@ -200,10 +240,14 @@ def _swap_names(grades: dict[str, np.ndarray], cols: _Columns, names: list[str],
         present = both.codes[x] >= 0
         return present & (same | roots | (jw >= JW_CLOSE)), present & (jw >= JW_FAIR)
 
+    differ = both.codes[i] != both.codes[i + n]
     strong_1, fair_1 = alike(i, j + n, first, second)
-    strong_2, fair_2 = alike(i + n, j, second, first)
+    # the other crossing matters only where this one is alike
+    maybe = np.flatnonzero((strong_1 | fair_1) & differ)
+    strong_2, fair_2 = np.zeros(len(i), bool), np.zeros(len(i), bool)
+    strong_2[maybe], fair_2[maybe] = alike(i[maybe] + n, j[maybe], second, first)
     # both crossed names alike, one of them strongly: a swap, whatever typo the other carries
-    crossed = ((strong_1 & (strong_2 | fair_2)) | (fair_1 & strong_2)) & (both.codes[i] != both.codes[i + n])
+    crossed = ((strong_1 & (strong_2 | fair_2)) | (fair_1 & strong_2)) & differ
     for name in (first, second):
         grades[name] = np.where(crossed, np.maximum(grades[name], 3), grades[name])
 
@@ -224,7 +268,8 @@ def compare(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSch
     """
     i = pairs["i"].to_numpy()
     j = pairs["j"].to_numpy()
-    cols = _Columns(prepared)
+    cols = _Columns(prepared, [n for n, spec in canonical.fields.items()
+                               if spec.is_compared() and spec.type == "person_name"])
     grades: dict[str, np.ndarray] = {}
     names: list[str] = []
     for name, spec in canonical.fields.items():

@@ -13,6 +13,7 @@ from .ids import canonical_order
 from .mapping.spec import CanonicalSchema, FieldType, Thresholds
 from .matching import MatchResult, match_records
 from .resolve import resolve
+from .text_normalise import map_distinct
 
 # Column-name hints for inferring field types (common practice in exports).
 _NAME_HINTS: list[tuple[str, FieldType]] = [
@@ -102,8 +103,12 @@ def _records(frame: pd.DataFrame, fields: dict[str, FieldType], source: str, id_
         elif ftype in ("quantity", "money"):
             out[_field_name(column)] = pd.to_numeric(values, errors="coerce").to_numpy()
         else:
-            out[_field_name(column)] = values.astype("string").str.strip().replace("", pd.NA).to_numpy()
+            out[_field_name(column)] = map_distinct(values.astype("string"), _stripped).to_numpy()
     return out
+
+
+def _stripped(text: str) -> str | None:
+    return text.strip() or None
 
 
 def _run(records: pd.DataFrame, schema: CanonicalSchema, across: bool) -> FrameResult:

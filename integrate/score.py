@@ -121,6 +121,15 @@ def random_pairs(n: int, count: int, groups: np.ndarray | None = None, seed: int
     return pd.DataFrame({"i": np.minimum(i, j), "j": np.maximum(i, j)})
 
 
+def pattern_codes(matrix: np.ndarray) -> np.ndarray:
+    """A code per row of a small-integer matrix, equal for equal rows, numbered in order of first
+    appearance (a hash per column, so no sort of the rows)."""
+    codes = np.zeros(len(matrix), np.int64)
+    for column in matrix.T:
+        codes = pd.factorize(codes * (column.max(initial=0) - column.min(initial=0) + 1) + column)[0]
+    return codes
+
+
 def _level_freq(grades: np.ndarray, levels: int) -> np.ndarray:
     present = grades[grades != MISSING]
     counts = np.bincount(present, minlength=levels).astype(float) + PSEUDO_COUNT
@@ -233,14 +242,17 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
     """
     names = list(grades.columns)
     marks = np.zeros(len(grades), np.int8) if labels is None else np.asarray(labels, np.int8)
-    frames = [grades.assign(_w=1.0, _label=marks)]
+    rows = [np.column_stack([grades[names].to_numpy(np.int64), marks])]
     if background is not None and len(background) and background_weight > 0:
-        frames.append(background[names].assign(_w=background_weight, _label=np.int8(0)))
-    stacked = pd.concat(frames, ignore_index=True)
-    patterns = stacked.groupby(names + ["_label"], sort=False)["_w"].sum().reset_index()
-    counts = patterns["_w"].to_numpy(float)
-    G = patterns[names].to_numpy(np.int64)
-    label = patterns["_label"].to_numpy()
+        rows.append(np.column_stack([background[names].to_numpy(np.int64), np.zeros(len(background), np.int64)]))
+    stacked = np.concatenate(rows)
+    codes = pattern_codes(stacked)  # distinct (grades, label) rows, in order of first appearance
+    # candidate pairs count 1 each, background pairs background_weight each
+    counts = np.bincount(codes[:len(grades)], minlength=codes.max(initial=-1) + 1).astype(float)
+    if len(rows) > 1:
+        counts += background_weight * np.bincount(codes[len(grades):], minlength=len(counts))
+    first = np.flatnonzero(np.diff(np.maximum.accumulate(codes), prepend=-1) > 0)  # each pattern's first row
+    G, label = stacked[first, :-1], stacked[first, -1]
     theta, shares, free = _initial_classes(types, u_random)
     if start is not None:
         theta = {k: {f: v.copy() for f, v in profile.items()} for k, profile in start._theta.items()}
@@ -312,12 +324,13 @@ def _plausibility(model: ScoreModel) -> list[str]:
     return notes
 
 
-def _rarity(keys: pd.Series, freq_of: pd.Series) -> np.ndarray:
-    """log2(Σp² / p_v): how much rarer than average the agreeing value is (bits), capped at ±6."""
-    freq = freq_of.value_counts(normalize=True)
+def _rarity(keys: np.ndarray, codes: np.ndarray) -> np.ndarray:
+    """log2(Σp² / p_v): how much rarer than average the agreeing value is (bits), capped at ±6.
+
+    ``codes`` are every record's value codes (-1: missing), ``keys`` the agreeing values' codes."""
+    freq = np.bincount(codes[codes >= 0]) / max(int((codes >= 0).sum()), 1)
     mean_share = float((freq ** 2).sum())
-    share = keys.map(freq).to_numpy(float)
-    return np.log2(mean_share / np.maximum(share, 1e-12)).clip(-6.0, 6.0)
+    return np.log2(mean_share / np.maximum(freq[keys], 1e-12)).clip(-6.0, 6.0)
 
 
 def frequency_adjustments(prepared: pd.DataFrame, grades: pd.DataFrame, field_types: dict[str, str],
@@ -334,7 +347,8 @@ def frequency_adjustments(prepared: pd.DataFrame, grades: pd.DataFrame, field_ty
         top = grades[f].to_numpy(np.int64) == len(GRADE_NAMES[ftype]) - 1
         adjust = np.zeros(len(top))
         if top.any():
-            adjust[top] = _rarity(prepared[f].iloc[i[top]], prepared[f])
+            codes = pd.factorize(prepared[f], use_na_sentinel=True)[0]
+            adjust[top] = _rarity(codes[i[top]], codes)
         out[f] = adjust
     return out
 
@@ -382,8 +396,11 @@ def weigh(prepared: pd.DataFrame, pairs: pd.DataFrame, grades: pd.DataFrame, fie
     out = pairs.copy()
     names = list(joint.columns)
     if len(joint):
-        unique_grades, codes = np.unique(joint[names].to_numpy(np.int64), axis=0, return_inverse=True)
-        total = model.pattern_weight(unique_grades, names)[codes.reshape(-1)]
+        matrix = joint[names].to_numpy(np.int64)
+        codes = pattern_codes(matrix)
+        representative = np.empty(codes.max() + 1, np.int64)
+        representative[codes] = np.arange(len(codes))  # any row of a pattern stands for it
+        total = model.pattern_weight(matrix[representative], names)[codes]
     else:
         total = np.zeros(0)
     i = pairs["i"].to_numpy()

@@ -8,6 +8,7 @@ from collections.abc import Callable
 from functools import lru_cache
 from importlib import resources
 
+import numpy as np
 import pandas as pd
 
 _PUNCT = re.compile(r"[^\w\s-]", re.UNICODE)
@@ -21,7 +22,7 @@ SUFFIXES = frozenset({"jr", "sr", "ii", "iii", "iv", "phd", "md", "esq"})
 def map_distinct(values: pd.Series, func: Callable[[str], object], dtype: str = "string") -> pd.Series:
     """Apply ``func`` once per distinct non-missing value and broadcast the result."""
     codes, uniques = pd.factorize(values, use_na_sentinel=True)
-    mapped = [func(str(u)) for u in uniques]
+    mapped = [func(str(u)) for u in np.asarray(uniques, dtype=object).tolist()]
     result = pd.Series(pd.array(mapped + [None], dtype=dtype)).take(codes).reset_index(drop=True)
     result.index = values.index
     return result
@@ -29,6 +30,8 @@ def map_distinct(values: pd.Series, func: Callable[[str], object], dtype: str = 
 
 def fold_accents(text: str) -> str:
     """'Zoë Ní Bhriain' -> 'Zoe Ni Bhriain' (Unicode NFKD, combining marks dropped)."""
+    if text.isascii():  # NFKD leaves ASCII as it is
+        return text
     decomposed = unicodedata.normalize("NFKD", text)
     return "".join(ch for ch in decomposed if not unicodedata.combining(ch)).replace("ß", "ss")
 

@@ -69,3 +69,15 @@ def test_huge_blocks_are_skipped_with_a_warning(caplog: pytest.LogCaptureFixture
     assert set(zip(pairs["i"], pairs["j"])) == {(30, 31)}
     assert report.skipped_blocks == [("city", "x", 30)]
     assert "'x' is shared by 30 records" in caplog.text
+
+
+def test_a_key_of_several_fields_is_their_words_joined() -> None:
+    # a missing field counts as empty; 'anna marie' + 'lee' and 'anna' + 'marie lee' give one key
+    frame = pd.DataFrame({"given": ["anna marie", "anna", None, None, "bo"],
+                          "family": ["lee", "marie lee", "lee", None, None]}, dtype="string")
+    keys = rule_key(frame, BlockingRule(name="n", keys=["given+family"]))
+    assert keys.tolist() == ["anna marie lee", "anna marie lee", "lee", pd.NA, "bo"]
+    pairs, _ = block(frame, [BlockingRule(name="n", keys=["given+family"])])
+    assert set(zip(pairs["i"], pairs["j"])) == {(0, 1)}
+    both = rule_key(frame, BlockingRule(name="b", keys=["given", "family:first2"]))
+    assert both.tolist() == ["anna marie\x1fle", "anna\x1fma", pd.NA, pd.NA, pd.NA]

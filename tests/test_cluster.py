@@ -266,3 +266,30 @@ def test_one_per_person_from_a_mapping_file_holds_in_a_whole_run(workspace) -> N
     splits = pd.read_csv(result.output_dir / "splits.csv", dtype=str)
     assert (splits["reason"] == ONE_PER_PERSON).sum() == len(cuts)
     assert (splits.loc[splits["reason"] == ONE_PER_PERSON, ["source_a", "source_b"]] == "membership").all().all()
+
+
+@settings(max_examples=100, deadline=None)
+@given(graphs())
+def test_weakest_link_is_the_smallest_edge_of_networkx_maximum_spanning_tree(case: tuple) -> None:
+    # reference: networkx' maximum spanning tree of each cluster's links (must-links count 1.0);
+    # every maximum spanning tree has the same smallest edge (bottleneck property)
+    import networkx as nx
+
+    records, pairs, must, cannot, one = case
+    entities, _ = cluster(records, pairs, must_link=must, cannot_link=cannot, one_per_person=one)
+    label = entities["entity_id"].to_numpy()
+    graph = nx.Graph()
+    for a, b, p, d in zip(pairs["i"], pairs["j"], pairs["probability"], pairs["decision"]):
+        if d == "link" and label[a] == label[b]:
+            graph.add_edge(int(a), int(b), p=float(p))
+    for a, b in must.tolist():
+        if a != b:
+            graph.add_edge(a, b, p=1.0)
+    expected = {}
+    for a, _, p in nx.maximum_spanning_tree(graph, weight="p").edges(data="p"):
+        expected[label[a]] = min(expected.get(label[a], 1.0), p)
+    for entity, weakest in zip(label, entities["weakest_link"]):
+        if entity in expected:
+            assert weakest == expected[entity]
+        else:
+            assert np.isnan(weakest)

@@ -2,8 +2,11 @@
 
 from __future__ import annotations
 
+import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from rapidfuzz.distance import JaroWinkler
 
 from integrate.compare import JW_CLOSE, JW_FAIR, compare, pair_scores
@@ -101,3 +104,23 @@ def test_titles_and_suffixes_go_to_a_field_of_their_own() -> None:
     assert prepared["given_name__affixes"].tolist()[0] == "dr"
     assert prepared["family_name__affixes"].tolist()[0] == "jr"
     assert prepared["given_name__affixes"].isna().tolist()[1]
+
+
+words = st.lists(st.sampled_from(["van", "der", "berg", "smith", "jones", "anne", "ann", "o"]), min_size=1, max_size=3)
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.tuples(words, words), min_size=1, max_size=20))
+def test_words_within_agrees_with_token_set_ratio(rows: list[tuple[list[str], list[str]]]) -> None:
+    # reference: rapidfuzz's token_set_ratio reaches 100 exactly when one value's words are all
+    # among the other's
+    from rapidfuzz import fuzz
+
+    from integrate.compare import Coded
+
+    left = [" ".join(a) for a, _ in rows]
+    right = [" ".join(b) for _, b in rows]
+    coded = Coded(pd.Series(left + right))
+    n = len(rows)
+    got = coded.words_within(np.arange(n), np.arange(n, 2 * n))
+    assert got.tolist() == [fuzz.token_set_ratio(a, b) == 100 for a, b in zip(left, right)]

@@ -50,3 +50,18 @@ def test_em_recovers_known_m_and_u_within_two_hundredths() -> None:
         assert np.allclose(model.fields[field].u, u[field], atol=0.02), (field, model.fields[field].u)
     assert model.converged
     assert set(model.class_shares) == {MATCH, "unrelated"}
+
+
+def test_pattern_codes_number_distinct_rows_in_order_of_first_appearance() -> None:
+    # reference: numpy's distinct rows (np.unique along axis 0)
+    from integrate.score import pattern_codes
+
+    rows = np.random.default_rng(7).integers(-1, 4, size=(2000, 5))
+    codes = pattern_codes(rows)
+    unique, inverse = np.unique(rows, axis=0, return_inverse=True)
+    assert codes.max() + 1 == len(unique)
+    # equal rows share a code and different rows do not
+    assert (pd.crosstab(codes, inverse.reshape(-1)).to_numpy() > 0).sum(axis=1).tolist() == [1] * len(unique)
+    first_seen = pd.unique(inverse.reshape(-1))
+    assert codes[[int(np.flatnonzero(inverse.reshape(-1) == k)[0]) for k in first_seen]].tolist() == list(
+        range(len(unique)))
