@@ -73,6 +73,11 @@ class Coded:
         self.codes, uniques = pd.factorize(values, use_na_sentinel=True)
         self.values = np.asarray(uniques, dtype=object)
 
+    def several_words(self, i: np.ndarray) -> np.ndarray:
+        """Whether record i's value has more than one word (False where missing)."""
+        several = np.array([" " in v for v in self.values.tolist()] + [False])
+        return several[self.codes[i]]
+
     def equal(self, i: np.ndarray, j: np.ndarray) -> np.ndarray:
         a, b = self.codes[i], self.codes[j]
         return (a == b) & (a >= 0)
@@ -81,9 +86,10 @@ class Coded:
         return (self.codes[i] < 0) | (self.codes[j] < 0)
 
     def scores(self, i: np.ndarray, j: np.ndarray, scorer: Callable[..., float], *,
-               where: np.ndarray | None = None) -> np.ndarray:
+               where: np.ndarray | None = None, **options: float) -> np.ndarray:
         """``scorer`` of every pair's two values, once per distinct pair; NaN where one is missing
-        or ``where`` is False (pairs whose grade is settled without it)."""
+        or ``where`` is False (pairs whose grade is settled without it). ``options`` go to the
+        scorer (e.g. ``score_cutoff``)."""
         a, b = self.codes[i], self.codes[j]
         both = (a >= 0) & (b >= 0)
         if where is not None:
@@ -95,7 +101,7 @@ class Coded:
         inverse, unique = pd.factorize(keys)
         left = self.values[unique // (len(self.values) + 1)].tolist()
         right = self.values[unique % (len(self.values) + 1)].tolist()
-        scores = process.cpdist(left, right, scorer=scorer, workers=-1)
+        scores = process.cpdist(left, right, scorer=scorer, workers=-1, **options)
         out[both] = np.asarray(scores, dtype=float)[inverse]
         return out
 
@@ -172,13 +178,15 @@ def _name_grades(cols: _Columns, name: str, i: np.ndarray, j: np.ndarray) -> np.
     part_of = col.words_within(i, j)
     equivalent = same_root | first.equal(i, j) | part_of
     rest = ~(equal | equivalent)
-    # the whole names and their first words ('bejamin' / 'benjamin rowan' compare as first words)
+    # the whole names, and the first words where a name has several ('bejamin' / 'benjamin rowan')
+    by_word = rest & (col.several_words(i) | col.several_words(j))
     jw = np.fmax(col.scores(i, j, JaroWinkler.normalized_similarity, where=rest),
-                 first.scores(i, j, JaroWinkler.normalized_similarity, where=rest))
+                 first.scores(i, j, JaroWinkler.normalized_similarity, where=by_word))
     # one keystroke apart counts as close however short the name ('km' / 'kim', 'aav' / 'ava'),
     # where Jaro–Winkler's scale is too coarse
-    one_edit = ((col.scores(i, j, OSA.distance, where=rest) <= 1)
-                | (first.scores(i, j, OSA.distance, where=rest) <= 1))
+    unsure = rest & ~(jw >= JW_CLOSE)
+    one_edit = ((col.scores(i, j, OSA.distance, where=unsure, score_cutoff=1) <= 1)
+                | (first.scores(i, j, OSA.distance, where=unsure & by_word, score_cutoff=1) <= 1))
     grade = np.select([equal, equivalent, (jw >= JW_CLOSE) | one_edit, jw >= JW_FAIR], [4, 3, 2, 1], 0)
     return np.where(col.missing(i, j), MISSING, grade)
 
