@@ -189,9 +189,10 @@ def _initial_classes(types: dict[str, str], u_random: dict[str, np.ndarray]
 def _with_twins(profile: np.ndarray) -> np.ndarray:
     """A date profile for relatives: as random pairs', except that some relatives share a birth
     date (twins). Held fixed, so the class cannot absorb matches that carry a name error."""
-    out = profile.copy()
-    out[-1] = max(out[-1], TWIN_SHARE)
-    return out / out.sum()
+    share = max(float(profile[-1]), TWIN_SHARE)
+    out = profile * (1.0 - share) / max(1.0 - float(profile[-1]), 1e-12)
+    out[-1] = share
+    return out
 
 
 def _relatives_names(counts: np.ndarray, random_profile: np.ndarray) -> np.ndarray:

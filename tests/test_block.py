@@ -81,3 +81,23 @@ def test_a_key_of_several_fields_is_their_words_joined() -> None:
     assert set(zip(pairs["i"], pairs["j"])) == {(0, 1)}
     both = rule_key(frame, BlockingRule(name="b", keys=["given", "family:first2"]))
     assert both.tolist() == ["anna marie\x1fle", "anna\x1fma", pd.NA, pd.NA, pd.NA]
+
+
+def test_names_any_order_pairs_a_swap_with_a_nickname() -> None:
+    # 'Roberts, James' typed the wrong way round against 'Jimmy Roberts' (Jimmy: a common short
+    # form of James): the formal forms of both first words, sorted, are one key
+    from integrate.mapping.spec import CanonicalSchema
+    from integrate.standardise import standardise
+
+    schema = CanonicalSchema(fields={
+        "given_name": {"type": "person_name", "meaning": "Given name of the person."},
+        "family_name": {"type": "person_name", "meaning": "Family name of the person."},
+    })
+    records = pd.DataFrame({"given_name": ["Jimmy", "Roberts", "James", "Rob"],
+                            "family_name": ["Roberts", "James", "Robertson", "James"],
+                            "_source": "a", "_record_id": ["1", "2", "3", "4"]})
+    prepared = standardise(records, schema)
+    rule = BlockingRule(name="any_order", keys=["given_name+family_name:roots"])
+    assert rule_key(prepared, rule).tolist()[:2] == ["james roberts", "james roberts"]
+    pairs, _ = block(prepared, [rule])
+    assert set(zip(pairs["i"], pairs["j"])) == {(0, 1)}

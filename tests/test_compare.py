@@ -7,7 +7,7 @@ import pandas as pd
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from rapidfuzz.distance import JaroWinkler
+from rapidfuzz.distance import OSA, JaroWinkler
 
 from integrate.compare import JW_CLOSE, JW_FAIR, compare, pair_scores
 from integrate.mapping.spec import CanonicalSchema
@@ -124,3 +124,21 @@ def test_words_within_agrees_with_token_set_ratio(rows: list[tuple[list[str], li
     n = len(rows)
     got = coded.words_within(np.arange(n), np.arange(n, 2 * n))
     assert got.tolist() == [fuzz.token_set_ratio(a, b) == 100 for a, b in zip(left, right)]
+
+
+def test_a_slip_in_a_short_name_or_in_the_first_of_several_given_names_is_close() -> None:
+    # One keystroke (optimal string alignment distance 1, rapidfuzz as the reference library) in a
+    # short name, where Jaro–Winkler's scale is coarse: KM / KIM, AAV / AVA (a transposition).
+    assert OSA.distance("km", "kim") == 1 and OSA.distance("aav", "ava") == 1
+    g = _grades({"given_name": "Km", "family_name": "Aav", "birth_date": None},
+                {"given_name": "Kim", "family_name": "Ava", "birth_date": None})
+    assert g["given_name"] == 2 and g["family_name"] == 2
+    # a typo in the first of two given names compares by first words
+    g = _grades({"given_name": "Bejamin", "family_name": "Taylor", "birth_date": None},
+                {"given_name": "Benjamin Rowan", "family_name": "Taylor", "birth_date": None})
+    assert g["given_name"] == 2
+    # two keystrokes apart and far by Jaro–Winkler stays different: ANN / IAN
+    assert OSA.distance("ann", "ian") == 2 and JaroWinkler.normalized_similarity("ann", "ian") < JW_FAIR
+    g = _grades({"given_name": "Ann", "family_name": "Lee", "birth_date": None},
+                {"given_name": "Ian", "family_name": "Lee", "birth_date": None})
+    assert g["given_name"] == 0

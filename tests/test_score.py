@@ -65,3 +65,23 @@ def test_pattern_codes_number_distinct_rows_in_order_of_first_appearance() -> No
     first_seen = pd.unique(inverse.reshape(-1))
     assert codes[[int(np.flatnonzero(inverse.reshape(-1) == k)[0]) for k in first_seen]].tolist() == list(
         range(len(unique)))
+
+
+def test_relatives_may_share_a_birth_date_but_learn_nothing_else_about_it() -> None:
+    # The relatives' class keeps personal fields at the random-pair profile, except that a fixed
+    # share of relatives' pairs are twins (TWIN_SHARE; a birth in 60 is a twin birth, common
+    # practice). A same-household pair with one birth date and another first name then weighs
+    # far less than it would under the random profile, while the share stays fixed under EM.
+    from integrate.compare import GRADE_NAMES
+    from integrate.score import RELATED, TWIN_SHARE, _initial_classes
+
+    types = {"given_name+family_name": "name_pair", "birth_date": "date", "phone": "phone"}
+    u_random = {f: np.full(len(GRADE_NAMES[t]), 1.0 / len(GRADE_NAMES[t])) for f, t in types.items()}
+    u_random["birth_date"] = np.array([0.9, 0.09, 0.005, 0.004, 0.0005, 0.0005])
+    theta, _, free = _initial_classes(types, u_random)
+    related = theta[RELATED]["birth_date"]
+    assert math.isclose(related[-1], TWIN_SHARE) and math.isclose(related.sum(), 1.0)
+    # the other grades keep the random pairs' proportions
+    rest = u_random["birth_date"][:-1]
+    assert np.allclose(related[:-1] / related[:-1].sum(), rest / rest.sum())
+    assert "birth_date" not in free[RELATED]
