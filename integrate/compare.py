@@ -170,14 +170,22 @@ def _edit_grades(col: Coded, i: np.ndarray, j: np.ndarray) -> np.ndarray:
     return np.where(col.missing(i, j), MISSING, grade)
 
 
-def _name_grades(cols: _Columns, name: str, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+def _name_grades(cols: _Columns, name: str, i: np.ndarray, j: np.ndarray, *, part_is_close: bool = False
+                 ) -> np.ndarray:
+    """Grades of one person-name field. ``part_is_close``: one name within the other counts as
+    close, not equivalent (family names: 'jones' is within 'smith jones' and within many others)."""
     col, first = cols[name], cols[name + FIRST_WORD]
     equal = col.equal(i, j)
     same_root = _share_a_root(cols, name, name, i, j)
-    # one name's words all within the other's: 'smith jones' / 'jones', 'van der berg' / 'berg'
-    part_of = col.words_within(i, j)
-    equivalent = same_root | first.equal(i, j) | part_of
-    rest = ~(equal | equivalent)
+    # the same first word, or one name's words all within the other's: 'anna marie' / 'anna',
+    # 'smith jones' / 'jones', 'van der berg' / 'berg'
+    partial = first.equal(i, j) | col.words_within(i, j)
+    if part_is_close:
+        # formal forms are those of first words: for a family name, 'partial' already covers them
+        equivalent = same_root & ~partial
+    else:
+        equivalent = same_root | partial
+    rest = ~(equal | equivalent | partial)
     # the whole names, and the first words where a name has several ('bejamin' / 'benjamin rowan')
     by_word = rest & (col.several_words(i) | col.several_words(j))
     jw = np.fmax(col.scores(i, j, JaroWinkler.normalized_similarity, where=rest),
@@ -187,7 +195,7 @@ def _name_grades(cols: _Columns, name: str, i: np.ndarray, j: np.ndarray) -> np.
     unsure = rest & ~(jw >= JW_CLOSE)
     one_edit = ((col.scores(i, j, OSA.distance, where=unsure, score_cutoff=1) <= 1)
                 | (first.scores(i, j, OSA.distance, where=unsure & by_word, score_cutoff=1) <= 1))
-    grade = np.select([equal, equivalent, (jw >= JW_CLOSE) | one_edit, jw >= JW_FAIR], [4, 3, 2, 1], 0)
+    grade = np.select([equal, equivalent, partial | (jw >= JW_CLOSE) | one_edit, jw >= JW_FAIR], [4, 3, 2, 1], 0)
     return np.where(col.missing(i, j), MISSING, grade)
 
 
@@ -284,7 +292,8 @@ def compare(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSch
         if not spec.is_compared():
             continue
         if spec.type == "person_name":
-            grades[name] = _name_grades(cols, name, i, j)
+            # the second person-name field is the family name (as in the joint name grade)
+            grades[name] = _name_grades(cols, name, i, j, part_is_close=len(names) == 1)
             names.append(name)
         elif spec.type == "date":
             grades[name] = _date_grades(cols, name, i, j)

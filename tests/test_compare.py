@@ -77,10 +77,19 @@ def test_nicknames_swaps_and_partial_dates() -> None:
 
 
 def test_multi_part_family_names() -> None:
-    # a family name written in full in one record and in part in another
-    g = _grades({"given_name": "Anna", "family_name": "Smith-Jones", "birth_date": None},
+    # A family name written in full in one record and in part in another is close, not
+    # equivalent: 'Jones' is part of 'Smith-Jones' and of many another name (common practice:
+    # partial agreement is weaker evidence than full agreement). Given names keep 'Anna Marie' /
+    # 'Anna' as equivalent (a second given name left out).
+    g = _grades({"given_name": "Anna Marie", "family_name": "Smith-Jones", "birth_date": None},
                 {"given_name": "Anna", "family_name": "Jones", "birth_date": None})
-    assert g["family_name"] == 3
+    assert g["given_name"] == 3 and g["family_name"] == 2
+    g = _grades({"given_name": "Anna", "family_name": "Smith-Jones", "birth_date": None},
+                {"given_name": "Anna", "family_name": "Smith", "birth_date": None})
+    assert g["family_name"] == 2
+    g = _grades({"given_name": "Anna", "family_name": "Smith-Jones", "birth_date": None},
+                {"given_name": "Anna", "family_name": "Smith Jones", "birth_date": None})
+    assert g["family_name"] == 4
 
 
 def test_swapped_names_with_a_nickname_or_typo() -> None:
