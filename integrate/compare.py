@@ -163,10 +163,45 @@ class _Columns:
         return pd.to_numeric(self.prepared[column], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
 
 
-def _edit_grades(col: Coded, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+_ACCOUNT_MARKS = frozenset("0123456789._-+")
+
+
+def _email_slip(a: str, b: str, **_: object) -> float:
+    """1.0 when two addresses one edit apart differ by a typing slip, 0.0 when the difference is
+    how a second account is told apart: a digit or separator ('l.flores2' / 'l.flores7',
+    'ingrid.taylor' / 'ingrid_taylor') or an initial at either end of the local part or next to a
+    separator ('smitho' / 'smithm', 'c.hunt' / 'a.hunt'). Local parts are built from names, so
+    namesakes' addresses are often one edit apart."""
+    if OSA.distance(a, b, score_cutoff=1) > 1:
+        return 0.0
+    local_a, _, domain_a = a.partition("@")
+    local_b, _, domain_b = b.partition("@")
+    if local_a == local_b:
+        return 1.0  # a slip in the domain
+    if domain_a != domain_b:
+        return 0.0
+    start = 0
+    while start < min(len(local_a), len(local_b)) and local_a[start] == local_b[start]:
+        start += 1
+    end_a, end_b = len(local_a), len(local_b)
+    while end_a > start and end_b > start and local_a[end_a - 1] == local_b[end_b - 1]:
+        end_a, end_b = end_a - 1, end_b - 1
+    changed = set(local_a[start:end_a]) | set(local_b[start:end_b])
+    if changed & _ACCOUNT_MARKS:
+        return 0.0
+    edges = {start - 1, max(end_a, end_b)}  # the characters just outside the changed stretch
+    at_edge = start == 0 or max(end_a, end_b) >= max(len(local_a), len(local_b))
+    beside_mark = any(0 <= k < len(local_a) and local_a[k] in _ACCOUNT_MARKS for k in edges)
+    return 0.0 if at_edge or beside_mark else 1.0
+
+
+def _edit_grades(col: Coded, i: np.ndarray, j: np.ndarray, *, email: bool = False) -> np.ndarray:
     equal = col.equal(i, j)
-    dist = col.scores(i, j, OSA.distance, where=~equal)
-    grade = np.where(equal, 2, np.where(dist <= 1, 1, 0))
+    if email:
+        near = col.scores(i, j, _email_slip, where=~equal) == 1.0
+    else:
+        near = col.scores(i, j, OSA.distance, where=~equal, score_cutoff=1) <= 1
+    grade = np.where(equal, 2, np.where(near, 1, 0))
     return np.where(col.missing(i, j), MISSING, grade)
 
 
@@ -298,7 +333,7 @@ def compare(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSch
         elif spec.type == "date":
             grades[name] = _date_grades(cols, name, i, j)
         elif spec.type in ("email", "phone", "postcode", "identifier"):
-            grades[name] = _edit_grades(cols[name], i, j)
+            grades[name] = _edit_grades(cols[name], i, j, email=spec.type == "email")
         elif spec.type in ("quantity", "money"):
             values = cols.numbers(name)
             grades[name] = _quantity_grades(values[i], values[j])

@@ -151,3 +151,21 @@ def test_a_slip_in_a_short_name_or_in_the_first_of_several_given_names_is_close(
     g = _grades({"given_name": "Ann", "family_name": "Lee", "birth_date": None},
                 {"given_name": "Ian", "family_name": "Lee", "birth_date": None})
     assert g["given_name"] == 0
+
+
+@pytest.mark.parametrize(("a", "b", "grade"), [
+    ("ingrid.taylor@example.org", "ingrid.tayolr@example.org", 1),  # letters transposed: a slip
+    ("anna@example.com", "anna@exmaple.com", 1),  # a slip in the domain
+    ("l.flores2@example.com", "l.flores7@example.com", 0),  # another number: another account
+    ("ingrid.taylor@example.org", "ingrid_taylor@example.org", 0),  # another separator
+    ("garethsmith@example.org", "gareth.smith@example.org", 0),
+    ("smitho@example.com", "smithm@example.com", 0),  # another initial at the end
+    ("c.hunt@example.com", "a.hunt@example.com", 0),  # another initial before a separator
+    ("ingrid.taylor@example.org", "ingrid.taylor@example.org", 2),
+])
+def test_email_addresses_one_edit_apart_only_for_a_slip(a: str, b: str, grade: int) -> None:
+    # Our rule: local parts are built from names, so namesakes' addresses often differ by one
+    # edit in a digit, a separator or an initial; only other one-edit differences count as slips.
+    schema = CanonicalSchema(fields={"email": {"type": "email", "meaning": "Contact e-mail address."}})
+    got = compare(pd.DataFrame({"email": [a, b]}), pd.DataFrame({"i": [0], "j": [1]}), schema)["email"].iloc[0]
+    assert got == grade
