@@ -313,9 +313,9 @@ def compare(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSch
         >>> import pandas as pd
         >>> from integrate.mapping.spec import CanonicalSchema
         >>> schema = CanonicalSchema(fields={"email": {"type": "email", "meaning": "Contact e-mail address."}})
-        >>> prepared = pd.DataFrame({"email": ["a@x.org", "a@x.org", "b@x.org"]})
-        >>> compare(prepared, pd.DataFrame({"i": [0, 0], "j": [1, 2]}), schema)["email"].tolist()
-        [2, 1]
+        >>> prepared = pd.DataFrame({"email": ["maria@x.org", "maria@x.org", "mraia@x.org", "maria2@x.org"]})
+        >>> compare(prepared, pd.DataFrame({"i": [0, 0, 0], "j": [1, 2, 3]}), schema)["email"].tolist()
+        [2, 1, 0]
     """
     i = pairs["i"].to_numpy()
     j = pairs["j"].to_numpy()
