@@ -277,7 +277,8 @@ def _share_a_root(cols: _Columns, field_a: str, field_b: str, i: np.ndarray, j: 
 def _swap_names(grades: dict[str, np.ndarray], cols: _Columns, names: list[str],
                 i: np.ndarray, j: np.ndarray) -> None:
     """Given and family name written the wrong way round count as equivalent on both fields, also
-    with a typo or a nickname on top ('Clark, Kate' / 'Katherine Clark')."""
+    with a nickname or a small typo on top ('Clark, Kate' / 'Katherine Clark'); as close when one
+    of the two crossings is only fairly alike."""
     first, second = names[:2]
     # code both name columns together so that a given name can equal a family name
     both = Coded(pd.concat([cols.prepared[first], cols.prepared[second]], ignore_index=True))
@@ -297,10 +298,14 @@ def _swap_names(grades: dict[str, np.ndarray], cols: _Columns, names: list[str],
     maybe = np.flatnonzero((strong_1 | fair_1) & differ)
     strong_2, fair_2 = np.zeros(len(i), bool), np.zeros(len(i), bool)
     strong_2[maybe], fair_2[maybe] = alike(i[maybe] + n, j[maybe], second, first)
-    # both crossed names alike, one of them strongly: a swap, whatever typo the other carries
-    crossed = ((strong_1 & (strong_2 | fair_2)) | (fair_1 & strong_2)) & differ
+    # both crossed names strongly alike: a swap, equivalent on both fields; one strongly and the
+    # other only fairly alike ('Quinn Jones' / 'Jens Quinn', 'Finn Edwards' / 'Edwards, Fiona'):
+    # perhaps a swap with a typo, perhaps two people, so close on both
+    swapped = strong_1 & strong_2 & differ
+    perhaps = ((strong_1 & fair_2) | (fair_1 & strong_2)) & differ & ~swapped
     for name in (first, second):
-        grades[name] = np.where(crossed, np.maximum(grades[name], 3), grades[name])
+        grades[name] = np.where(swapped, np.maximum(grades[name], 3),
+                                np.where(perhaps, np.maximum(grades[name], 2), grades[name]))
 
 
 def compare(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchema) -> pd.DataFrame:

@@ -100,6 +100,12 @@ def test_swapped_names_with_a_nickname_or_typo() -> None:
     g = _grades({"given_name": "Benntt", "family_name": "Henry", "birth_date": None},
                 {"given_name": "Henry", "family_name": "Bennett", "birth_date": None})
     assert g["given_name"] == 3 and g["family_name"] == 3
+    # one crossing exact, the other only fairly alike (JONES / JENS): perhaps a swap with a typo,
+    # perhaps two people; close on both, not equivalent
+    assert JW_FAIR <= JaroWinkler.normalized_similarity("jones", "jens") < JW_CLOSE
+    g = _grades({"given_name": "Quinn", "family_name": "Jones", "birth_date": None},
+                {"given_name": "Jens", "family_name": "Quinn", "birth_date": None})
+    assert g["given_name"] == 2 and g["family_name"] == 2
 
 
 def test_titles_and_suffixes_go_to_a_field_of_their_own() -> None:
