@@ -28,12 +28,20 @@ def map_distinct(values: pd.Series, func: Callable[[str], object], dtype: str = 
     return result
 
 
+# Latin letters that Unicode does not decompose into a base letter and a mark, with their usual
+# ASCII spellings (common practice in Latin-to-ASCII transliteration, from memory).
+_UNDECOMPOSED = str.maketrans({"ł": "l", "Ł": "L", "ø": "o", "Ø": "O", "đ": "d", "Đ": "D", "ð": "d",
+                               "Ð": "D", "ħ": "h", "Ħ": "H", "ı": "i", "ŀ": "l", "Ŀ": "L", "ß": "ss",
+                               "æ": "ae", "Æ": "AE", "œ": "oe", "Œ": "OE", "þ": "th", "Þ": "TH"})
+
+
 def fold_accents(text: str) -> str:
-    """'Zoë Ní Bhriain' -> 'Zoe Ni Bhriain' (Unicode NFKD, combining marks dropped)."""
+    """'Zoë Ní Bhriain' -> 'Zoe Ni Bhriain', 'Łukasik' -> 'Lukasik' (Unicode NFKD, combining marks
+    dropped, letters without a decomposition transliterated)."""
     if text.isascii():  # NFKD leaves ASCII as it is
         return text
-    decomposed = unicodedata.normalize("NFKD", text)
-    return "".join(ch for ch in decomposed if not unicodedata.combining(ch)).replace("ß", "ss")
+    decomposed = unicodedata.normalize("NFKD", text.translate(_UNDECOMPOSED))
+    return "".join(ch for ch in decomposed if not unicodedata.combining(ch))
 
 
 def clean_text(text: str) -> str | None:

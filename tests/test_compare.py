@@ -175,3 +175,17 @@ def test_email_addresses_one_edit_apart_only_for_a_slip(a: str, b: str, grade: i
     schema = CanonicalSchema(fields={"email": {"type": "email", "meaning": "Contact e-mail address."}})
     got = compare(pd.DataFrame({"email": [a, b]}), pd.DataFrame({"i": [0], "j": [1]}), schema)["email"].iloc[0]
     assert got == grade
+
+
+def test_letters_without_a_decomposition_fold_too() -> None:
+    # Unicode NFKD leaves Ł, Ø, Æ whole (they have no decomposition in the Unicode Character
+    # Database); folding them as l, o, ae is common practice in Latin-to-ASCII transliteration.
+    import unicodedata
+
+    from integrate.text_normalise import fold_accents
+
+    assert unicodedata.decomposition("Ł") == "" and unicodedata.decomposition("ø") == ""
+    assert fold_accents("Łukasik") == "Lukasik" and fold_accents("Bjørn Æbelø") == "Bjorn AEbelo"
+    g = _grades({"given_name": "Małgorzata", "family_name": "Łukasik", "birth_date": None},
+                {"given_name": "Malgorzata", "family_name": "Lukasik", "birth_date": None})
+    assert g["given_name"] == 4 and g["family_name"] == 4
