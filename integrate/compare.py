@@ -8,6 +8,7 @@ each field type. String similarities come from rapidfuzz, once per distinct pair
 from __future__ import annotations
 
 from collections.abc import Callable
+from functools import cached_property
 
 import numpy as np
 import pandas as pd
@@ -73,10 +74,13 @@ class Coded:
         self.codes, uniques = pd.factorize(values, use_na_sentinel=True)
         self.values = np.asarray(uniques, dtype=object)
 
+    @cached_property
+    def _several(self) -> np.ndarray:
+        return np.array([" " in v for v in self.values.tolist()] + [False])  # last: missing (-1)
+
     def several_words(self, i: np.ndarray) -> np.ndarray:
         """Whether record i's value has more than one word (False where missing)."""
-        several = np.array([" " in v for v in self.values.tolist()] + [False])
-        return several[self.codes[i]]
+        return self._several[self.codes[i]]
 
     def equal(self, i: np.ndarray, j: np.ndarray) -> np.ndarray:
         a, b = self.codes[i], self.codes[j]
