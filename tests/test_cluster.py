@@ -2,7 +2,7 @@
 
 Probabilities in the constructed graphs are invented for the tests; each expected cut is worked
 out by hand in the comment beside it (a minimum s-t cut is the set of links of least total
-probability whose removal separates the two records).
+evidence, -log(1 - p) per link, whose removal separates the two records).
 """
 
 from __future__ import annotations
@@ -91,6 +91,18 @@ def test_cut_goes_through_the_weakest_link_even_inside_a_chain() -> None:
                                cannot_link=np.array([[3, 0]]))
     assert groups(entities) == {frozenset({0}), frozenset({1, 2, 3})}
     assert splits[0].cut_weight == pytest.approx(0.81)
+
+
+def test_one_strong_link_outweighs_two_weaker_ones_in_a_cut() -> None:
+    # 0 (m) and 3 (m) compared clearly different; 1 hangs on 0 by 0.999 and on 2 and 3 by 0.985 and
+    # 0.85, while 2-3 is 0.9999. Evidence: 0-1 costs -log(0.001) = 6.91; the other side costs
+    # -log(0.015) - log(0.15) = 4.20 + 1.90 = 6.10, so 1 stays with 0. (Summing probabilities
+    # instead, 0.999 < 1.835, would wrongly cut the strongest link.)
+    records = make_records(["m", "w", "r", "m"])
+    pairs = make_pairs([(0, 1, 0.999), (1, 2, 0.985), (1, 3, 0.85), (2, 3, 0.9999), (0, 3, 0.001)])
+    entities, splits = cluster(records, pairs)
+    assert groups(entities) == {frozenset({0, 1}), frozenset({2, 3})}
+    assert (splits[0].links_cut, splits[0].cut_weight) == (2, pytest.approx(0.985 + 0.85))
 
 
 def test_one_record_per_person_source_never_shares_a_cluster() -> None:
