@@ -38,19 +38,23 @@ GRADE_NAMES: dict[str, list[str]] = {
 # Two person-name fields (given and family name) are scored jointly: among candidate pairs found
 # by name-based blocking, agreement on one name is far from independent of agreement on the other.
 NAME_PAIR = "name_pair"
-_NAME_BUCKETS = ["differs", "close", "agrees", "missing"]
-GRADE_NAMES[NAME_PAIR] = [f"first {a}, second {b}" for a in _NAME_BUCKETS for b in _NAME_BUCKETS][:-1]
+# "Fairly close" has a bucket of its own: among names-only pairs it is mostly two relatives'
+# different names ('Karen' / 'Katherine', 'Paul' / 'Pauline'), while "close" is mostly a typo.
+NAME_BUCKETS = ["differs", "fairly close", "close", "agrees", "missing"]
+GRADE_NAMES[NAME_PAIR] = [f"first {a}, second {b}" for a in NAME_BUCKETS for b in NAME_BUCKETS][:-1]
+
+
+def name_bucket(grade: np.ndarray) -> np.ndarray:
+    """A person-name grade's bucket: its index in ``NAME_BUCKETS`` (equivalent and exact agree)."""
+    return np.select([grade < 0, grade >= 3, grade == 2, grade == 1], [4, 3, 2, 1], 0)
 
 
 def name_pair_grades(first: np.ndarray, second: np.ndarray) -> np.ndarray:
-    """Joint grade of two person-name grades: 4 x 4 buckets (differs, close, agrees, missing),
+    """Joint grade of two person-name grades: first bucket x 5 + second bucket (``NAME_BUCKETS``),
     missing only when both are missing."""
-
-    def bucket(g: np.ndarray) -> np.ndarray:
-        return np.select([g < 0, g >= 3, g >= 1], [3, 2, 1], 0)
-
-    joint = bucket(first) * 4 + bucket(second)
-    return np.where(joint == 15, MISSING, joint)
+    size = len(NAME_BUCKETS)
+    joint = name_bucket(first) * size + name_bucket(second)
+    return np.where(joint == size * size - 1, MISSING, joint)
 
 
 # Jaro–Winkler cut-offs for "close" and "fairly close" (Winkler's comparator; 0.92 / 0.80 are

@@ -17,7 +17,7 @@ from functools import partial
 import numpy as np
 import pandas as pd
 
-from .compare import GRADE_NAMES, MISSING, NAME_PAIR, compare, name_pair_grades
+from .compare import GRADE_NAMES, MISSING, NAME_BUCKETS, NAME_PAIR, compare, name_pair_grades
 from .mapping.spec import CanonicalSchema, Thresholds
 
 LINK, POSSIBLE, NON_LINK = "link", "possible link", "non-link"
@@ -165,7 +165,8 @@ def _initial_classes(types: dict[str, str], u_random: dict[str, np.ndarray]
             elif t == NAME_PAIR:
                 # relatives share the second name (family name) and differ in the first
                 profile = np.full(_levels(t), 0.01)
-                profile[[0 * 4 + 2, 1 * 4 + 2]] = [0.6, 0.2]
+                size = len(NAME_BUCKETS)
+                profile[[0 * size + 3, 1 * size + 3]] = [0.6, 0.2]
                 related[f] = profile / profile.sum()
             elif t == "person_name":
                 related[f] = 0.5 * (agree[f] + u_random[f])
@@ -197,9 +198,11 @@ def _with_twins(profile: np.ndarray) -> np.ndarray:
 
 def _relatives_names(counts: np.ndarray, random_profile: np.ndarray) -> np.ndarray:
     """Relatives are different people: their first names compare like random pairs' first names;
-    only the second (family) name's agreement is learned. Levels are first*4 + second (4 buckets)."""
-    joint = np.append(counts, 0.0).reshape(4, 4)
-    random_joint = np.append(random_profile, 0.0).reshape(4, 4)
+    only the second (family) name's agreement is learned. Levels are first bucket * 5 + second
+    bucket (``NAME_BUCKETS``)."""
+    size = len(NAME_BUCKETS)
+    joint = np.append(counts, 0.0).reshape(size, size)
+    random_joint = np.append(random_profile, 0.0).reshape(size, size)
     first = random_joint.sum(axis=1)
     second = joint.sum(axis=0)
     out = np.outer(first / first.sum(), second / second.sum()).reshape(-1)[:-1]

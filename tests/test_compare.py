@@ -189,3 +189,18 @@ def test_letters_without_a_decomposition_fold_too() -> None:
     g = _grades({"given_name": "Małgorzata", "family_name": "Łukasik", "birth_date": None},
                 {"given_name": "Malgorzata", "family_name": "Lukasik", "birth_date": None})
     assert g["given_name"] == 4 and g["family_name"] == 4
+
+
+def test_the_joint_name_grade_keeps_fairly_close_apart_from_close() -> None:
+    # Winkler's MARTHA/MARHTA (close) and DWAYNE/DUANE (fairly close) land in different buckets of
+    # the joint grade the model sees, so a typo and two similar names get weights of their own.
+    from integrate.compare import GRADE_NAMES, MISSING, NAME_PAIR, name_pair_grades
+
+    g = _grades({"given_name": "Martha", "family_name": "Dwayne", "birth_date": None},
+                {"given_name": "Marhta", "family_name": "Duane", "birth_date": None})
+    joint = name_pair_grades(np.array([g["given_name"], g["family_name"], 4, 0, MISSING]),
+                             np.array([4, 4, g["family_name"], MISSING, MISSING]))
+    names = [GRADE_NAMES[NAME_PAIR][k] if k >= 0 else "missing" for k in joint.tolist()]
+    assert names == ["first close, second agrees", "first fairly close, second agrees",
+                     "first agrees, second fairly close", "first differs, second missing", "missing"]
+    assert len(set(GRADE_NAMES[NAME_PAIR])) == len(GRADE_NAMES[NAME_PAIR]) == 24
