@@ -32,6 +32,8 @@ PSEUDO_COUNT = 0.5  # added to every level's count so no probability is exactly 
 # a same-household pair with one birth date and another first name from passing for one person.
 TWIN_SHARE = 0.02
 TF_TYPES = frozenset({"person_name", "date", "identifier"})
+# person-name grades from "close" up (close, equivalent) also weigh by how common the name is
+NAME_NEAR = 2
 SEED = 20261202
 
 
@@ -338,8 +340,14 @@ def _rarity(keys: np.ndarray, codes: np.ndarray) -> np.ndarray:
 
 
 def frequency_adjustments(prepared: pd.DataFrame, grades: pd.DataFrame, field_types: dict[str, str],
-                          i: np.ndarray) -> dict[str, np.ndarray]:
+                          i: np.ndarray, j: np.ndarray) -> dict[str, np.ndarray]:
     """Value-frequency weights for exact agreements (u(v) = u_exact * p_v / Σ p²).
+
+    Person names that are close or equivalent without being equal weigh by the commoner of the
+    two values the same way: a typo or nickname of a rare family name is as telling as the name
+    itself, while 'Jones' found within 'Smith-Jones' or one letter from 'Jonas' is not (on the
+    demo, names-only pairs with the given name exact and the family name close are 95% the same
+    person when the family name is rare and 10% when it is among the commonest).
 
     Frequencies count records, so a person's own duplicates make their name look commoner than
     it is; the cap keeps that (and any other extreme) to at most 6 bits either way.
@@ -348,11 +356,18 @@ def frequency_adjustments(prepared: pd.DataFrame, grades: pd.DataFrame, field_ty
     for f, ftype in field_types.items():
         if ftype not in TF_TYPES:
             continue
-        top = grades[f].to_numpy(np.int64) == len(GRADE_NAMES[ftype]) - 1
+        g = grades[f].to_numpy(np.int64)
+        top = g == len(GRADE_NAMES[ftype]) - 1
+        near = (g >= NAME_NEAR) & ~top if ftype == "person_name" else np.zeros(len(g), bool)
         adjust = np.zeros(len(top))
-        if top.any():
+        if top.any() or near.any():
             codes = pd.factorize(prepared[f], use_na_sentinel=True)[0]
             adjust[top] = _rarity(codes[i[top]], codes)
+            if near.any():
+                a, b = codes[i[near]], codes[j[near]]
+                freq = np.bincount(codes[codes >= 0])
+                common = np.where(freq[a] >= freq[b], a, b)
+                adjust[near] = _rarity(common, codes)
         out[f] = adjust
     return out
 
@@ -412,7 +427,7 @@ def weigh(prepared: pd.DataFrame, pairs: pd.DataFrame, grades: pd.DataFrame, fie
         g = joint[f].to_numpy(np.int64)
         table = np.asarray(fm.weights)
         out["w_" + f] = np.where(g == MISSING, 0.0, table[np.clip(g, 0, None)]).astype(np.float32)
-    tf = frequency_adjustments(prepared, grades, field_types, i)
+    tf = frequency_adjustments(prepared, grades, field_types, i, pairs["j"].to_numpy())
     for column, adjust in tf.items():
         total += adjust
         out["tf_" + column] = adjust.astype(np.float32)

@@ -85,3 +85,21 @@ def test_relatives_may_share_a_birth_date_but_learn_nothing_else_about_it() -> N
     rest = u_random["birth_date"][:-1]
     assert np.allclose(related[:-1] / related[:-1].sum(), rest / rest.sum())
     assert "birth_date" not in free[RELATED]
+
+
+def test_a_rare_name_weighs_more_than_a_common_one_exact_or_close() -> None:
+    # Value-frequency adjustment log2(Σp² / p_v), from u(v) = u_exact * p_v / Σp² (Winkler's
+    # frequency-based matching weights, from memory; worked by hand here). Family names of ten
+    # records: smith x6, jones x2, quill x1, quil x1 -> p = .6, .2, .1, .1 and Σp² = 0.42.
+    # A close or equivalent pair weighs by the commoner of its two values ('quill' / 'quil': 0.1).
+    from integrate.score import frequency_adjustments
+
+    prepared = pd.DataFrame({"family_name": ["smith"] * 6 + ["jones"] * 2 + ["quill", "quil"]})
+    i, j = np.array([0, 6, 8, 0, 0]), np.array([1, 7, 9, 6, 8])
+    # grades of person_name: 4 exact, 2 close, 0 different
+    grades = pd.DataFrame({"family_name": [4, 4, 2, 0, 2]})
+    adjust = frequency_adjustments(prepared, grades, {"family_name": "person_name"}, i, j)["family_name"]
+    expected = [math.log2(0.42 / 0.6), math.log2(0.42 / 0.2), math.log2(0.42 / 0.1), 0.0,
+                math.log2(0.42 / 0.6)]  # the last: 'smith' close to 'quil' weighs as common 'smith'
+    assert np.allclose(adjust, expected, atol=1e-9)
+    assert adjust[2] > adjust[1] > 0 > adjust[0]
