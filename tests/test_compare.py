@@ -204,3 +204,19 @@ def test_the_joint_name_grade_keeps_fairly_close_apart_from_close() -> None:
     assert names == ["first close, second agrees", "first fairly close, second agrees",
                      "first agrees, second fairly close", "first differs, second missing", "missing"]
     assert len(set(GRADE_NAMES[NAME_PAIR])) == len(GRADE_NAMES[NAME_PAIR]) == 24
+
+
+def test_two_spellings_in_common_use_are_two_names_not_a_slip() -> None:
+    # 'Mark' and 'Marek' (one keystroke apart) are each held by three records: two names, fairly
+    # close; 'Marrk' on one record is a slip of 'Mark', close. 'John' / 'Jack' (a diminutive in
+    # the table, and a common name of its own) both common: close; 'Johnny' on one record stays
+    # equivalent to 'John'. (Common practice: a slip is rare, a name in use recurs.)
+    from integrate.standardise import standardise
+
+    given = ["Mark"] * 3 + ["Marek"] * 3 + ["Marrk"] + ["John"] * 3 + ["Jack"] * 3 + ["Johnny"]
+    records = pd.DataFrame({"given_name": given, "family_name": "Quill", "birth_date": None,
+                            "_source": "a", "_record_id": [str(k) for k in range(len(given))]})
+    prepared = standardise(records, _schema())
+    pairs = pd.DataFrame({"i": [0, 0, 7, 7], "j": [3, 6, 10, 13]})
+    grades = compare(prepared, pairs, _schema())["given_name"].tolist()
+    assert grades == [1, 2, 2, 3]  # fairly close, close, close, equivalent
