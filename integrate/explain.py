@@ -68,6 +68,10 @@ def explain_pair(records: pd.DataFrame, match: MatchResult, canonical: Canonical
             joint = int(name_pair_grades(grades[first].to_numpy(), grades[second].to_numpy())[0])
             rows.append({"field": f"{first} + {second} (scored together)", "value_a": "", "value_b": "",
                          "grade": grade_name(NAME_PAIR, joint), "weight": float(scored[column])})
+            together = scored.get("tf_" + column[2:], 0.0)
+            if together != 0:
+                rows.append({"field": "full name (value frequency)", "value_a": "",
+                             "value_b": "", "grade": "", "weight": float(together)})
     candidate = bool(((match.pairs["i"] == i) & (match.pairs["j"] == j)).any())
     return Explanation(reference_a, reference_b, pd.DataFrame(rows), float(scored["weight"]),
                        match.model.prior_weight, float(scored["probability"]), str(scored["decision"]), candidate)

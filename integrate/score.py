@@ -351,6 +351,14 @@ def frequency_adjustments(prepared: pd.DataFrame, grades: pd.DataFrame, field_ty
 
     Frequencies count records, so a person's own duplicates make their name look commoner than
     it is; the cap keeps that (and any other extreme) to at most 6 bits either way.
+
+    Where both person names agree exactly, the pair's name adjustment (under the key
+    ``first+second``, the two fields' own being 0) is the mean of two
+    estimates of how rare the full name is: the two fields' adjustments summed, which assume given
+    and family names independent and so miss names that go together (several people called
+    'James Smith'), and the full name's own rarity (``full_name_rarity``), which sees that but
+    rests on a handful of records per name. The mean shrinks the sparse estimate towards the
+    smooth one with equal weights (common practice for combining two estimates; not tuned).
     """
     out: dict[str, np.ndarray] = {}
     for f, ftype in field_types.items():
@@ -369,6 +377,28 @@ def frequency_adjustments(prepared: pd.DataFrame, grades: pd.DataFrame, field_ty
                 common = np.where(freq[a] >= freq[b], a, b)
                 adjust[near] = _rarity(common, codes)
         out[f] = adjust
+    names = [f for f, t in field_types.items() if t == "person_name"][:2]
+    if len(names) == 2:
+        first, second = names
+        top = len(GRADE_NAMES["person_name"]) - 1
+        both = (grades[first].to_numpy(np.int64) == top) & (grades[second].to_numpy(np.int64) == top)
+        if both.any():
+            together = full_name_rarity(prepared[first], prepared[second])[i[both]]
+            joint = np.zeros(len(both))
+            joint[both] = 0.5 * (out[first][both] + out[second][both] + together)
+            out[first][both] = out[second][both] = 0.0
+            out[f"{first}+{second}"] = joint
+    return out
+
+
+def full_name_rarity(first: pd.Series, second: pd.Series) -> np.ndarray:
+    """Per record, log2(Σp² / p_v) for its full name v, both parts together (NaN where either is
+    missing), capped at ±6 bits like the other value-frequency adjustments."""
+    present = (first.notna() & second.notna()).to_numpy()
+    names = pd.factorize(pd.MultiIndex.from_arrays([first.fillna(""), second.fillna("")]))[0]
+    out = np.full(len(names), np.nan)
+    if present.any():
+        out[present] = _rarity(names[present], names[present])
     return out
 
 

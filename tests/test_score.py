@@ -103,3 +103,26 @@ def test_a_rare_name_weighs_more_than_a_common_one_exact_or_close() -> None:
                 math.log2(0.42 / 0.6)]  # the last: 'smith' close to 'quil' weighs as common 'smith'
     assert np.allclose(adjust, expected, atol=1e-9)
     assert adjust[2] > adjust[1] > 0 > adjust[0]
+
+
+def test_a_full_name_weighs_by_both_parts_and_by_itself() -> None:
+    # Eight records: james smith x4, james quill x1, anna smith x1, anna quill x2. Given names
+    # (and family names) split 5:3, Σp² = 0.53125; full names 4:1:1:2 of 8, Σp² = 0.34375. With
+    # both names exact the pair's adjustment is the mean of the fields' sum and the full name's
+    # own log2(Σp² / p_v) (worked by hand from the definition), kept under the joint key.
+    from integrate.score import frequency_adjustments
+
+    given = ["james"] * 5 + ["anna"] * 3
+    family = ["smith"] * 4 + ["quill", "smith", "quill", "quill"]
+    prepared = pd.DataFrame({"given_name": given, "family_name": family})
+    i, j = np.array([0, 6, 0]), np.array([1, 7, 4])
+    grades = pd.DataFrame({"given_name": [4, 4, 4], "family_name": [4, 4, 0]})
+    types = {"given_name": "person_name", "family_name": "person_name"}
+    out = frequency_adjustments(prepared, grades, types, i, j)
+    sep = 0.53125
+    common = 0.5 * (2 * math.log2(sep / 0.625) + math.log2(0.34375 / 0.5))
+    rare = 0.5 * (2 * math.log2(sep / 0.375) + math.log2(0.34375 / 0.25))
+    assert np.allclose(out["given_name+family_name"], [common, rare, 0.0])
+    # only the given name agrees in the last pair: its own adjustment stands alone
+    assert np.allclose(out["given_name"], [0.0, 0.0, math.log2(sep / 0.625)])
+    assert np.allclose(out["family_name"], 0.0)
