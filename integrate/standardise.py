@@ -10,7 +10,7 @@ import phonenumbers
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from .columns import SOURCE
+from .columns import RECORD_DATE, SOURCE
 from .mapping.spec import CanonicalSchema
 from .text_normalise import (
     clean_email,
@@ -29,6 +29,7 @@ AFFIXES = "__affixes"  # honorifics and suffixes taken out of a name ('dr', 'jr'
 OTHER_ROOT = "__root2"  # a second formal name for a short form shared by two ('kate')
 FIRST_WORD = "__first"  # first word of a name ('anna' of 'anna marie')
 YEAR, MONTH, DAY = "__y", "__m", "__d"
+RECORD_DAY = "__record_day"  # the record's date as days since 1970-01-01 (NaN where unknown)
 
 
 def to_e164(text: str, region: str | None) -> str | None:
@@ -94,9 +95,13 @@ def standardise(records: pd.DataFrame, canonical: CanonicalSchema,
         One column per compared field holding its standard form, plus helper columns:
         ``<field>__affixes`` for person names (honorifics and suffixes taken out, e.g. 'dr jr'),
         ``<field>__root`` for person names (formal given name behind a nickname) and
-        ``<field>__y/__m/__d`` for dates.
+        ``<field>__y/__m/__d`` for dates; ``__record_day``, the record's date in days (contact
+        details that differ mean less between records years apart: people move).
     """
     out = pd.DataFrame(index=records.index)
+    if RECORD_DATE in records:
+        days = pd.to_datetime(records[RECORD_DATE].astype("string"), errors="coerce", format="ISO8601")
+        out[RECORD_DAY] = ((days - pd.Timestamp("1970-01-01")).dt.days).astype("float64")
     for name, spec in canonical.fields.items():
         if not spec.is_compared():
             continue
