@@ -17,6 +17,7 @@ from rapidfuzz.distance import OSA, JaroWinkler
 
 from .mapping.spec import CanonicalSchema
 from .standardise import DAY, FIRST_WORD, MONTH, OTHER_ROOT, RECORD_DAY, ROOT_SUFFIX, YEAR
+from .text_normalise import given_name_forms
 
 MISSING = -1
 
@@ -290,7 +291,39 @@ def _name_grades(cols: _Columns, name: str, i: np.ndarray, j: np.ndarray, *, par
     # (On the demo, such close pairs were 0-4% the same person, against 74% for the rest.)
     known = ~partial & col.both_established(i, j)
     grade = np.where(known & ((grade == 2) | (grade == 3)), grade - 1, grade)
+    if not part_is_close:
+        # a slip on top of a short form ('ndy' / 'Andrew', 'Peggr' / 'Margaret') is close
+        unsure = np.flatnonzero((grade == 0) & ~col.missing(i, j))
+        grade[unsure[_slip_of_a_form(first, i[unsure], j[unsure])]] = 2
     return np.where(col.missing(i, j), MISSING, grade)
+
+
+def _slip_of_a_form(first: Coded, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+    """Whether the first words of two given names stand for one formal name once a slip is
+    undone: a rare word not in the name table stands for the formal names of the table's names
+    one keystroke from it ('ndy' -> 'andy' -> andrew). Worked out once per distinct word."""
+    forms = given_name_forms()
+    table = list(forms)
+    words = first.values.tolist()
+    rare = first.counts[:-1] < ESTABLISHED
+    reach: list[frozenset[str]] = [frozenset(forms.get(w, (w,))) for w in words]
+    slips = [k for k, w in enumerate(words) if rare[k] and w not in forms and len(w) >= 3]
+    if slips and table:
+        near = process.cdist([words[k] for k in slips], table, scorer=OSA.distance, score_cutoff=1,
+                             workers=-1) <= 1
+        for row, k in enumerate(slips):
+            for column in np.flatnonzero(near[row]).tolist():
+                reach[k] = reach[k] | frozenset(forms[table[column]])
+    a, b = first.codes[i], first.codes[j]
+    both = (a >= 0) & (b >= 0)
+    out = np.zeros(len(i), bool)
+    if both.any():
+        keys = a[both].astype(np.int64) * (len(words) + 1) + b[both]
+        inverse, unique = pd.factorize(keys)
+        hit = [bool(reach[x] & reach[y]) for x, y in
+               zip((unique // (len(words) + 1)).tolist(), (unique % (len(words) + 1)).tolist())]
+        out[both] = np.asarray(hit, bool)[inverse]
+    return out
 
 
 def _date_grades(cols: _Columns, name: str, i: np.ndarray, j: np.ndarray) -> np.ndarray:

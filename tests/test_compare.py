@@ -240,3 +240,18 @@ def test_contact_details_that_differ_between_records_years_apart_have_a_grade_of
     apart = "different, records years apart"
     assert names[0] == [apart, "different", "different", "exact"]
     assert names[1] == names[0]
+
+
+def test_a_slip_on_a_short_form_is_close() -> None:
+    # 'ndy' is one keystroke from 'andy', a short form of Andrew in the packaged table (common
+    # practice), and 'peggr' one from 'peggy' (Margaret): close. 'Jan' held by three records is
+    # a name in use, not a slip of 'dan', so it stays different from 'Daniel'.
+    from integrate.standardise import standardise
+
+    given = ["ndy", "Andrew", "Peggr", "Margaret", "Jan", "Jan", "Jan", "Daniel"]
+    records = pd.DataFrame({"given_name": given, "family_name": "Quill", "birth_date": None,
+                            "_source": "a", "_record_id": [str(k) for k in range(len(given))]})
+    prepared = standardise(records, _schema())
+    grades = compare(prepared, pd.DataFrame({"i": [0, 2, 4, 0], "j": [1, 3, 7, 3]}), _schema())
+    assert [GRADE_NAMES["person_name"][g] for g in grades["given_name"]] == [
+        "close", "close", "different", "different"]

@@ -27,7 +27,8 @@ def test_pairwise_f1_against_the_demo_truth(demo_run) -> None:
     crosswalk = pd.read_csv(demo_run.output_dir / "crosswalk.csv", dtype=str)
     truth = pd.read_csv(TRUTH / "crosswalk.csv", dtype=str)
     result = evaluate(crosswalk, truth)
-    assert result.pairwise.f1 >= 0.95, result
+    # the matching target for the demo workspace, at the default link threshold
+    assert result.pairwise.f1 >= 0.98, result
 
 
 def test_merged_heights_match_the_truth(demo_run) -> None:
@@ -104,7 +105,7 @@ def test_report_measures_itself_against_the_truth(demo_run) -> None:
     """The demo schema names its truth file: the run judges itself, hard non-matches included."""
     quality = demo_run.quality
     assert quality is not None and quality.truth_file == "demo_sources/truth/crosswalk.csv"
-    assert quality.evaluation.pairwise.f1 >= 0.95
+    assert quality.evaluation.pairwise.f1 >= 0.98
     hard = quality.hard_negatives.set_index("kind")
     assert len(hard) == 2 and (hard["candidate pairs"] > 100).all()
     # relatives and namesakes are the cases most at risk: fewer than 5% of them may be merged
