@@ -314,8 +314,10 @@ def _slip_of_a_form(first: Coded, i: np.ndarray, j: np.ndarray) -> np.ndarray:
         for row, k in enumerate(slips):
             for column in np.flatnonzero(near[row]).tolist():
                 reach[k] = reach[k] | frozenset(forms[table[column]])
+    slipped = np.zeros(len(words) + 1, bool)  # the last entry: missing
+    slipped[[k for k in slips if len(reach[k]) > 1]] = True
     a, b = first.codes[i], first.codes[j]
-    both = (a >= 0) & (b >= 0)
+    both = (a >= 0) & (b >= 0) & (slipped[a] | slipped[b])
     out = np.zeros(len(i), bool)
     if both.any():
         keys = a[both].astype(np.int64) * (len(words) + 1) + b[both]
