@@ -85,6 +85,15 @@ def grade_name(ftype: str, grade: int) -> str:
     return "missing" if grade < 0 else GRADE_NAMES[ftype][grade]
 
 
+def _distinct_pairs(a: np.ndarray, b: np.ndarray, size: int) -> tuple[np.ndarray, list[int], list[int]]:
+    """Code pairs (a, b), codes in 0..size-1, as (each pair's number among the distinct pairs, the
+    distinct pairs' left codes, their right codes): work done once per distinct pair is spread
+    back with ``result[inverse]``."""
+    keys = a.astype(np.int64) * (size + 1) + b
+    inverse, unique = pd.factorize(keys)
+    return inverse, (unique // (size + 1)).tolist(), (unique % (size + 1)).tolist()
+
+
 class Coded:
     """One prepared column as integer codes (-1 = missing) plus its distinct values.
 
@@ -136,11 +145,9 @@ class Coded:
         out = np.full(len(a), np.nan)
         if not both.any():
             return out
-        keys = a[both].astype(np.int64) * (len(self.values) + 1) + b[both]
-        inverse, unique = pd.factorize(keys)
-        left = self.values[unique // (len(self.values) + 1)].tolist()
-        right = self.values[unique % (len(self.values) + 1)].tolist()
-        scores = process.cpdist(left, right, scorer=scorer, workers=-1, **options)
+        inverse, left, right = _distinct_pairs(a[both], b[both], len(self.values))
+        scores = process.cpdist(self.values[left].tolist(), self.values[right].tolist(), scorer=scorer,
+                                workers=-1, **options)
         out[both] = np.asarray(scores, dtype=float)[inverse]
         return out
 
@@ -158,11 +165,9 @@ class Coded:
         out = single[a] & single[b] & (word_code[a] == word_code[b])
         longer = (a >= 0) & (b >= 0) & ~(single[a] & single[b])
         if longer.any():
-            keys = a[longer].astype(np.int64) * (len(self.values) + 1) + b[longer]
-            inverse, unique = pd.factorize(keys)
+            inverse, left, right = _distinct_pairs(a[longer], b[longer], len(self.values))
             within = [bool(x and y and (x <= y or y <= x)) for x, y in
-                      zip((words[k] for k in (unique // (len(self.values) + 1)).tolist()),
-                          (words[k] for k in (unique % (len(self.values) + 1)).tolist()))]
+                      zip((words[k] for k in left), (words[k] for k in right))]
             out[longer] = np.asarray(within, dtype=bool)[inverse]
         return out
 
@@ -320,11 +325,8 @@ def _slip_of_a_form(first: Coded, i: np.ndarray, j: np.ndarray) -> np.ndarray:
     both = (a >= 0) & (b >= 0) & (slipped[a] | slipped[b])
     out = np.zeros(len(i), bool)
     if both.any():
-        keys = a[both].astype(np.int64) * (len(words) + 1) + b[both]
-        inverse, unique = pd.factorize(keys)
-        hit = [bool(reach[x] & reach[y]) for x, y in
-               zip((unique // (len(words) + 1)).tolist(), (unique % (len(words) + 1)).tolist())]
-        out[both] = np.asarray(hit, bool)[inverse]
+        inverse, left, right = _distinct_pairs(a[both], b[both], len(words))
+        out[both] = np.asarray([bool(reach[x] & reach[y]) for x, y in zip(left, right)], bool)[inverse]
     return out
 
 

@@ -352,13 +352,13 @@ def frequency_adjustments(prepared: pd.DataFrame, grades: pd.DataFrame, field_ty
     Frequencies count records, so a person's own duplicates make their name look commoner than
     it is; the cap keeps that (and any other extreme) to at most 6 bits either way.
 
-    Where both person names agree exactly, the pair's name adjustment (under the key
-    ``first+second``, the two fields' own being 0) is the mean of two
+    Where both person names agree exactly, the pair's name adjustment is the mean of two
     estimates of how rare the full name is: the two fields' adjustments summed, which assume given
     and family names independent and so miss names that go together (several people called
     'James Smith'), and the full name's own rarity (``full_name_rarity``), which sees that but
     rests on a handful of records per name. The mean shrinks the sparse estimate towards the
-    smooth one with equal weights (common practice for combining two estimates; not tuned).
+    smooth one with equal weights (common practice for combining two estimates; not tuned). It
+    is returned under the key ``first+second``, the two fields' own adjustments being 0 there.
     """
     out: dict[str, np.ndarray] = {}
     for f, ftype in field_types.items():
