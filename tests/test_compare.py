@@ -206,19 +206,24 @@ def test_the_joint_name_grade_keeps_fairly_close_apart_from_close() -> None:
     assert len(set(GRADE_NAMES[NAME_PAIR])) == len(GRADE_NAMES[NAME_PAIR]) == 24
 
 
+def _given_name_grades(given: list[str], i: list[int], j: list[int]) -> list[int]:
+    """Given-name grades of pairs (i, j) among records of one family name, whole set standardised
+    together (how common each spelling is matters)."""
+    from integrate.standardise import standardise
+
+    records = pd.DataFrame({"given_name": given, "family_name": "Quill", "birth_date": None,
+                            "_source": "a", "_record_id": [str(k) for k in range(len(given))]})
+    prepared = standardise(records, _schema())
+    return compare(prepared, pd.DataFrame({"i": i, "j": j}), _schema())["given_name"].tolist()
+
+
 def test_two_spellings_in_common_use_are_two_names_not_a_slip() -> None:
     # 'Mark' and 'Marek' (one keystroke apart) are each held by three records: two names, fairly
     # close; 'Marrk' on one record is a slip of 'Mark', close. 'John' / 'Jack' (a diminutive in
     # the table, and a common name of its own) both common: close; 'Johnny' on one record stays
     # equivalent to 'John'. (Common practice: a slip is rare, a name in use recurs.)
-    from integrate.standardise import standardise
-
     given = ["Mark"] * 3 + ["Marek"] * 3 + ["Marrk"] + ["John"] * 3 + ["Jack"] * 3 + ["Johnny"]
-    records = pd.DataFrame({"given_name": given, "family_name": "Quill", "birth_date": None,
-                            "_source": "a", "_record_id": [str(k) for k in range(len(given))]})
-    prepared = standardise(records, _schema())
-    pairs = pd.DataFrame({"i": [0, 0, 7, 7], "j": [3, 6, 10, 13]})
-    grades = compare(prepared, pairs, _schema())["given_name"].tolist()
+    grades = _given_name_grades(given, [0, 0, 7, 7], [3, 6, 10, 13])
     assert grades == [1, 2, 2, 3]  # fairly close, close, close, equivalent
 
 
@@ -246,12 +251,6 @@ def test_a_slip_on_a_short_form_is_close() -> None:
     # 'ndy' is one keystroke from 'andy', a short form of Andrew in the packaged table (common
     # practice), and 'peggr' one from 'peggy' (Margaret): close. 'Jan' held by three records is
     # a name in use, not a slip of 'dan', so it stays different from 'Daniel'.
-    from integrate.standardise import standardise
-
     given = ["ndy", "Andrew", "Peggr", "Margaret", "Jan", "Jan", "Jan", "Daniel"]
-    records = pd.DataFrame({"given_name": given, "family_name": "Quill", "birth_date": None,
-                            "_source": "a", "_record_id": [str(k) for k in range(len(given))]})
-    prepared = standardise(records, _schema())
-    grades = compare(prepared, pd.DataFrame({"i": [0, 2, 4, 0], "j": [1, 3, 7, 3]}), _schema())
-    assert [GRADE_NAMES["person_name"][g] for g in grades["given_name"]] == [
-        "close", "close", "different", "different"]
+    grades = _given_name_grades(given, [0, 2, 4, 0], [1, 3, 7, 3])
+    assert [GRADE_NAMES["person_name"][g] for g in grades] == ["close", "close", "different", "different"]
