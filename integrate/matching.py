@@ -50,7 +50,8 @@ def match_records(records: pd.DataFrame, canonical: CanonicalSchema, *,
     progress("block")
     rules = list(canonical.blocking) or default_rules(canonical)
     pairs, blocking = block(prepared, rules, groups=None if group_codes is None else pd.Series(group_codes),
-                            max_block_size=canonical.max_block_size)
+                            max_block_size=canonical.max_block_size,
+                            order_columns=[n for n, f in canonical.fields.items() if f.is_compared()])
     progress("compare")
     grades = compare(prepared, pairs, canonical)
     progress("score")
