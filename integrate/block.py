@@ -26,7 +26,7 @@ SORTED_WINDOW = 5  # sorted-neighbourhood window of the default rules (records c
 # A block of more records than this is not compared all against all: its records are sorted by their
 # other fields and each is paired with the next SPLIT_WINDOW - 1 (a sorted neighbourhood inside the
 # block), so pairs per record stay bounded however common a key value gets.
-SPLIT_BLOCK_SIZE = 300
+SPLIT_BLOCK_SIZE = 64
 SPLIT_WINDOW = 10
 MAX_RULE_PAIRS = 60_000_000  # a rule producing more candidate pairs than this is refused
 
