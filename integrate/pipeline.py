@@ -202,6 +202,8 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
         clock[0], clock[1] = now, stage
         progress(stage)
 
+    tick.count = getattr(progress, "count", None)  # type: ignore[attr-defined]  # counts inside a stage
+
     check_orders(ws.canonical, [e.mapping.source for e in ws.sources], ws.display(ws.canonical_file))
     inputs = input_hashes(ws) if write else {}
     records, mapped = read_and_map(ws, tick)
