@@ -178,7 +178,8 @@ def pairs_frame(records: pd.DataFrame, match: MatchResult, types: dict[str, str]
 
 
 def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress = _quiet,
-                 write: bool = True, output_dir: str | Path | None = None) -> RunResult:
+                 write: bool = True, output_dir: str | Path | None = None, engine: str = "local",
+                 scheduler: str | None = None) -> RunResult:
     """Run every stage on a workspace and (by default) write the outputs and the run report.
 
     Args:
@@ -186,6 +187,10 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
         progress: called with each stage name as it starts.
         write: write tables and the report; ``False`` only computes.
         output_dir: overrides the schema's ``output`` folder.
+        engine: where blocking, comparison and scoring run: ``"local"`` (this process) or
+            ``"dask"`` (a dask.distributed cluster; same outputs; see ``integrate.engine``).
+        scheduler: with ``engine="dask"``, a running cluster's scheduler address (default: a
+            LocalCluster of two worker processes started for this run).
 
     Raises:
         InputError / InputErrors: a mapping file, source file or value is wrong; nothing is written.
@@ -213,9 +218,13 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
     from .review.apply import decision_constraints, summarise_review
 
     decided = decision_constraints(ws.root, records)
-    match = match_records(records, ws.canonical, regions=regions, progress=tick, must_link=decided.must_link,
-                          cannot_link=decided.cannot_link, estimator=decided.estimator,
-                          one_per_person=[e.mapping.source for e in ws.sources if e.mapping.one_per_person])
+    from .engine import open_engine
+
+    with open_engine(engine, scheduler) as runner:
+        match = match_records(records, ws.canonical, regions=regions, progress=tick, must_link=decided.must_link,
+                              cannot_link=decided.cannot_link, estimator=decided.estimator,
+                              one_per_person=[e.mapping.source for e in ws.sources if e.mapping.one_per_person],
+                              engine=runner)
     # stable IDs: each cluster keeps the previous run's ID of the entity it shares most records with
     history = RunHistory.load(ws.root, create=write)
     current = pd.DataFrame({"source": records[SOURCE].astype(str).to_numpy(),

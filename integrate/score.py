@@ -232,7 +232,8 @@ def model_grades(grades: pd.DataFrame, types: dict[str, str]) -> tuple[pd.DataFr
 
 def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np.ndarray],
              background: pd.DataFrame | None = None, background_weight: float = 0.0, *,
-             labels: np.ndarray | None = None, start: ScoreModel | None = None) -> ScoreModel:
+             labels: np.ndarray | None = None, start: ScoreModel | None = None,
+             counts: np.ndarray | None = None) -> ScoreModel:
     """EM for the class profiles and shares over the distinct grade patterns of all record pairs.
 
     A latent-class mixture (Winkler's EM generalised to more than two classes): each class has
@@ -245,6 +246,8 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
         labels: per candidate pair 0 (undecided), ``LABEL_SAME`` or ``LABEL_DIFFERENT``: decided
             pairs are held to their decision (EM with partly classified data).
         start: a fitted model whose profiles and shares start EM (default: the sensible guesses).
+        counts: how many candidate pairs each row of ``grades`` stands for (default: 1 each), so
+            a distributed engine can pass distinct patterns with counts reduced across workers.
     """
     names = list(grades.columns)
     marks = np.zeros(len(grades), np.int8) if labels is None else np.asarray(labels, np.int8)
@@ -254,7 +257,8 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
     stacked = np.concatenate(rows)
     codes = pattern_codes(stacked)  # distinct (grades, label) rows, in order of first appearance
     # candidate pairs count 1 each, background pairs background_weight each
-    counts = np.bincount(codes[:len(grades)], minlength=codes.max(initial=-1) + 1).astype(float)
+    counts = np.bincount(codes[:len(grades)], weights=counts, minlength=codes.max(initial=-1) + 1).astype(float)
+    candidates = float(counts.sum())
     if len(rows) > 1:
         counts += background_weight * np.bincount(codes[len(grades):], minlength=len(counts))
     first = np.flatnonzero(np.diff(np.maximum.accumulate(codes), prepend=-1) > 0)  # each pattern's first row
@@ -265,7 +269,7 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
         shares = dict(start.class_shares)
     elif background is not None and background_weight > 0:
         # matches and relatives are a small share of all pairs: start them near the candidate count
-        base = min(0.5, 0.3 * len(grades) / counts.sum())
+        base = min(0.5, 0.3 * candidates / counts.sum())
         shares = {k: (base if k != UNRELATED else 1.0) for k in shares}
         shares[UNRELATED] = 1.0 - base * (len(shares) - 1)
     classes = list(theta)

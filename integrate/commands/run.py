@@ -12,6 +12,11 @@ def register(sub: argparse._SubParsersAction) -> None:
     run = sub.add_parser("run", help="read every source, match, merge, and write outputs and a run report")
     run.add_argument("workspace", nargs="?", default=".", help="workspace folder (default: current folder)")
     run.add_argument("--out", help="output folder (default: the schema's 'output', usually out/)")
+    run.add_argument("--engine", choices=("local", "dask"), default="local",
+                     help="where blocking, comparison and scoring run: this process (default) or a Dask cluster")
+    run.add_argument("--scheduler", metavar="ADDRESS",
+                     help="with --engine dask: a running Dask scheduler, e.g. tcp://10.0.0.5:8786 "
+                          "(default: a local cluster of two worker processes)")
     run.set_defaults(func=main)
 
 
@@ -19,7 +24,8 @@ def main(args: argparse.Namespace) -> int:
     from ..pipeline import STAGES, run_pipeline
 
     with stage_progress(STAGES) as progress:
-        result = run_pipeline(args.workspace, progress=progress, output_dir=args.out)
+        result = run_pipeline(args.workspace, progress=progress, output_dir=args.out, engine=args.engine,
+                              scheduler=args.scheduler)
     records = sum(result.source_counts.values())
     decisions = result.pairs["decision"].value_counts()
     print(f"{records} records from {len(result.source_counts)} sources -> {len(result.merged)} entities")
