@@ -129,12 +129,16 @@ class DaskEngine:
 
         from . import EngineError
 
+        logging.getLogger("distributed").setLevel(logging.WARNING)  # its start/stop notes are not the user's
         if self.scheduler:
             try:
                 self.client = Client(self.scheduler, timeout=CONNECT_TIMEOUT)
             except OSError as err:
                 raise EngineError(f"cannot reach the Dask scheduler at {self.scheduler}: {err}") from None
         else:
+            # on a loaded machine the workers this run started may take longer than the nanny's
+            # few seconds to stop; it then ends them, which is what closing asked for anyway
+            logging.getLogger("distributed.nanny").setLevel(logging.ERROR)
             self.cluster = LocalCluster(n_workers=self.workers, threads_per_worker=1, processes=True,
                                         dashboard_address=None)
             self.client = Client(self.cluster)
@@ -198,7 +202,6 @@ class DaskEngine:
         scored_parts = [client.submit(weigh, records, p, g, field_types, model, canonical.thresholds)
                         for p, g in zip(pairs, grades)]
         scored = pd.concat(client.gather(scored_parts), ignore_index=True)
-        client.cancel(scored_parts + grades + pairs + summaries + by_rule + [sample])
         return scored, self._report(rules, reports, scored, n, group_codes), model
 
     @staticmethod
