@@ -3,6 +3,7 @@
 
     python benchmarks/scale.py --people 10000,100000,300000,1000000
     python benchmarks/scale.py --api --rows 72000,240000,720000
+    python benchmarks/scale.py --engine dask --people 10000,100000
 
 Workspace mode: for each size, ``demo_sources/generate.py --people N`` makes a workspace (kept
 in ``--work`` for the next time), then ``integrate run`` runs on it in a fresh process. Printed
@@ -14,6 +15,10 @@ and for memory, against the targets.
 API mode (``--api``): ``integrate.deduplicate`` on one export of seven fields (two names, birth
 date, e-mail, phone, street, postcode) of the given number of rows, taken from a generated
 workspace, default settings; timed around the call alone.
+
+With ``--engine dask`` the same figures for a run on a LocalCluster of two single-threaded
+worker processes; the peak memory and CPU time shown per stage are the driver's, and one more
+line gives the workers' CPU time and the largest worker's peak memory.
 
 Each size runs in its own process under an address-space cap (``--memory-cap``, default 14 GB)
 so a size that would swap is stopped instead. Run one size at a time on a shared machine.
@@ -63,7 +68,7 @@ def workspace_for(work: Path, people: int, seed: int | None) -> Path:
 # Children: one measured run each
 # --------------------------------------------------------------------------
 
-def child_run(folder: Path) -> dict:
+def child_run(folder: Path, engine: str = "local") -> dict:
     import integrate
 
     stages: list[tuple[str, float, float, float]] = []  # (stage, seconds, CPU seconds, peak GB at its end)
@@ -76,13 +81,21 @@ def child_run(folder: Path) -> dict:
         clock.update(stage=stage, start=now, cpu=cpu)
 
     started, cpu_started = time.perf_counter(), time.process_time()
-    result = integrate.run(folder, progress=progress, output_dir=folder / "out")
+    result = integrate.run(folder, progress=progress, output_dir=folder / ("out" if engine == "local" else "out-dask"),
+                           engine=engine)
     total = time.perf_counter() - started
     quality = result.quality.evaluation if result.quality else None
-    return {"records": len(result.records), "pairs": int(result.blocking.candidate_pairs),
-            "stages": stages, "total": total, "cpu": time.process_time() - cpu_started, "peak_gb": peak_gb(),
-            "pairwise_f1": quality.pairwise.f1 if quality else None,
-            "bcubed_f1": quality.bcubed.f1 if quality else None}
+    out = {"records": len(result.records), "pairs": int(result.blocking.candidate_pairs),
+           "stages": stages, "total": total, "cpu": time.process_time() - cpu_started, "peak_gb": peak_gb(),
+           "pairwise_f1": quality.pairwise.f1 if quality else None,
+           "bcubed_f1": quality.bcubed.f1 if quality else None}
+    if engine == "dask":
+        # the LocalCluster's workers are this process's children, ended and reaped when the run
+        # closes its cluster: their CPU time summed, and the largest one worker's peak memory
+        children = resource.getrusage(resource.RUSAGE_CHILDREN)
+        out["worker_cpu"] = children.ru_utime + children.ru_stime
+        out["worker_peak_gb"] = children.ru_maxrss / 1024 / 1024
+    return out
 
 
 def seven_field_export(folder: Path, rows: int):
@@ -154,6 +167,9 @@ def show(size_label: str, result: dict) -> None:
     print(f"{size_label}: records {result['records']:,}  candidate pairs {result['pairs']:,}  "
           f"total {result['total']:.1f} s (CPU {result['cpu']:.1f} s)  peak {result['peak_gb']:.2f} GB  "
           f"pairwise F1 {f1 if f1 is None else round(f1, 4)}  B-cubed F1 {b3 if b3 is None else round(b3, 4)}")
+    if "worker_peak_gb" in result:
+        print(f"    dask workers (2 x 1 thread): CPU {result['worker_cpu']:.1f} s together, "
+              f"peak {result['worker_peak_gb']:.2f} GB in the largest worker (driver peak above)")
     print(f"    per stage (wall / CPU / peak so far): {stages}", flush=True)
 
 
@@ -167,11 +183,13 @@ def main() -> None:
     parser.add_argument("--work", type=Path, default=Path(os.environ.get("TMPDIR", "/tmp")) / "integrate-scale",
                         help="folder for the generated workspaces (kept for the next run)")
     parser.add_argument("--memory-cap", type=float, default=14e9, help="address-space cap per size, bytes")
+    parser.add_argument("--engine", choices=("local", "dask"), default="local",
+                        help="workspace mode: run on this process or on a 2-worker Dask LocalCluster")
     parser.add_argument("--child", nargs="+", help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.child:
         if args.child[0] == "run":
-            out = child_run(Path(args.child[1]))
+            out = child_run(Path(args.child[1]), args.child[2] if len(args.child) > 2 else "local")
         else:
             out = child_api(Path(args.child[1]), int(args.child[2]))
         print("RESULT " + json.dumps(out))
@@ -188,8 +206,8 @@ def main() -> None:
             label = f"deduplicate {size:,} rows"
         else:
             folder = workspace_for(args.work, size, args.seed)
-            result = run_child(["--child", "run", str(folder)], int(args.memory_cap))
-            label = f"{size:,} people"
+            result = run_child(["--child", "run", str(folder), args.engine], int(args.memory_cap))
+            label = f"{size:,} people" + (" (dask)" if args.engine == "dask" else "")
         if result is None:
             print(f"{label}: did not finish under the {args.memory_cap / 1e9:.0f} GB cap", flush=True)
             continue
