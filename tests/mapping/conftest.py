@@ -8,9 +8,12 @@ The web shop's export is the same both months.
 
 from __future__ import annotations
 
+import contextlib
+import io
 import random
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 import pytest
 
@@ -158,3 +161,45 @@ def build_two_months(root: Path) -> TwoMonths:
 @pytest.fixture()
 def two_months(tmp_path: Path) -> TwoMonths:
     return build_two_months(tmp_path / "ws")
+
+
+@dataclass
+class DriftStory:
+    """Month 1 run, month 2 checked, the mapping updated by ``suggest --update``, month 2 run."""
+
+    root: Path
+    month1: Any  # RunResult
+    check_before: Any  # CheckReport on month 2 with month 1's mapping
+    mapping_before: str
+    dry_run_output: str
+    mapping_after_dry_run: str
+    update_output: str
+    mapping_after: str
+    check_after: Any
+    month2: Any  # RunResult
+
+
+@pytest.fixture(scope="module")
+def drift_story(tmp_path_factory: pytest.TempPathFactory) -> DriftStory:
+    from integrate import run
+    from integrate.cli import main
+    from integrate.mapping.checks import check_workspace
+
+    months = build_two_months(tmp_path_factory.mktemp("story") / "ws")
+    root, mapping = months.root, months.root / "mappings" / "members.yaml"
+    month1 = run(root)
+    months.use_month2()
+    check_before = check_workspace(root, use_last_run=False)
+    before = mapping.read_text()
+
+    def cli(*argv: str) -> str:
+        out = io.StringIO()
+        with contextlib.redirect_stdout(out):
+            assert main(list(argv)) == 0
+        return out.getvalue()
+
+    dry = cli("suggest", "--update", "members", "--workspace", str(root), "--dry-run")
+    after_dry = mapping.read_text()
+    update = cli("suggest", "--update", "members", "--workspace", str(root))
+    return DriftStory(root, month1, check_before, before, dry, after_dry, update, mapping.read_text(),
+                      check_workspace(root, use_last_run=False), run(root))
