@@ -103,7 +103,8 @@ def test_run_report_shows_the_mapping_change_and_its_effect(drift_story) -> None
     report = Path(drift_story.month2.report_path).read_text()
     assert "Mapping files since run 1" in report and "mappings/members.yaml</code>: changed" in report
     assert "+    unit: cm" in report
-    assert "0 entities changed" not in report  # the six 'P' members are read differently: their entities changed
+    assert "6 of 135 records are read differently" in report  # the six members now coded 'P'
+    assert f"and {_p_entities(drift_story)} entities changed" in report
 
 
 # ---------------------------------------------------------------- one finding kind at a time
@@ -227,3 +228,50 @@ def test_source_drift_reads_rates_from_the_workspace(remembered: Path) -> None:
     entry = ws.sources[0]
     raw = read_source(entry.mapping.read, ws.root, name=entry.mapping.source)
     assert source_drift(ws, entry, raw, rates) is None  # the same file as the stored profile
+
+
+# ---------------------------------------------------------------- traceable mapping files
+
+def _cli(*argv: str) -> tuple[int, str]:
+    import contextlib
+    import io
+
+    from integrate.cli import main
+
+    out = io.StringIO()
+    with contextlib.redirect_stdout(out):
+        code = main(list(argv))
+    return code, out.getvalue()
+
+
+def _p_entities(story) -> int:  # noqa: ANN001 - the entities holding the six members now coded 'P'
+    crosswalk = story.month2.crosswalk
+    p_ids = {f"M{i:03d}" for i in range(0, 90, 15)}
+    return crosswalk[(crosswalk["source"] == "members") & crosswalk["record_id"].isin(p_ids)]["entity_id"].nunique()
+
+
+def test_history_lists_each_version_with_its_runs(drift_story) -> None:  # noqa: ANN001
+    code, out = _cli("mappings", "history", "--workspace", str(drift_story.root))
+    lines = out.splitlines()
+    assert code == 0 and lines[0] == "mappings/canonical.yaml" and "version 1" in lines[1] and "runs 1, 2" in lines[1]
+    members = lines.index("mappings/members.yaml")
+    assert "version 1" in lines[members + 1] and " run 1 " in lines[members + 1]
+    assert "version 2" in lines[members + 2] and " run 2 " in lines[members + 2]
+    code, only = _cli("mappings", "history", "members", "--workspace", str(drift_story.root))
+    assert only.splitlines() == lines[members:members + 3]
+
+
+def test_diff_between_runs_shows_the_edits_and_the_entities_they_changed(drift_story) -> None:  # noqa: ANN001
+    code, out = _cli("mappings", "diff", "1", "2", "--workspace", str(drift_story.root))
+    assert code == 0 and "--- mappings/members.yaml (run 1)\n+++ mappings/members.yaml (run 2)\n" in out
+    assert "canonical.yaml" not in out  # unchanged files are not listed
+    # six members now carry status 'P': read differently; heights and fees read back the same as last month
+    assert (f"run 1 -> run 2: {_p_entities(drift_story)} entities changed; 6 of 135 records read differently, "
+            "0 added, 0 removed") in out
+    code, same = _cli("mappings", "diff", "2", "2", "--workspace", str(drift_story.root))
+    assert "mapping files are the same in runs 2 and 2" in same and "0 entities changed" in same
+
+
+def test_diff_with_an_unknown_run_is_a_clear_error(drift_story, capsys) -> None:  # noqa: ANN001
+    code, _ = _cli("mappings", "diff", "1", "9", "--workspace", str(drift_story.root))
+    assert code == 2 and "no run 9 in the state store (hint: stored runs: 1, 2" in capsys.readouterr().err
