@@ -18,7 +18,7 @@ from pathlib import Path
 from typing import Any
 
 import pandas as pd
-from sqlalchemy import Column, Engine, ForeignKey, Integer, MetaData, String, Table, Text, insert, select
+from sqlalchemy import Column, Engine, ForeignKey, Integer, MetaData, String, Table, Text, delete, insert, select
 from sqlalchemy.exc import SQLAlchemyError
 
 from .mapping.load import file_hash
@@ -94,6 +94,7 @@ def record_inputs(ws: Workspace, run_id: int, mapping_hashes: dict[str, str]) ->
             new = [{"sha256": h, "text": t} for h, t in texts.items() if h not in known]
             if new:
                 conn.execute(insert(mapping_text_table), new)
+            conn.execute(delete(source_profile_table).where(source_profile_table.c.run_id == run_id))
             if rows:
                 conn.execute(insert(source_profile_table), rows)
     except SQLAlchemyError as exc:

@@ -27,6 +27,7 @@ from .spec import ColumnMap, SourceMapping
 TOP_VALUES = 30  # most common values kept per column (enough for code columns; names are sampled)
 TOP_SHAPES = 8  # most common value shapes kept per column
 QUANTILES = (0.05, 0.25, 0.5, 0.75, 0.95)
+PATTERN_SAMPLE = 200  # values whose patterns and date layouts are tried (shares to within a few points)
 
 
 def _weighted_quantiles(numbers: np.ndarray, weights: np.ndarray) -> dict[str, float]:
@@ -59,13 +60,17 @@ def _declared(entry: ColumnMap | None) -> dict[str, Any]:
 
 def snapshot_column(values: pd.Series, entry: ColumnMap | None = None) -> dict[str, Any]:
     """The storable profile of one column of text values (see the module docstring)."""
-    base = profile_column(values)
     text = values.astype("string").str.strip()
     present = text[text.notna() & text.ne("")]
     counts = present.value_counts()
+    # kinds, pattern shares and date layouts from a seeded sample (profile.py tries every layout per
+    # distinct value); counts, top values, lengths, shapes and quantiles from every value
+    base = profile_column(values if len(values) <= PATTERN_SAMPLE else values.sample(PATTERN_SAMPLE, random_state=0))
+    empty = len(values) - len(present)
     snap: dict[str, Any] = {
-        "kind": base.kind(), "count": base.count, "empty": base.empty, "distinct": base.distinct,
-        "unique": base.is_unique, "top": [[str(v), int(n)] for v, n in counts.head(TOP_VALUES).items()],
+        "kind": base.kind(), "count": len(values), "empty": empty, "distinct": len(counts),
+        "unique": empty == 0 and len(counts) == len(values) > 0,
+        "top": [[str(v), int(n)] for v, n in counts.head(TOP_VALUES).items()],
         "shares": {k: round(v, 4) for k, v in base.shares.items()},
         "date_formats": {k: round(v, 4) for k, v in base.date_formats.items()},
         "declared": _declared(entry),
