@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import sys
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -24,7 +25,8 @@ def main(args: argparse.Namespace) -> int:
 
         return update_main(args)
     if not args.source_file:
-        raise SystemExit("integrate suggest: give SOURCE_FILE (a new export) or --update SOURCE")
+        print("error: give SOURCE_FILE (a new export to draft a mapping for) or --update SOURCE", file=sys.stderr)
+        return 2
     from ..mapping.suggest import suggest_mapping
 
     draft = suggest_mapping(args.source_file, workspace=args.workspace, name=args.name, force=args.force)

@@ -118,6 +118,11 @@ def _apply(doc: CommentedMap, p: Proposal, stamp: str) -> bool:
         columns.yaml_add_eol_comment(f"# TODO: new in the export of {stamp}; map it to a field or keep ignore",
                                      p.column)
         return True
+    if p.kind == "rename" and p.column not in columns and p.column in (doc.get("record_id"), doc.get("record_date")):
+        for key in ("record_id", "record_date"):  # a column named only there, not under 'columns'
+            if doc.get(key) == p.column:
+                doc[key] = p.value
+        return True
     if p.column not in columns:
         return False
     if p.kind == "rename":

@@ -275,3 +275,11 @@ def test_diff_between_runs_shows_the_edits_and_the_entities_they_changed(drift_s
 def test_diff_with_an_unknown_run_is_a_clear_error(drift_story, capsys) -> None:  # noqa: ANN001
     code, _ = _cli("mappings", "diff", "1", "9", "--workspace", str(drift_story.root))
     assert code == 2 and "no run 9 in the state store (hint: stored runs: 1, 2" in capsys.readouterr().err
+
+
+def test_renamed_record_id_column_follows_in_record_id(remembered: Path) -> None:
+    _edit_members(remembered, lambda f: f.rename(columns={"member_id": "member_no"}))
+    update = propose_update(remembered, "members")
+    assert [(p.kind, p.column, p.value) for p in update.applied] == [("rename", "member_id", "member_no")]
+    assert "record_id: member_no\n" in update.new_text and "  member_no: ignore" in update.new_text
+    assert "record_id: member_id" not in update.new_text
