@@ -22,7 +22,8 @@ from sqlalchemy import Column, Engine, ForeignKey, Integer, MetaData, String, Ta
 from sqlalchemy.exc import SQLAlchemyError
 
 from .mapping.load import file_hash
-from .mapping.snapshot import snapshot_source
+from .mapping.snapshot import declared_entry, snapshot_source
+from .mapping.spec import SourceMapping
 from .sources import read_source
 from .state import STATE_URL_ENV, StateError, run_file_table, run_table, shown_url, state_database, state_engine
 from .workspace import Workspace
@@ -84,9 +85,13 @@ def record_inputs(ws: Workspace, run_id: int, mapping_hashes: dict[str, str]) ->
         texts[digest] = data.decode("utf-8", errors="replace")
     rows = []
     for entry in ws.sources:
-        raw = read_source(entry.mapping.read, ws.root, name=entry.mapping.source)
-        rows.append({"run_id": run_id, "source": entry.mapping.source, "data_sha256": _data_hash(ws, entry),
-                     "profile": json.dumps(snapshot_source(raw, entry.mapping), sort_keys=True)})
+        digest = _data_hash(ws, entry)
+        columns = _stored_for(engine, entry.mapping, digest) if digest else None
+        if columns is None:
+            raw = read_source(entry.mapping.read, ws.root, name=entry.mapping.source)
+            columns = snapshot_source(raw, entry.mapping)
+        rows.append({"run_id": run_id, "source": entry.mapping.source, "data_sha256": digest,
+                     "profile": json.dumps(columns, sort_keys=True)})
     try:
         with engine.begin() as conn:
             known = {r[0] for r in conn.execute(select(mapping_text_table.c.sha256).where(
@@ -99,6 +104,27 @@ def record_inputs(ws: Workspace, run_id: int, mapping_hashes: dict[str, str]) ->
                 conn.execute(insert(source_profile_table), rows)
     except SQLAlchemyError as exc:
         raise StateError(f"could not record profiles in {shown_url(str(engine.url))}: {exc}") from exc
+
+
+def _stored_for(engine: Engine, mapping: SourceMapping, digest: str) -> dict[str, dict[str, Any]] | None:
+    """The profile already stored for this very data file, with today's mapping declarations.
+
+    A run on an export profiled before (a re-run after review) then costs no profiling; a column
+    the mapping reads now but did not then lacks its patterns, so the source is profiled again.
+    """
+    p = source_profile_table
+    rows = _read(engine, select(p.c.profile).where(p.c.source == mapping.source, p.c.data_sha256 == digest)
+                 .order_by(p.c.run_id.desc()).limit(1))
+    if not rows:
+        return None
+    columns: dict[str, dict[str, Any]] = json.loads(rows[0]["profile"])
+    maps = mapping.column_maps()
+    for column, profile in columns.items():
+        entry = maps.get(column)
+        if entry is not None and not entry.ignore and not profile.get("kind"):
+            return None
+        profile["declared"] = declared_entry(entry)
+    return columns
 
 
 def _read(engine: Engine, statement: Any) -> list[dict[str, Any]]:

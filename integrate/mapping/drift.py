@@ -105,7 +105,7 @@ def _top_shares(profile: dict[str, Any]) -> dict[str, float]:
 def profile_similarity(a: dict[str, Any], b: dict[str, Any]) -> float:
     """How alike two column profiles are (0-1): kind, shapes, common values, emptiness, lengths, numbers."""
     empty_a, empty_b = a["empty"] / max(a["count"], 1), b["empty"] / max(b["count"], 1)
-    parts: list[tuple[float, float]] = [(1.0, float(a["kind"] == b["kind"])),
+    parts: list[tuple[float, float]] = [(1.0, float(a["kind"] == b["kind"] and bool(a["kind"]))),
                                         (1.0, _overlap(a.get("shapes", {}), b.get("shapes", {}))),
                                         (2.0, _overlap(_top_shares(a), _top_shares(b))),
                                         (1.0, 1 - abs(empty_a - empty_b))]
@@ -128,7 +128,7 @@ class _Context:
         self.ws, self.entry, self.raw, self.old, self.rates = ws, entry, raw, old, rates
         self.mapping = entry.mapping
         self.maps = self.mapping.column_maps()
-        self.new = snapshot_source(raw, self.mapping)
+        self.new = snapshot_source(raw, self.mapping, unmentioned=True)
         self.file = ws.display(entry.mapping_file)
         self.out = SourceDrift(self.mapping.source, entry.mapping_file, None)
 

@@ -50,7 +50,8 @@ def value_shapes(distinct: pd.Series) -> pd.Series:
             .str.replace(r"\d+", "9", regex=True).str.replace(r"([^\w])\1+", r"\1", regex=True))
 
 
-def _declared(entry: ColumnMap | None) -> dict[str, Any]:
+def declared_entry(entry: ColumnMap | None) -> dict[str, Any]:
+    """What the mapping says of a column when the profile is taken (unit, currency, format...)."""
     if entry is None:
         return {"mapped": False}
     return {"mapped": not entry.ignore, "field": entry.field, "unit": entry.unit, "currency": entry.currency,
@@ -58,23 +59,29 @@ def _declared(entry: ColumnMap | None) -> dict[str, Any]:
             "value_map": entry.values is not None}
 
 
-def snapshot_column(values: pd.Series, entry: ColumnMap | None = None) -> dict[str, Any]:
-    """The storable profile of one column of text values (see the module docstring)."""
+def snapshot_column(values: pd.Series, entry: ColumnMap | None = None, *, patterns: bool = True) -> dict[str, Any]:
+    """The storable profile of one column of text values (see the module docstring).
+
+    ``patterns=False`` leaves out kind, pattern shares, date layouts and quantiles (the costly part:
+    ``profile.py`` tries every date layout), for columns nothing reads.
+    """
     text = values.astype("string").str.strip()
     present = text[text.notna() & text.ne("")]
     counts = present.value_counts()
-    # kinds, pattern shares and date layouts from a seeded sample (profile.py tries every layout per
-    # distinct value); counts, top values, lengths, shapes and quantiles from every value
-    base = profile_column(values if len(values) <= PATTERN_SAMPLE else values.sample(PATTERN_SAMPLE, random_state=0))
     empty = len(values) - len(present)
     snap: dict[str, Any] = {
-        "kind": base.kind(), "count": len(values), "empty": empty, "distinct": len(counts),
+        "kind": "", "count": len(values), "empty": empty, "distinct": len(counts),
         "unique": empty == 0 and len(counts) == len(values) > 0,
-        "top": [[str(v), int(n)] for v, n in counts.head(TOP_VALUES).items()],
-        "shares": {k: round(v, 4) for k, v in base.shares.items()},
-        "date_formats": {k: round(v, 4) for k, v in base.date_formats.items()},
-        "declared": _declared(entry),
+        "top": [[str(v), int(n)] for v, n in counts.head(TOP_VALUES).items()], "shares": {}, "date_formats": {},
+        "declared": declared_entry(entry),
     }
+    if patterns:
+        # kinds, pattern shares and date layouts from a seeded sample (profile.py tries every layout per
+        # distinct value); counts, top values, lengths, shapes and quantiles from every value
+        sample = values if len(values) <= PATTERN_SAMPLE else values.sample(PATTERN_SAMPLE, random_state=0)
+        base = profile_column(sample)
+        snap.update(kind=base.kind(), shares={k: round(v, 4) for k, v in base.shares.items()},
+                    date_formats={k: round(v, 4) for k, v in base.date_formats.items()})
     if counts.empty:
         return snap
     distinct = pd.Series(counts.index.astype(str), dtype=object)
@@ -85,7 +92,7 @@ def snapshot_column(values: pd.Series, entry: ColumnMap | None = None) -> dict[s
     shapes = pd.Series(weights, index=value_shapes(distinct).to_numpy()).groupby(level=0).sum()
     shapes = (shapes / weights.sum()).sort_values(ascending=False, kind="mergesort").head(TOP_SHAPES)
     snap["shapes"] = {str(k): round(float(v), 4) for k, v in shapes.items()}
-    if base.share("number") >= 0.9:
+    if snap["shares"].get("number", 0.0) >= 0.9:
         amounts, _ = parse_amounts(distinct)
         ok = amounts.notna().to_numpy()
         if ok.any():
@@ -93,7 +100,18 @@ def snapshot_column(values: pd.Series, entry: ColumnMap | None = None) -> dict[s
     return snap
 
 
-def snapshot_source(raw: pd.DataFrame, mapping: SourceMapping) -> dict[str, dict[str, Any]]:
-    """Column name -> profile, for every column of a source as read (mapped or not)."""
+def snapshot_source(raw: pd.DataFrame, mapping: SourceMapping, *, unmentioned: bool = False
+                    ) -> dict[str, dict[str, Any]]:
+    """Column name -> profile, for every column of a source as read (mapped or not).
+
+    Patterns are profiled for mapped columns, and with ``unmentioned`` also for columns the
+    mapping does not mention (``check`` compares those with vanished ones); ignored columns get
+    counts only.
+    """
     maps = mapping.column_maps()
-    return {str(c): snapshot_column(raw[c], maps.get(str(c))) for c in raw.columns if c != ROW}
+
+    def wanted(entry: ColumnMap | None) -> bool:
+        return unmentioned if entry is None else not entry.ignore
+
+    return {str(c): snapshot_column(raw[c], maps.get(str(c)), patterns=wanted(maps.get(str(c))))
+            for c in raw.columns if c != ROW}

@@ -7,6 +7,7 @@ code, moves heights from inches to centimetres and prices fees in EUR.
 from __future__ import annotations
 
 import datetime as dt
+import json
 import math
 from pathlib import Path
 
@@ -283,3 +284,22 @@ def test_renamed_record_id_column_follows_in_record_id(remembered: Path) -> None
     assert [(p.kind, p.column, p.value) for p in update.applied] == [("rename", "member_id", "member_no")]
     assert "record_id: member_no\n" in update.new_text and "  member_no: ignore" in update.new_text
     assert "record_id: member_id" not in update.new_text
+
+
+def test_a_rerun_on_the_same_export_reuses_its_profile_with_todays_declarations(remembered: Path) -> None:
+    mapping = remembered / "mappings" / "members.yaml"
+    mapping.write_text(mapping.read_text().replace("    unit: in ", "    unit: cm "))
+    ws = load_workspace(remembered)
+    store = StateStore.for_workspace(remembered)
+    crosswalk = pd.DataFrame(columns=["source", "record_id", "entity_id"])
+    run_id = store.record_run(NewRun(started_at="2026-11-01T12:00:00Z", crosswalk=crosswalk))
+    record_inputs(ws, run_id, ws.mapping_hashes())
+    from integrate.history_store import source_profile_table, state_engine
+
+    with state_engine(remembered).connect() as conn:
+        stored = [r for r in conn.execute(source_profile_table.select().where(
+            source_profile_table.c.source == "members")).mappings()]
+    first, second = (json.loads(r["profile"]) for r in sorted(stored, key=lambda r: r["run_id"]))
+    assert first["height"]["declared"]["unit"] == "in" and second["height"]["declared"]["unit"] == "cm"
+    assert first["height"]["quantiles"] == second["height"]["quantiles"]
+    assert first["member_id"]["kind"] == "" and first["surname"]["kind"] == "name"  # ignored: counts only
