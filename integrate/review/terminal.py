@@ -77,9 +77,12 @@ def review_in_terminal(data: ReviewData, store: DecisionStore, reviewer: str, *,
 
     On a terminal (and with the default ``read``) the full-screen view runs instead."""
     if read is input and write is print and sys.stdin.isatty() and sys.stdout.isatty():
-        from .terminal_screen import review_full_screen
-
-        return review_full_screen(data, store, reviewer, kind=kind, source=source, field_name=field_name)
+        try:
+            from .terminal_screen import review_full_screen
+        except ImportError:  # Textual not installed (the 'review' extra): the line mode still works
+            write("(full-screen view needs the 'review' extra: pip install 'integrate[review]'; line mode)")
+        else:
+            return review_full_screen(data, store, reviewer, kind=kind, source=source, field_name=field_name)
     session = TerminalSession()
     undo_stack: list[int] = []
     again: tuple[str, str, str, str] | None = None  # a pair to show next (after an undo)
