@@ -455,6 +455,13 @@ def full_name_rarity(first: pd.Series, second: pd.Series) -> np.ndarray:
     return out
 
 
+def random_sample_grades(prepared: pd.DataFrame, canonical: CanonicalSchema,
+                         groups: np.ndarray | None = None) -> pd.DataFrame:
+    """Grades of the random record pairs that estimate u (every engine draws the same ones)."""
+    return compare(prepared, random_pairs(len(prepared), RANDOM_PAIRS, groups, hashes=record_hashes(prepared)),
+                   canonical)
+
+
 def score(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchema,
           *, groups: np.ndarray | None = None, thresholds: Thresholds | None = None,
           grades: pd.DataFrame | None = None, estimator: Callable[..., ScoreModel] | None = None
@@ -470,8 +477,7 @@ def score(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchem
         grades = compare(prepared, pairs, canonical)
     field_types = {f: canonical.fields[f].type for f in grades.columns}
     joint, types = model_grades(grades, field_types)
-    sample = random_pairs(len(prepared), RANDOM_PAIRS, groups, hashes=record_hashes(prepared))
-    random_joint, _ = model_grades(compare(prepared, sample, canonical), field_types)
+    random_joint, _ = model_grades(random_sample_grades(prepared, canonical, groups), field_types)
     u_random = {f: _level_freq(random_joint[f].to_numpy(np.int64), _levels(types[f])) for f in joint.columns}
     if len(joint):
         n_other = max(all_pairs_count(len(prepared), groups) - len(joint), 0)

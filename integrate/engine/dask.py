@@ -31,7 +31,6 @@ from ..block import SPLIT_BLOCK_SIZE, BlockingReport, block, rule_key
 from ..compare import compare
 from ..mapping.spec import BlockingRule, CanonicalSchema
 from ..score import (
-    RANDOM_PAIRS,
     ScoreModel,
     _level_freq,
     _levels,
@@ -39,7 +38,7 @@ from ..score import (
     estimate,
     model_grades,
     pattern_codes,
-    random_pairs,
+    random_sample_grades,
     weigh,
 )
 
@@ -105,11 +104,6 @@ def reduce_patterns(summaries: list[tuple[pd.DataFrame, np.ndarray]]) -> tuple[p
     return patterns.iloc[first].reset_index(drop=True), np.bincount(codes, weights=counts)
 
 
-def _random_grades(prepared: pd.DataFrame, canonical: CanonicalSchema, group_codes: np.ndarray | None
-                   ) -> pd.DataFrame:
-    return compare(prepared, random_pairs(len(prepared), RANDOM_PAIRS, group_codes), canonical)
-
-
 class DaskEngine:
     """Runs on the cluster at ``scheduler`` (an address such as ``tcp://host:8786``), or on a
     LocalCluster of two single-threaded worker processes started here."""
@@ -168,7 +162,7 @@ class DaskEngine:
         pieces = [[client.submit(operator.getitem, client.submit(operator.getitem, r, 0), k) for r in by_rule]
                   for k in range(parts)]
         pairs = [client.submit(_join_partition, n, *row) for row in pieces]
-        sample = client.submit(_random_grades, records, canonical, group_codes)
+        sample = client.submit(random_sample_grades, records, canonical, group_codes)
         reports = client.gather([client.submit(lambda r: r[1:], r) for r in by_rule])
         progress("compare")
         grades = [client.submit(compare, records, p, canonical) for p in pairs]
