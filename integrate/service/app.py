@@ -10,6 +10,7 @@ role the route names (reviewer: decisions; admin: uploads and runs). Errors are 
 from __future__ import annotations
 
 import asyncio
+import contextlib
 import hashlib
 import json
 import logging
@@ -99,7 +100,14 @@ def create_app(workspaces: list[str | Path], *, host: str = "127.0.0.1", port: i
         if failed:
             log.warning("%s: %d run job(s) of a stopped server marked failed", ctx.name, failed)
     auth = Auth(contexts, open_reads=open_reads, session=session_tokens or {})
-    app = FastAPI(title="integrate service", version="1", docs_url=None, redoc_url=None,
+
+    @contextlib.asynccontextmanager
+    async def lifespan(_app: FastAPI) -> Any:
+        yield
+        for ctx in contexts.values():  # shutting down: running jobs are cancelled before their next stage
+            await asyncio.to_thread(ctx.jobs.stop_all)
+
+    app = FastAPI(lifespan=lifespan, title="integrate service", version="1", docs_url=None, redoc_url=None,
                   dependencies=[Depends(bearer)],
                   description="Runs, results and review of integrate workspaces. Authenticate with "
                               "`Authorization: Bearer <token>` (tokens: `integrate serve token create`).")
@@ -443,11 +451,6 @@ def create_app(workspaces: list[str | Path], *, host: str = "127.0.0.1", port: i
     from .review_api import add_review_routes
 
     add_review_routes(app, contexts, auth, ctx_of, ApiError)
-
-    @app.on_event("shutdown")
-    def _stop_jobs() -> None:
-        for ctx in contexts.values():
-            ctx.jobs.stop_all()
 
     return app
 
