@@ -333,7 +333,7 @@ def create_app(workspaces: list[str | Path], *, host: str = "127.0.0.1", port: i
     @app.get(f"{PREFIX}/workspaces/{{ws}}/jobs/{{job_id}}/events", responses={
         **ERRORS, 200: {"content": {"text/event-stream": {"schema": {"type": "string"}}},
                         "description": "server-sent events: `progress` with the job (JSON) on each change, "
-                                       "then `end`"}}, response_class=StreamingResponse, tags=["runs"])
+                                       "then `end`"}}, tags=["runs"])
     async def job_events(ws: str, job_id: str, request: Request) -> StreamingResponse:
         """The job's progress as server-sent events, until it ends."""
         ctx = ctx_of(ws)
@@ -404,8 +404,7 @@ def create_app(workspaces: list[str | Path], *, host: str = "127.0.0.1", port: i
 
     @app.get(f"{PREFIX}/workspaces/{{ws}}/outputs/{{table}}", responses={
         **ERRORS, 200: {"content": {"text/csv": {}, "application/vnd.apache.parquet": {}},
-                        "description": "the table as written by the run"}}, response_class=FileResponse,
-             tags=["results"])
+                        "description": "the table as written by the run"}}, tags=["results"])
     def download(ws: str, table: str, request: Request,
                  format: Annotated[str, Query(pattern="^(csv|parquet)$")] = "csv",  # noqa: A002
                  run: Annotated[int | None, Query(ge=1, le=2**31)] = None) -> FileResponse:
@@ -437,7 +436,8 @@ def create_app(workspaces: list[str | Path], *, host: str = "127.0.0.1", port: i
                            + (f" (run {last.run_id} wrote over them)" if replaced and last else ""))
         return folder
 
-    @app.get(f"{PREFIX}/workspaces/{{ws}}/report", response_class=HTMLResponse, responses=ERRORS, tags=["results"])
+    @app.get(f"{PREFIX}/workspaces/{{ws}}/report", responses={**ERRORS, 200: {
+        "content": {"text/html": {}}, "description": "the run report"}}, tags=["results"])
     def report(ws: str, request: Request, run: Annotated[int | None, Query(ge=1, le=2**31)] = None) -> Response:
         """The run report (HTML) of the latest run or of run ``run``."""
         ctx = ctx_of(ws)

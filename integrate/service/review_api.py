@@ -17,6 +17,7 @@ from importlib import resources
 from pathlib import Path
 from typing import Annotated, Any
 
+import pandas as pd
 from fastapi import FastAPI, Query, Request
 from fastapi.responses import HTMLResponse, JSONResponse, Response
 
@@ -180,7 +181,7 @@ def add_review_routes(app: FastAPI, contexts: dict[str, Any], auth: Any, ctx_of:
 
     @app.get(f"{base}/export", responses={**ERRORS, 200: {"content": {"text/csv": {}},
                                                          "description": "every decision, as review --export"}},
-             response_class=Response, tags=["review"])
+             tags=["review"])
     def export(ws: str, request: Request) -> Response:
         """Every standing decision as CSV (the file `integrate review --export` writes)."""
         ctx = ctx_of(ws)
@@ -247,6 +248,9 @@ def add_review_routes(app: FastAPI, contexts: dict[str, Any], auth: Any, ctx_of:
             except UnicodeDecodeError as exc:
                 raise api_error(422, "not_utf8", f"the decisions file is not UTF-8 text ({exc.reason} at byte "
                                 f"{exc.start})", "save it as UTF-8 CSV") from None
+            except (pd.errors.EmptyDataError, pd.errors.ParserError) as exc:
+                raise api_error(422, "bad_csv", f"the decisions file is not a readable CSV file: {exc}",
+                                "send the file 'integrate review --export' writes") from None
         return {"added": summary.added, "unchanged": summary.unchanged,
                 "conflicts": [{"existing": _row(c["existing"]), "imported": _row(c["imported"])}
                               for c in summary.conflicts]}
