@@ -14,6 +14,7 @@ import contextlib
 import hashlib
 import json
 import logging
+import threading
 from pathlib import Path
 from typing import Annotated, Any
 
@@ -44,7 +45,7 @@ from .models import (
     WorkspaceInfo,
     WorkspaceSummary,
 )
-from .results import TABLES, plain, rows
+from .results import TABLES, plain
 from .security import BodyTooLarge, Guard, allowed_hosts
 from .uploads import check_mapping_upload, mapping_target, publish, source_target, stream_to_temp
 
@@ -100,6 +101,8 @@ def create_app(workspaces: list[str | Path], *, host: str = "127.0.0.1", port: i
         if failed:
             log.warning("%s: %d run job(s) of a stopped server marked failed", ctx.name, failed)
     auth = Auth(contexts, open_reads=open_reads, session=session_tokens or {})
+    for ctx in contexts.values():  # load the outputs before the first look-up asks for them
+        threading.Thread(target=ctx.warm, daemon=True).start()
 
     @contextlib.asynccontextmanager
     async def lifespan(_app: FastAPI) -> Any:
@@ -121,16 +124,7 @@ def create_app(workspaces: list[str | Path], *, host: str = "127.0.0.1", port: i
         app.add_middleware(CORSMiddleware, allow_origins=list(cors_origins), allow_methods=["GET", "POST", "PUT"],
                            allow_headers=["Authorization", "Content-Type"])
     app.add_middleware(Guard, hosts=allowed_hosts(host, port), origins=origins, json_limit=JSON_LIMIT,
-                       upload_limit=upload_limit)
-
-    @app.middleware("http")
-    async def _headers(request: Request, call_next: Any) -> Any:
-        response = await call_next(request)
-        response.headers.setdefault("Content-Security-Policy", CONTENT_POLICY)
-        response.headers["X-Content-Type-Options"] = "nosniff"
-        response.headers["Referrer-Policy"] = "no-referrer"
-        response.headers.setdefault("Cache-Control", "no-store")
-        return response
+                       upload_limit=upload_limit, content_policy=CONTENT_POLICY)
 
     @app.exception_handler(ApiError)
     async def _api_error(_r: Request, exc: ApiError) -> JSONResponse:
@@ -367,7 +361,7 @@ def create_app(workspaces: list[str | Path], *, host: str = "127.0.0.1", port: i
 
     @app.get(f"{PREFIX}/workspaces/{{ws}}/entities/{{entity_id}}", response_model=EntityStory, responses=ERRORS,
              tags=["results"])
-    def get_entity(ws: str, entity_id: str, request: Request) -> EntityStory:
+    async def get_entity(ws: str, entity_id: str, request: Request) -> EntityStory:
         """An entity's merged row, member records and provenance per field (as `integrate show`)."""
         ctx = ctx_of(ws)
         auth.check(request, ctx, "reader")
@@ -375,13 +369,11 @@ def create_app(workspaces: list[str | Path], *, host: str = "127.0.0.1", port: i
         if story is None:
             raise ApiError(404, "unknown_entity", f"entity '{entity_id}' is not in the last run's merged table",
                            "entity IDs are listed in crosswalk.csv and merged.csv")
-        cluster = rows(story["cluster"])
-        return EntityStory(entity_id=entity_id, merged=rows(story["merged"])[0], members=rows(story["members"]),
-                           provenance=rows(story["provenance"]), cluster=cluster[0] if cluster else None)
+        return EntityStory(entity_id=entity_id, **story)
 
     @app.get(f"{PREFIX}/workspaces/{{ws}}/records/{{source}}/{{record_id}}", response_model=CrosswalkEntry,
              responses=ERRORS, tags=["results"])
-    def entity_of_record(ws: str, source: str, record_id: str, request: Request) -> CrosswalkEntry:
+    async def entity_of_record(ws: str, source: str, record_id: str, request: Request) -> CrosswalkEntry:
         """The entity a source's record belongs to (the crosswalk)."""
         ctx = ctx_of(ws)
         auth.check(request, ctx, "reader")

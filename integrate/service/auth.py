@@ -5,11 +5,14 @@ WS``); the review page's session token (``integrate review``) lives only in the 
 Roles are ordered reader < reviewer < admin: a reader reads, a reviewer also records decisions,
 an admin also uploads files and starts runs. With ``open_reads`` a request without a token may
 read (never write). A decision's reviewer is the token's name, never a name the client sends.
+A token found in a store is remembered for ``REMEMBER`` seconds, so a revoked token stops
+working at most that long after ``token revoke``.
 """
 
 from __future__ import annotations
 
 import hmac
+import time
 from typing import Any
 
 from fastapi import Request
@@ -20,6 +23,7 @@ from .store import ROLES
 
 bearer = HTTPBearer(auto_error=False, description="a token from `integrate serve token create`")
 ANONYMOUS = Principal(name="anonymous", role="anonymous")
+REMEMBER = 2.0  # seconds
 
 
 class AuthError(Exception):
@@ -41,6 +45,7 @@ class Auth:
         self.contexts = contexts
         self.open_reads = open_reads
         self.session = session
+        self._known: dict[tuple[int, str], tuple[float, Principal]] = {}
 
     def _session(self, secret: str) -> Principal | None:
         for known, who in self.session.items():
@@ -56,10 +61,18 @@ class Auth:
         who = self._session(secret)
         if who is not None:
             return who
+        now = time.monotonic()
         for c in [ctx] if ctx is not None else list(self.contexts.values()):
+            remembered = self._known.get((id(c), secret))
+            if remembered is not None and remembered[0] > now:
+                return remembered[1]
             token = c.tokens.verify(secret)
             if token is not None:
-                return Principal(name=token.name, role=token.role)
+                who = Principal(name=token.name, role=token.role)
+                if len(self._known) > 10_000:
+                    self._known.clear()
+                self._known[(id(c), secret)] = (now + REMEMBER, who)
+                return who
         raise AuthError(401, "bad_token", "the token is unknown or revoked",
                         "make one with: integrate serve token create WORKSPACE --name NAME --role ROLE")
 

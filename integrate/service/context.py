@@ -38,6 +38,14 @@ class WorkspaceContext:
     def workspace(self) -> Workspace:
         return load_workspace(self.root)
 
+    def warm(self) -> None:
+        """Load the current outputs and review data now (a workspace without outputs yet is fine)."""
+        try:
+            self.results.get()
+            self.review_data()
+        except Exception:  # noqa: BLE001 - a request will report the problem when it asks
+            return
+
     def review_data(self) -> ReviewData:
         """The last run's pairs for reviewing, reloaded when a new output set appears."""
         _, stamp = self.results.stamp()

@@ -7,6 +7,8 @@
   own (or one the operator allowed with ``--cors-origin``) is refused with 403.
 - Size: a body over the limit is refused with 413, by its ``Content-Length`` or, streamed, as
   soon as it passes the limit.
+- Headers: every response gets a Content-Security-Policy (unless the route set its own), nosniff,
+  no referrer and no caching.
 """
 
 from __future__ import annotations
@@ -57,8 +59,10 @@ class Guard:
     """ASGI middleware applying the checks of the module docstring."""
 
     def __init__(self, app: Any, *, hosts: set[str], origins: set[str], json_limit: int, upload_limit: int,
-                 upload_prefix: str = "/api/v1/workspaces/") -> None:
+                 content_policy: str, upload_prefix: str = "/api/v1/workspaces/") -> None:
         self.app = app
+        self.extra_headers = [(b"x-content-type-options", b"nosniff"), (b"referrer-policy", b"no-referrer")]
+        self.defaults = [(b"content-security-policy", content_policy.encode()), (b"cache-control", b"no-store")]
         self.hosts = hosts
         self.origins = origins
         self.json_limit = json_limit
@@ -107,6 +111,11 @@ class Guard:
             nonlocal started
             if message["type"] == "http.response.start":
                 started = True
+                headers = list(message.get("headers", []))
+                names = {k.lower() for k, _ in headers}
+                headers += [h for h in self.defaults if h[0] not in names]
+                headers += [h for h in self.extra_headers if h[0] not in names]
+                message = {**message, "headers": headers}
             await send(message)
 
         try:
