@@ -52,6 +52,8 @@ def main() -> int:
     shutil.copytree(REPO / "mappings", ws / "mappings")
     shutil.copytree(REPO / "demo_sources", ws / "demo_sources", ignore=shutil.ignore_patterns("generate.py"))
     env = {**os.environ, "PYTHONPATH": str(REPO)}
+    say = lambda text: print(f"[{time.strftime('%H:%M:%S')}] {text}", file=sys.stderr, flush=True)  # noqa: E731
+    say("running the demo once")
     subprocess.run([sys.executable, "-m", "integrate", "run", str(ws)], check=True, env=env, capture_output=True)
     tokens = TokenStore.for_workspace(ws)
     admin = str(tokens.create("load-admin", "admin").secret)
@@ -106,6 +108,7 @@ def main() -> int:
                         elif r.status_code >= 400:
                             errors.append(f"{kind}: HTTP {r.status_code}")
 
+        say(f"server up, run job {job.get('job_id')} started; {args.clients} clients for {args.seconds:.0f} s")
         threads = [threading.Thread(target=client, args=(i,)) for i in range(args.clients)]
         t0 = time.monotonic()
         for t in threads:

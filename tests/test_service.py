@@ -217,3 +217,53 @@ def test_non_loopback_address_needs_tokens(tmp_path: Path, demo_run) -> None:  #
     bad_port = subprocess.run([sys.executable, "-m", "integrate", "serve", str(ws), "--port", "99999"],
                               capture_output=True, text=True, timeout=120)
     assert bad_port.returncode == 2 and "not a TCP port" in bad_port.stderr
+
+
+def test_a_failed_run_keeps_the_outputs_and_says_why_and_cancel_stops(served) -> None:  # noqa: ANN001
+    server, tokens = served
+    before = {p.name: p.read_bytes() for p in (server.ws / "out").iterdir() if p.is_file()}
+    events = server.ws / "demo_sources" / "rentals.jsonl"
+    good = events.read_bytes()
+    with Client(server.url, tokens["admin"]) as api:
+        bad = server.ws / "bad.jsonl"
+        bad.write_bytes(b'{"not": "closed"\n')
+        api.upload_source("ws", "rentals", bad)
+        failed = api.run("ws")
+        assert failed["state"] == "failed" and failed["error"].startswith("error: ")
+        assert "rentals.jsonl" in failed["error"]  # the message `integrate run` prints, naming the file
+        assert {p.name: p.read_bytes() for p in (server.ws / "out").iterdir() if p.is_file()} == before
+        events.write_bytes(good)
+        job = api.start_run("ws")
+        cancelled = api.cancel("ws", job["job_id"])
+        assert cancelled["cancel_requested"] or cancelled["state"] == "cancelled"
+        final = list(api.events("ws", job["job_id"]))[-1][1]
+        assert final["state"] == "cancelled", final
+        assert {p.name: p.read_bytes() for p in (server.ws / "out").iterdir() if p.is_file()} == before
+        assert [j["state"] for j in api._call("GET", "/workspaces/ws/jobs")["jobs"]][:2] == ["cancelled", "failed"]
+    docs = httpx.get(f"{server.url}/docs")
+    assert docs.status_code == 200 and "/openapi.json" in docs.text
+    assert not re.search(r"(src|href)=['\"]https?://", docs.text)  # nothing from a CDN
+    assert "script-src 'self'" in docs.headers["content-security-policy"]
+
+
+def test_token_commands(tmp_path: Path, demo_run) -> None:  # noqa: ANN001
+    ws = _copy(demo_run, tmp_path / "ws")
+    made = subprocess.run([sys.executable, "-m", "integrate", "serve", "token", "create", str(ws), "--name", "ana",
+                           "--role", "reviewer"], capture_output=True, text=True, timeout=120)
+    assert made.returncode == 0 and made.stdout.startswith("itk_")
+    secret = made.stdout.strip()
+    store = TokenStore.for_workspace(ws)
+    assert store.verify(secret).role == "reviewer"
+    assert secret not in (ws / ".integrate" / "state.sqlite").read_bytes().decode("latin-1")  # stored hashed only
+    listed = subprocess.run([sys.executable, "-m", "integrate", "serve", "token", "list", str(ws)],
+                            capture_output=True, text=True, timeout=120)
+    assert "ana" in listed.stdout and "active" in listed.stdout
+    revoked = subprocess.run([sys.executable, "-m", "integrate", "serve", "token", "revoke", str(ws), "1"],
+                             capture_output=True, text=True, timeout=120)
+    assert revoked.returncode == 0
+    listed = subprocess.run([sys.executable, "-m", "integrate", "serve", "token", "list", str(ws)],
+                            capture_output=True, text=True, timeout=120)
+    assert "revoked 20" in listed.stdout
+    again = subprocess.run([sys.executable, "-m", "integrate", "serve", "token", "revoke", str(ws), "1"],
+                           capture_output=True, text=True, timeout=120)
+    assert again.returncode == 2 and "no active token" in again.stderr
