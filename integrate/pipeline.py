@@ -14,6 +14,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING
 
+import numpy as np
 import pandas as pd
 
 from .block import BlockingReport
@@ -153,8 +154,9 @@ def pairs_frame(records: pd.DataFrame, match: MatchResult, types: dict[str, str]
     i, j = p["i"].to_numpy(), p["j"].to_numpy()
     names = match.blocking.rules
     masks = p["rules"].to_numpy()
-    rule_names = pd.Series(masks).map(
-        lambda m: ",".join(n for b, n in enumerate(names) if (int(m) >> b) & 1))
+    distinct, inverse = np.unique(masks, return_inverse=True)  # names built once per distinct mask
+    rule_names = pd.Series(np.array([",".join(n for b, n in enumerate(names) if (int(m) >> b) & 1)
+                                     for m in distinct.tolist()], dtype=object)[inverse.reshape(-1)])
     out = pd.DataFrame({
         "source_a": records[SOURCE].to_numpy()[i], "record_id_a": records[RECORD_ID].to_numpy()[i],
         "source_b": records[SOURCE].to_numpy()[j], "record_id_b": records[RECORD_ID].to_numpy()[j],
@@ -199,6 +201,8 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
             timings[str(clock[1])] = timings.get(str(clock[1]), 0.0) + now - float(clock[0])
         clock[0], clock[1] = now, stage
         progress(stage)
+
+    tick.count = getattr(progress, "count", None)  # type: ignore[attr-defined]  # counts inside a stage
 
     check_orders(ws.canonical, [e.mapping.source for e in ws.sources], ws.display(ws.canonical_file))
     inputs = input_hashes(ws) if write else {}

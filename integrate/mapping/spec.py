@@ -151,7 +151,8 @@ class CanonicalSchema(_Strict):
     blocking: list[BlockingRule] = Field(default_factory=list)
     thresholds: Thresholds = Field(default_factory=Thresholds)
     max_block_size: int = Field(
-        1000, ge=2, description="Blocks with more records than this are skipped with a warning."
+        1000, ge=2, description="A block with more records than this (or than 64, whichever is smaller) is not "
+        "compared all against all but split by a sorted neighbourhood inside it; one warning per rule."
     )
 
     model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
