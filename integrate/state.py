@@ -52,6 +52,7 @@ from sqlalchemy import (
 from sqlalchemy.engine import make_url
 from sqlalchemy.exc import ArgumentError, SQLAlchemyError
 
+from . import migrations
 from .errors import ConfigError, IntegrateError
 from .mapping.load import file_hash
 from .workspace import Workspace
@@ -136,9 +137,10 @@ _ENGINES: dict[str, Engine] = {}
 
 
 def state_engine(workspace: str | Path) -> Engine:
-    """The (shared, cached) engine of a workspace's state database.
+    """The (shared, cached) engine of a workspace's state database, its schema upgraded to the newest.
 
     Raises:
+        StateError: the database cannot be reached or upgraded.
         ConfigError: ``INTEGRATE_STATE_URL`` is not a usable SQLAlchemy URL (or its driver is missing).
     """
     url = state_url(workspace)
@@ -162,6 +164,11 @@ def state_engine(workspace: str | Path) -> Engine:
         raise ConfigError(f"{STATE_URL_ENV}={shown_url(url)!r} is not a usable SQLAlchemy URL: {exc} "
                           "(e.g. sqlite:///path/state.sqlite or postgresql+psycopg://user@host/db; "
                           "the database's driver must be installed)") from exc
+    try:
+        migrations.upgrade(engine)  # an older store is brought to the newest schema in place
+    except (SQLAlchemyError, migrations.NewerSchema) as exc:
+        engine.dispose()
+        raise StateError(f"state database {shown_url(url)} cannot be used: {exc}") from exc
     _ENGINES[url] = engine
     return engine
 
