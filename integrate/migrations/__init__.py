@@ -61,7 +61,8 @@ def upgrade(engine: Engine) -> None:
     at = current(engine)
     if at == newest:
         return
-    if at is not None and ScriptDirectory.from_config(_config())._revision_map.get_revision(at) is None:
+    known = {r.revision for r in ScriptDirectory.from_config(_config()).walk_revisions()}
+    if at is not None and at not in known:
         raise NewerSchema(f"the state database is at schema revision {at}, newer than this version of "
                           f"integrate knows (newest {newest}): upgrade integrate")
     if engine.dialect.name == "sqlite":
