@@ -11,6 +11,7 @@ import pandas as pd
 
 from ..compare import GRADE_NAMES
 from ..mapping.spec import Thresholds
+from .missing import missing_section
 from .tables import write_text_atomic
 
 if TYPE_CHECKING:
@@ -325,6 +326,7 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
     conflicts = result.provenance.groupby("field")["conflict"].sum().astype(int)
     conflict_table = conflicts.rename_axis("field").reset_index(name="entities with conflicting values")
     add("<h3>Conflicts per field</h3>" + _table(conflict_table, ("entities with conflicting values",)))
+    add(missing_section(result))  # outputs/missing.py
     add(_source_pair_section(result))
     add(_clusters_section(result))
     add(_changes_section(result))
