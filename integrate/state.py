@@ -158,8 +158,8 @@ def state_engine(workspace: str | Path) -> Engine:
                 cursor.execute("PRAGMA journal_mode=WAL")  # readers do not wait for a writing run
                 cursor.execute("PRAGMA foreign_keys=ON")
                 cursor.close()
-        else:
-            engine = create_engine(url)
+        else:  # a server: a pooled connection it closed meanwhile (restart, idle timeout) is replaced, not used
+            engine = create_engine(url, pool_pre_ping=True)
     except ArgumentError as exc:  # also a missing driver (NoSuchModuleError)
         raise ConfigError(f"{STATE_URL_ENV}={shown_url(url)!r} is not a usable SQLAlchemy URL: {exc} "
                           "(e.g. sqlite:///path/state.sqlite or postgresql+psycopg://user@host/db; "
