@@ -70,12 +70,15 @@ def postgres_server() -> Iterator[str]:
     if bindir is None:
         _no_postgres("initdb was not found (Debian package 'postgresql')")
     as_user: list[str] = []
-    base = Path(tempfile.mkdtemp(prefix="integrate-pg-"))
     if os.geteuid() == 0:  # the server refuses to run as root: run it as the package's own user
         if subprocess.run(["id", "-u", "postgres"], capture_output=True).returncode != 0:
             _no_postgres("running as root and there is no 'postgres' user to run the server")
+        # in /tmp itself: a TMPDIR inside a root-only folder would be out of the server's reach
+        base = Path(tempfile.mkdtemp(prefix="integrate-pg-", dir="/tmp"))
         shutil.chown(base, "postgres", "postgres")
         as_user = ["runuser", "-u", "postgres", "--"]
+    else:
+        base = Path(tempfile.mkdtemp(prefix="integrate-pg-"))
     with socket.socket() as s:
         s.bind(("127.0.0.1", 0))
         port = int(s.getsockname()[1])
