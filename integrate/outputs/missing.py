@@ -8,7 +8,9 @@ For every canonical field, over all entities of the run:
 - ``missing_merged``: the share of entities whose merged value is empty after merging every source;
 - ``gaps_filled``: entities the best source leaves empty that the merged table fills;
 - ``filled_from_<source>``: how many of those gaps each other source's values filled (the source
-  the merged value came from; a value summed over several sources counts for each of them).
+  the merged value came from; a value summed over several sources counts for each of them);
+- ``filled_by_rule``: gaps filled with no source holding a value (a sum of nothing written as
+  zero, ``empty_sum: zero``): a value the rule supplied, not the data.
 
 Empty means missing (NA) or blank text. Computed with grouped boolean reductions, no row loops.
 
@@ -37,7 +39,8 @@ import pandas as pd
 if TYPE_CHECKING:
     from ..pipeline import RunResult
 
-BASE_COLUMNS = ["field", "entities", "best_source", "missing_best_source", "missing_merged", "gaps_filled"]
+BASE_COLUMNS = ["field", "entities", "best_source", "missing_best_source", "missing_merged", "gaps_filled",
+                "filled_by_rule"]
 
 
 def present(frame: pd.DataFrame) -> pd.DataFrame:
@@ -76,28 +79,31 @@ def missing_values(records: pd.DataFrame, crosswalk: pd.DataFrame, merged: pd.Da
                     if best else pd.Series(False, index=entities))
         gaps = merged_has[field] & ~best_has.to_numpy()
         gap_ids = entities[gaps.to_numpy()]
-        filled = _contributors(winners[winners["field"] == field], held[field], gap_ids)
+        filled, by_rule = _contributors(winners[winners["field"] == field], held[field], gap_ids)
         row = {"field": field, "entities": n, "best_source": best,
                "missing_best_source": round(1 - int(counts.max() if len(counts) else 0) / n, 6) if n else 0.0,
                "missing_merged": round(1 - int(merged_has[field].sum()) / n, 6) if n else 0.0,
-               "gaps_filled": len(gap_ids)}
+               "gaps_filled": len(gap_ids), "filled_by_rule": by_rule}
         row.update({f"filled_from_{s}": int(filled.get(s, 0)) for s in sources})
         rows.append(row)
     return pd.DataFrame(rows, columns=BASE_COLUMNS + [f"filled_from_{s}" for s in sources])
 
 
-def _contributors(winners: pd.DataFrame, held: pd.Series, gap_ids: pd.Index) -> pd.Series:
+def _contributors(winners: pd.DataFrame, held: pd.Series, gap_ids: pd.Index) -> tuple[pd.Series, int]:
     """Per source, how many gap entities its values filled: the merged value's source, or, where the
-    value has no single source (a sum), every source holding a value for the entity."""
+    value has no single source (a sum), every source holding a value for the entity; and how many
+    gaps no source held a value for (filled by the rule)."""
     chosen = winners[winners["entity_id"].isin(gap_ids)]
     single = chosen.loc[chosen["source"] != "", "source"].value_counts()
     several = pd.Index(chosen.loc[chosen["source"] == "", "entity_id"]).union(
         gap_ids.difference(pd.Index(chosen["entity_id"])))
+    by_rule = 0
     if len(several):
         holding = held[held]
         holding = holding[holding.index.get_level_values("_entity").isin(several)]
         single = single.add(pd.Series(holding.index.get_level_values("_source")).value_counts(), fill_value=0)
-    return single
+        by_rule = len(several.difference(pd.Index(holding.index.get_level_values("_entity"))))
+    return single, by_rule
 
 
 def run_missing_values(result: RunResult, fields: Sequence[str]) -> pd.DataFrame:
@@ -119,6 +125,8 @@ def missing_section(result: RunResult) -> str:
     body = []
     for row in table.to_dict("records"):
         by = ", ".join(f"{html.escape(s)} {row['filled_from_' + s]}" for s in sources if row["filled_from_" + s])
+        if row["filled_by_rule"]:
+            by = (by + ", " if by else "") + f"the rule (no source had a value) {row['filled_by_rule']}"
         body.append(f"<tr><td>{html.escape(str(row['field']))}</td><td>{html.escape(str(row['best_source']))}</td>"
                     f"<td class='n'>{row['missing_best_source']:.1%}</td><td class='n'>{row['missing_merged']:.1%}"
                     f"</td><td class='n'>{row['gaps_filled']}</td><td>{by or '—'}</td></tr>")
