@@ -13,8 +13,10 @@ from ..columns import RECORD_DATE, RECORD_ID, ROW, SOURCE, TRUST
 from ..errors import ConversionError, InputError, InputErrors, MappingError
 from .dates import parse_dates
 from .money import RatesTable, convert_money, is_currency, parse_amounts
+from .numbers import to_plain_numbers
 from .spec import CanonicalSchema, ColumnMap, SourceMapping
 from .units import check_compatible, convert_quantity, resolve_unit
+from .unreadable import unreadable_problems
 
 FAILURE_COLUMNS = ["source", "file", "row", "column", "value", "reason", "message"]
 
@@ -242,6 +244,13 @@ def apply_mapping(
         if on_error == "raise":
             raise _fatal_errors(fatal)
         problems.extend(_fatal_errors(fatal).errors)
+    limit = mapping.max_unreadable if mapping.max_unreadable is not None else canonical.max_unreadable
+    too_many = unreadable_problems(raw, failures[~failures["reason"].isin(FATAL_REASONS)], mapping, data_file,
+                                   limit)
+    if too_many:
+        if on_error == "raise":
+            raise too_many[0] if len(too_many) == 1 else InputErrors(too_many)
+        problems.extend(too_many)
     return MappedSource(mapping.source, out, failures, unmapped, problems)
 
 
@@ -321,6 +330,8 @@ def _convert(values: pd.Series, entry: ColumnMap, column: str, target: str, raw:
     line, col = positions.at("columns", column)
     if spec.type == "date":
         return _parse_date_column(raw.assign(**{column: values}), column, mapping, mapping_file, collect, positions)
+    if spec.type in ("quantity", "money"):
+        values = _in_plain_numbers(values, entry.number_format or mapping.number_format, collect, column)
     if spec.type == "quantity":
         assert spec.unit is not None
         if entry.unit:
@@ -338,14 +349,17 @@ def _convert(values: pd.Series, entry: ColumnMap, column: str, target: str, raw:
     if spec.type == "money":
         amounts, failures = parse_amounts(values)
         collect.add(failures, column)
-        if entry.currency:
-            if not is_currency(entry.currency):
-                raise _mapping_error(mapping_file, column, f"'{entry.currency}' is not an ISO 4217 currency code",
-                                     "unknown_currency", "use a three-letter code such as EUR, GBP, USD", line, col)
-            currencies: str | pd.Series = entry.currency.strip().upper()
-        else:
-            assert entry.currency_column is not None
+        if entry.currency and not is_currency(entry.currency):
+            raise _mapping_error(mapping_file, column, f"'{entry.currency}' is not an ISO 4217 currency code",
+                                 "unknown_currency", "use a three-letter code such as EUR, GBP, USD", line, col)
+        currencies: str | pd.Series
+        if entry.currency_column:
             currencies = raw[entry.currency_column].astype("string").str.strip().str.upper()
+            if entry.currency:  # the fallback for blank currency cells
+                currencies = currencies.replace("", pd.NA).fillna(entry.currency.strip().upper())
+        else:
+            assert entry.currency is not None
+            currencies = entry.currency.strip().upper()
         if entry.priced_on:
             dates = _parse_date_column(raw, entry.priced_on, mapping, mapping_file, collect, positions)
             dates = dates.fillna(mapping.as_of.isoformat())
@@ -361,6 +375,20 @@ def _convert(values: pd.Series, entry: ColumnMap, column: str, target: str, raw:
         collect.add(failures, column)
         return converted
     return values.str.strip().replace("", pd.NA).astype("string")
+
+
+def _in_plain_numbers(values: pd.Series, fmt: str | None, collect: _Collector, column: str) -> pd.Series:
+    """Number texts in a local format rewritten to plain 1234.56; values not in the format become failures."""
+    if fmt is None:
+        return values
+    plain = to_plain_numbers(values, fmt)
+    bad = plain.str.startswith("<unreadable: ").fillna(False).astype(bool)
+    if bad.any():
+        shown = values[bad].astype(str)
+        collect.add(pd.DataFrame({"index": shown.index, "value": shown.to_numpy(), "reason": "bad_number",
+                                  "message": ("'" + shown + f"' is not a number written as {fmt}").to_numpy()}),
+                    column)
+    return plain.mask(bad, pd.NA)
 
 
 def _fatal_errors(fatal: pd.DataFrame) -> InputErrors:

@@ -143,6 +143,9 @@ class CanonicalSchema(_Strict):
     fields: dict[str, CanonicalField]
     blocking: list[BlockingRule] = Field(default_factory=list)
     thresholds: Thresholds = Field(default_factory=Thresholds)
+    max_unreadable: float = Field(
+        0.05, ge=0, le=1, description="Share of a mapped column's non-empty values that may be unreadable: "
+        "above it a run stops (and check reports an error) naming the column; below it they go to failures.csv.")
     max_block_size: int = Field(
         1000, ge=2, description="Blocks with more records than this are skipped with a warning."
     )
@@ -161,6 +164,12 @@ class CanonicalSchema(_Strict):
                 raise ValueError(f"field '{name}': same_transaction key '{unknown[0]}' is not 'source', "
                                  "'record_date' or a canonical field")
         return value
+
+
+def _check_number_format(name: str) -> None:
+    from .numbers import number_format
+
+    number_format(name)  # raises ValueError naming the formats it knows
 
 
 class ReadSpec(_Strict):
@@ -207,8 +216,13 @@ class ColumnMap(_Strict):
     )
     unit: str | None = Field(None, description="Unit of the values (quantity fields).")
     unit_column: str | None = Field(None, description="Column holding each row's unit.")
-    currency: str | None = Field(None, description="ISO 4217 code of the values (money fields).")
+    currency: str | None = Field(
+        None, description="ISO 4217 code of the values (money fields); beside 'currency_column', the code "
+        "for rows whose currency cell is blank.")
     currency_column: str | None = Field(None, description="Column holding each row's currency code.")
+    number_format: str | None = Field(
+        None, description="How numbers are written in this column: how 1234.56 looks ('1,234.56', "
+        "'1.234,56', '1 234,56', '1\'234.56', '1234,56') or a locale such as de_DE (default: the source's).")
     priced_on: str | None = Field(
         None, description="Column with the date that prices each row (default: the source's as-of date)."
     )
@@ -222,8 +236,8 @@ class ColumnMap(_Strict):
             raise ValueError("give exactly one of 'field', 'split' or 'ignore: true'")
         if self.unit and self.unit_column:
             raise ValueError("give 'unit' or 'unit_column', not both")
-        if self.currency and self.currency_column:
-            raise ValueError("give 'currency' or 'currency_column', not both")
+        if self.number_format is not None:
+            _check_number_format(self.number_format)
         if self.split is not None:
             try:
                 pattern = re.compile(self.split)
@@ -260,11 +274,23 @@ class SourceMapping(_Strict):
         None, description="Column dating each record (for 'most_recent'); default: the as-of date."
     )
     region: str | None = Field(None, description="Default phone region (ISO 3166 alpha-2).")
+    number_format: str | None = Field(
+        None, description="How numbers are written in this source (see the column option of the same name).")
+    max_unreadable: float | None = Field(
+        None, ge=0, le=1, description="Share of a mapped column's values that may be unreadable before a run "
+        "stops (default: the canonical schema's).")
     one_per_person: bool = Field(False, description="The source holds at most one record per person.")
     note: str | None = None
     columns: dict[str, ColumnEntry]
 
     model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
+
+    @field_validator("number_format")
+    @classmethod
+    def _known_format(cls, value: str | None) -> str | None:
+        if value is not None:
+            _check_number_format(value)
+        return value
 
     def column_maps(self) -> dict[str, ColumnMap]:
         """Every column entry as a ColumnMap (strings expanded)."""
