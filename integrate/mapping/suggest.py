@@ -176,7 +176,10 @@ def _options(s: ColumnSuggestion, spec: CanonicalField, canonical: CanonicalSche
         if tied:
             s.todos.append(f"the values read as {fmt} and as {', '.join(tied)} alike (no day above 12): "
                            "confirm which the export uses")
-    elif spec.type == "quantity":
+    if spec.type in ("quantity", "money") and p.number_format:
+        s.options["number_format"] = p.number_format
+        s.reasons.append(f"numbers written {p.number_format}")
+    if spec.type == "quantity":
         said = header_unit(p.name)
         guessed = _unit_from_values(p, spec)
         if said:

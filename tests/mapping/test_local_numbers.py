@@ -140,3 +140,18 @@ def test_default_currency_beside_a_currency_column() -> None:
     without = _mapping({"fee": {"field": "fee", "currency_column": "cur"}, "cur": "ignore"})
     with pytest.raises((InputError, InputErrors)):  # blank currency cells without a fallback stay unreadable
         apply_mapping(raw, without, CANONICAL, RatesTable(quotes), data_file="club.csv", mapping_file="club.yaml")
+
+
+def test_profile_and_suggest_propose_the_number_format(tmp_path) -> None:  # noqa: ANN001
+    from integrate.mapping.profile import profile_column
+    from integrate.mapping.suggest import match_columns
+
+    profile = profile_column(pd.Series(["27,23", "2.109,19", "12,00", "1.005,50", "8,10"], name="Beitrag EUR"))
+    assert profile.number_format == "1.234,56" and profile.kind() == "number"
+    assert profile.numbers == (8.1, 27.23, 2109.19)
+    spaced = profile_column(pd.Series(["1 234,50", "12,50", "980,00"], name="montant"))
+    assert spaced.number_format == "1 234,56" and spaced.kind() == "number"
+    drafted = match_columns([profile_column(pd.Series([f"r{i}" for i in range(5)], name="id")), profile],
+                            CANONICAL)
+    fee = next(s for s in drafted if s.column == "Beitrag EUR")
+    assert fee.field == "fee" and fee.options["number_format"] == "1.234,56"
