@@ -11,6 +11,8 @@ import pandas as pd
 
 from ..columns import RECORD_DATE, RECORD_ID, ROW, SOURCE, TRUST
 from ..errors import ConversionError, InputError, InputErrors, MappingError
+from ..phone_numbers import is_country, to_e164
+from ..text_normalise import map_distinct
 from .dates import parse_dates
 from .money import RatesTable, convert_money, is_currency, parse_amounts
 from .numbers import to_plain_numbers
@@ -374,6 +376,14 @@ def _convert(values: pd.Series, entry: ColumnMap, column: str, target: str, raw:
                                             max_age_days=canonical.rate_max_age_days)
         collect.add(failures, column)
         return converted
+    if spec.type == "phone" and entry.country:
+        plans = canonical.calling_code_plans()
+        if not is_country(entry.country, plans):
+            raise _mapping_error(mapping_file, column, f"phone country '{entry.country}' is not known",
+                                 "unknown_country", "use an ISO 3166 code ('DE'), a calling code ('+49'), or "
+                                 "declare the calling code under 'calling_codes:' in canonical.yaml", line, col)
+        text = values.str.strip().replace("", pd.NA)
+        return map_distinct(text, lambda v: to_e164(v, entry.country, plans)).astype("string")
     return values.str.strip().replace("", pd.NA).astype("string")
 
 

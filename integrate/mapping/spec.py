@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import datetime as dt
 import re
-from typing import Annotated, Literal, Union
+from typing import TYPE_CHECKING, Annotated, Literal, Union
 
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
@@ -38,6 +38,9 @@ ResolutionRule = Literal[
     "first_non_empty",  # the value of the first source in the field's 'order' that has one
 ]
 
+if TYPE_CHECKING:
+    from ..phone_numbers import CallingCode
+
 _NAME = r"^[a-z][a-z0-9_]*$"
 
 
@@ -58,7 +61,8 @@ class CanonicalField(_Strict):
         None, description="Use this field when matching records (default: yes for identifying types)."
     )
     resolve: ResolutionRule = Field("most_common", description="How the merged value is chosen.")
-    region: str | None = Field(None, description="Default phone region (ISO 3166 alpha-2) for phone fields.")
+    region: str | None = Field(None, description="Default phone country for phone fields: ISO 3166 alpha-2 "
+                               "('GB') or a calling code ('+44', or one declared under calling_codes).")
     order: list[str] | None = Field(
         None, min_length=1, description="For 'first_non_empty': source names, most preferred first "
         "(sources not listed come after them, by trust rank)."
@@ -68,6 +72,8 @@ class CanonicalField(_Strict):
         "transaction exported twice and count once. Keys: 'source', 'record_date' or canonical field names "
         "(this field's own name for the amount). Default: every record counts once."
     )
+
+    _region = field_validator("region")(classmethod(lambda cls, v: _check_country(v)))
 
     @model_validator(mode="after")
     def _rule_options(self) -> CanonicalField:
@@ -114,6 +120,24 @@ class BlockingRule(_Strict):
     )
 
 
+class CallingCodeSpec(_Strict):
+    """A telephone calling code the phone library does not know, declared with its national rules."""
+
+    national_prefix: str = Field("0", pattern=r"^\d{0,3}$", description="Digits dialled before national "
+                                 "numbers inside the country ('0'); '' for none.")
+    national_digits: list[int] | None = Field(
+        None, description="Lengths of national numbers without the prefix, e.g. [8, 9]; needed to read "
+        "'0CC...' (the national prefix before the calling code) as international.")
+
+
+def _check_country(value: str | None) -> str | None:
+    if value is None:
+        return value
+    if not re.fullmatch(r"[A-Za-z]{2}|\+?\d{1,3}", value.strip()):
+        raise ValueError(f"phone country '{value}' is not an ISO 3166 alpha-2 code ('GB') or a calling code ('+44')")
+    return value.strip()
+
+
 class Thresholds(_Strict):
     """Match-probability cut-offs for Fellegi–Sunter's three outcomes."""
 
@@ -143,6 +167,9 @@ class CanonicalSchema(_Strict):
     fields: dict[str, CanonicalField]
     blocking: list[BlockingRule] = Field(default_factory=list)
     thresholds: Thresholds = Field(default_factory=Thresholds)
+    calling_codes: dict[str, CallingCodeSpec] = Field(
+        default_factory=dict, description="Telephone calling codes the phone library does not know, by code "
+        "('999': {national_prefix: '0', national_digits: [9]}); phone countries may then name them ('+999').")
     max_unreadable: float = Field(
         0.05, ge=0, le=1, description="Share of a mapped column's non-empty values that may be unreadable: "
         "above it a run stops (and check reports an error) naming the column; below it they go to failures.csv.")
@@ -151,6 +178,21 @@ class CanonicalSchema(_Strict):
     )
 
     model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
+
+    @field_validator("calling_codes")
+    @classmethod
+    def _codes(cls, value: dict[str, CallingCodeSpec]) -> dict[str, CallingCodeSpec]:
+        for code in value:
+            if not re.fullmatch(r"\d{1,3}", code.lstrip("+")):
+                raise ValueError(f"calling code '{code}' must be 1 to 3 digits")
+        return {code.lstrip("+"): spec for code, spec in value.items()}
+
+    def calling_code_plans(self) -> dict[str, CallingCode]:
+        """The declared calling codes, ready for ``integrate.phone_numbers``."""
+        from ..phone_numbers import CallingCode
+
+        return {code: CallingCode(code, spec.national_prefix, tuple(spec.national_digits or ()))
+                for code, spec in self.calling_codes.items()}
 
     @field_validator("fields")
     @classmethod
@@ -227,6 +269,10 @@ class ColumnMap(_Strict):
         None, description="Column with the date that prices each row (default: the source's as-of date)."
     )
     values: dict[str, str | None] | None = Field(None, description="Map of codes to canonical values.")
+    country: str | None = Field(
+        None, description="Phone fields: the country of numbers written without an international prefix, "
+        "ISO 3166 alpha-2 ('DE') or a calling code ('+49', or one declared under calling_codes); the column's "
+        "numbers are stored in E.164.")
     note: str | None = Field(None, description="What this column means in this source.")
 
     @model_validator(mode="after")
@@ -238,6 +284,7 @@ class ColumnMap(_Strict):
             raise ValueError("give 'unit' or 'unit_column', not both")
         if self.number_format is not None:
             _check_number_format(self.number_format)
+        _check_country(self.country)
         if self.split is not None:
             try:
                 pattern = re.compile(self.split)
@@ -273,7 +320,8 @@ class SourceMapping(_Strict):
     record_date: str | None = Field(
         None, description="Column dating each record (for 'most_recent'); default: the as-of date."
     )
-    region: str | None = Field(None, description="Default phone region (ISO 3166 alpha-2).")
+    region: str | None = Field(None, description="Default phone country of the source: ISO 3166 alpha-2 "
+                               "('GB') or a calling code ('+44', or one declared under calling_codes).")
     number_format: str | None = Field(
         None, description="How numbers are written in this source (see the column option of the same name).")
     max_unreadable: float | None = Field(
@@ -284,6 +332,8 @@ class SourceMapping(_Strict):
     columns: dict[str, ColumnEntry]
 
     model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
+
+    _region = field_validator("region")(classmethod(lambda cls, v: _check_country(v)))
 
     @field_validator("number_format")
     @classmethod
