@@ -3,7 +3,8 @@
 E.164 (ITU-T) numbers are '+', the country calling code and the national significant number, at
 most 15 digits; the national prefix ('0' in most of Europe) and the '00' international prefix are
 the dialling conventions of the plans used below (common practice). '+999' is not an assigned
-calling code (ITU-T lists 999 as spare, recalled from memory), so phonenumbers does not know it: the workspace declares it.
+calling code (ITU-T lists 999 as spare, recalled from memory), so phonenumbers does not know it:
+the workspace declares it.
 """
 
 from __future__ import annotations

@@ -15,6 +15,7 @@ from ..phone_numbers import is_country, to_e164
 from ..text_normalise import map_distinct
 from .dates import parse_dates
 from .money import RatesTable, convert_money, is_currency, parse_amounts
+from .names import split_names
 from .numbers import to_plain_numbers
 from .spec import CanonicalSchema, ColumnMap, SourceMapping
 from .units import check_compatible, convert_quantity, resolve_unit
@@ -228,6 +229,17 @@ def apply_mapping(
         if entry.values is not None:
             values = attempt(_drop_unmapped(values, entry), _apply_value_map, values, entry, column, data_file,
                              rows)
+        if entry.name_format:
+            given, family, failed = split_names(values)
+            _fill(out, entry.name_fields[0], given)
+            _fill(out, entry.name_fields[1], family)
+            if failed.any():
+                shown = values[failed].astype(str)
+                collect.add(pd.DataFrame({
+                    "index": shown.index, "value": shown.to_numpy(), "reason": "name_not_split",
+                    "message": ("'" + shown + "' is not a name in a layout name_format 'auto' reads").to_numpy()}),
+                    column)
+            continue
         if entry.split:
             parts = values.str.strip().str.extract(entry.split)
             for target in entry.targets():

@@ -140,6 +140,10 @@ def render_mapping(source: str, spec: ReadSpec, as_of: dt.date, columns: list[Co
         out += _comment("".join(f"TODO: {t}\n" for t in s.todos), "  ")
         if s.role == "split":
             out += [f"  {_key(s.column)}:", f"    split: {json.dumps(s.options['split'])}"]
+        elif s.role == "names":
+            out += [f"  {_key(s.column)}:", "    name_format: auto"]
+            if "name_fields" in s.options:
+                out.append(f"    name_fields: [{', '.join(map(str, s.options['name_fields']))}]")
         elif s.options:
             out += [f"  {_key(s.column)}:", f"    field: {s.field}"]
             out += [f"    {k}: {_value(v)}" for k, v in s.options.items()]

@@ -248,6 +248,11 @@ class ColumnMap(_Strict):
         description="Regular expression with named groups, one per canonical field it fills "
         "(e.g. '^(?P<family_name>[^,]+),\\s*(?P<given_name>.*)$').",
     )
+    name_format: Literal["auto"] | None = Field(
+        None, description="'auto': whole names in mixed layouts ('Family, Given', 'Given M. Family', single "
+        "words, particles, hyphenated names) split into the two 'name_fields'.")
+    name_fields: tuple[str, str] = Field(
+        ("given_name", "family_name"), description="With name_format: the given-name and family-name fields.")
     ignore: bool = Field(False, description="Explicitly not used.")
     format: str | None = Field(
         None, description="Date format (strftime codes, 'excel' for serial days, 'iso' for ISO 8601)."
@@ -277,9 +282,9 @@ class ColumnMap(_Strict):
 
     @model_validator(mode="after")
     def _one_target(self) -> ColumnMap:
-        targets = sum([self.field is not None, self.split is not None, self.ignore])
+        targets = sum([self.field is not None, self.split is not None, self.name_format is not None, self.ignore])
         if targets != 1:
-            raise ValueError("give exactly one of 'field', 'split' or 'ignore: true'")
+            raise ValueError("give exactly one of 'field', 'split', 'name_format' or 'ignore: true'")
         if self.unit and self.unit_column:
             raise ValueError("give 'unit' or 'unit_column', not both")
         if self.number_format is not None:
@@ -299,6 +304,8 @@ class ColumnMap(_Strict):
             return [self.field]
         if self.split:
             return list(re.compile(self.split).groupindex)
+        if self.name_format:
+            return list(self.name_fields)
         return []
 
 

@@ -259,15 +259,13 @@ def _name_split(suggestions: dict[str, ColumnSuggestion], canonical: CanonicalSc
         return
     for s in suggestions.values():
         if s.role == "ignore" and normalise_header(s.column) in NAME_PHRASES and s.profile.share("name") >= 0.5:
-            comma = s.profile.examples and all("," in e for e in s.profile.examples)
-            s.role, s.confidence = "split", 0.6
-            if comma:
-                s.options["split"] = rf"^(?P<{family}>[^,]*),\s*(?P<{given}>.*)$"
-                s.reasons = ["whole names written 'Family, Given'"]
-            else:
-                s.options["split"] = rf"^(?P<{given}>.*?)\s+(?P<{family}>\S+)$"
-                s.reasons = ["whole names; the last word taken as the family name"]
-                s.todos.append("check names with particles ('van der ...') and several family names")
+            s.role, s.confidence = "names", 0.6
+            s.options["name_format"] = "auto"
+            if (given, family) != ("given_name", "family_name"):
+                s.options["name_fields"] = [given, family]
+            s.reasons = ["whole names: name_format 'auto' reads 'Family, Given', 'Given M. Family', particles "
+                         "and single words"]
+            s.todos.append("check `integrate check` for names it could not split")
             return
 
 
