@@ -13,6 +13,7 @@ from ..columns import RECORD_DATE, RECORD_ID, ROW, SOURCE, TRUST
 from ..errors import ConversionError, InputError, InputErrors, MappingError
 from ..phone_numbers import is_country, to_e164
 from ..text_normalise import map_distinct
+from .addresses import split_addresses
 from .dates import parse_dates
 from .money import RatesTable, convert_money, is_currency, parse_amounts
 from .names import split_names
@@ -229,16 +230,19 @@ def apply_mapping(
         if entry.values is not None:
             values = attempt(_drop_unmapped(values, entry), _apply_value_map, values, entry, column, data_file,
                              rows)
+        if entry.address_format and entry.address_fields:
+            parts, failed = split_addresses(values, entry.address_format)
+            for part, target in entry.address_fields.items():
+                _fill(out, target, parts[part])
+            _cell_failures(collect, values, failed, column, "address_not_split",
+                           f"is not an address in the layout '{entry.address_format}'")
+            continue
         if entry.name_format:
             given, family, failed = split_names(values)
             _fill(out, entry.name_fields[0], given)
             _fill(out, entry.name_fields[1], family)
-            if failed.any():
-                shown = values[failed].astype(str)
-                collect.add(pd.DataFrame({
-                    "index": shown.index, "value": shown.to_numpy(), "reason": "name_not_split",
-                    "message": ("'" + shown + "' is not a name in a layout name_format 'auto' reads").to_numpy()}),
-                    column)
+            _cell_failures(collect, values, failed, column, "name_not_split",
+                           "is not a name in a layout name_format 'auto' reads")
             continue
         if entry.split:
             parts = values.str.strip().str.extract(entry.split)
@@ -397,6 +401,14 @@ def _convert(values: pd.Series, entry: ColumnMap, column: str, target: str, raw:
         text = values.str.strip().replace("", pd.NA)
         return map_distinct(text, lambda v: to_e164(v, entry.country, plans)).astype("string")
     return values.str.strip().replace("", pd.NA).astype("string")
+
+
+def _cell_failures(collect: _Collector, values: pd.Series, failed: pd.Series, column: str, reason: str,
+                   message: str) -> None:
+    if failed.any():
+        shown = values[failed].astype(str)
+        collect.add(pd.DataFrame({"index": shown.index, "value": shown.to_numpy(), "reason": reason,
+                                  "message": ("'" + shown + "' " + message).to_numpy()}), column)
 
 
 def _in_plain_numbers(values: pd.Series, fmt: str | None, collect: _Collector, column: str) -> pd.Series:

@@ -253,6 +253,12 @@ class ColumnMap(_Strict):
         "words, particles, hyphenated names) split into the two 'name_fields'.")
     name_fields: tuple[str, str] = Field(
         ("given_name", "family_name"), description="With name_format: the given-name and family-name fields.")
+    address_format: str | None = Field(
+        None, description="A whole address in one cell: a layout in words such as 'street, town, postcode' "
+        "or 'street, postcode town', or 'auto' (the postcode recognised by its shape, the rest cut at commas).")
+    address_fields: dict[Literal["street", "town", "postcode"], str] | None = Field(
+        None, description="With address_format: the canonical field each part fills, e.g. "
+        "{street: street, postcode: postcode}; parts not listed are dropped.")
     ignore: bool = Field(False, description="Explicitly not used.")
     format: str | None = Field(
         None, description="Date format (strftime codes, 'excel' for serial days, 'iso' for ISO 8601)."
@@ -282,9 +288,16 @@ class ColumnMap(_Strict):
 
     @model_validator(mode="after")
     def _one_target(self) -> ColumnMap:
-        targets = sum([self.field is not None, self.split is not None, self.name_format is not None, self.ignore])
+        targets = sum([self.field is not None, self.split is not None, self.name_format is not None,
+                       self.address_format is not None, self.ignore])
         if targets != 1:
-            raise ValueError("give exactly one of 'field', 'split', 'name_format' or 'ignore: true'")
+            raise ValueError("give exactly one of 'field', 'split', 'name_format', 'address_format' or 'ignore: true'")
+        if (self.address_format is None) != (self.address_fields is None):
+            raise ValueError("'address_format' and 'address_fields' go together")
+        if self.address_format and self.address_format != "auto":
+            from .addresses import layout_pattern
+
+            layout_pattern(self.address_format)  # raises ValueError for an unknown word
         if self.unit and self.unit_column:
             raise ValueError("give 'unit' or 'unit_column', not both")
         if self.number_format is not None:
@@ -306,6 +319,8 @@ class ColumnMap(_Strict):
             return list(re.compile(self.split).groupindex)
         if self.name_format:
             return list(self.name_fields)
+        if self.address_fields:
+            return list(self.address_fields.values())
         return []
 
 
