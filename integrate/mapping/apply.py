@@ -18,6 +18,7 @@ from .dates import parse_dates
 from .money import RatesTable, convert_money, is_currency, parse_amounts
 from .names import split_names
 from .numbers import to_plain_numbers
+from .slips import UNIT_FIXES, describe, fix_slips
 from .spec import CanonicalSchema, ColumnMap, SourceMapping
 from .units import check_compatible, convert_quantity, resolve_unit
 from .unreadable import unreadable_problems
@@ -253,6 +254,14 @@ def apply_mapping(
         target = entry.field
         converted = attempt(None, _convert, values, entry, column, target, raw, mapping, canonical, rates,
                             collect, mapping_file, positions)
+        if converted is not None and entry.fix_unit_slips:
+            if canonical.fields[target].range is None or canonical.fields[target].type != "quantity":
+                line, col = positions.at("columns", column)
+                attempt(None, _raise, _mapping_error(
+                    mapping_file, column, f"'fix_unit_slips' needs a quantity field with a 'range' ('{target}' has "
+                    "none)", "needs_range", "add 'range: [low, high]' to the field in canonical.yaml", line, col))
+            else:
+                converted = _fix_unit_slips(out, converted, entry, target, canonical)
         if converted is not None:
             _fill(out, target, converted)
 
@@ -401,6 +410,24 @@ def _convert(values: pd.Series, entry: ColumnMap, column: str, target: str, raw:
         text = values.str.strip().replace("", pd.NA)
         return map_distinct(text, lambda v: to_e164(v, entry.country, plans)).astype("string")
     return values.str.strip().replace("", pd.NA).astype("string")
+
+
+def _raise(error: InputError) -> None:
+    raise error
+
+
+def _fix_unit_slips(out: pd.DataFrame, converted: pd.Series, entry: ColumnMap, target: str,
+                    canonical: CanonicalSchema) -> pd.Series:
+    """Rows written in another unit reconverted; each named in the records' UNIT_FIXES column."""
+    spec = canonical.fields[target]
+    assert entry.unit and spec.unit and spec.range
+    declared = resolve_unit(entry.unit)
+    fixed, units = fix_slips(converted.reset_index(drop=True), declared, resolve_unit(spec.unit), spec.range)
+    if units.notna().any():
+        notes = describe(target, declared, units)
+        previous = out[UNIT_FIXES] if UNIT_FIXES in out else pd.Series(pd.NA, index=out.index, dtype="string")
+        out[UNIT_FIXES] = previous.where(notes.isna(), previous.fillna("").str.cat(notes, sep="; ").str.lstrip("; "))
+    return fixed
 
 
 def _cell_failures(collect: _Collector, values: pd.Series, failed: pd.Series, column: str, reason: str,

@@ -269,6 +269,10 @@ class ColumnMap(_Strict):
     )
     unit: str | None = Field(None, description="Unit of the values (quantity fields).")
     unit_column: str | None = Field(None, description="Column holding each row's unit.")
+    fix_unit_slips: bool = Field(
+        False, description="Quantity columns with a 'unit' and a field 'range': rows out of range in the unit "
+        "but in range read in one other common unit are converted from it and named in the records' "
+        "'_unit_fixes' column.")
     currency: str | None = Field(
         None, description="ISO 4217 code of the values (money fields); beside 'currency_column', the code "
         "for rows whose currency cell is blank.")
@@ -303,6 +307,8 @@ class ColumnMap(_Strict):
         if self.number_format is not None:
             _check_number_format(self.number_format)
         _check_country(self.country)
+        if self.fix_unit_slips and not self.unit:
+            raise ValueError("'fix_unit_slips' needs the column's 'unit' (not 'unit_column')")
         if self.split is not None:
             try:
                 pattern = re.compile(self.split)
