@@ -151,13 +151,47 @@ class Thresholds(_Strict):
         return self
 
 
+class RatesLayout(_Strict):
+    """How the rates file is laid out, when it is not the built-in ``date,from,to,rate`` CSV."""
+
+    layout: Literal["long", "wide"] = Field(
+        "long", description="'long': one row per date and currency; 'wide': one row per date, one column per "
+        "currency.")
+    date: str = Field("date", description="Column holding the date.")
+    currency: str | None = Field(None, description="'long': column holding the currency code.")
+    rate: str | None = Field(None, description="'long': column holding the rate.")
+    target: str | None = Field(None, description="Column holding the target currency (default: target_currency).")
+    target_currency: str | None = Field(
+        None, pattern=r"^[A-Z]{3}$", description="The currency every rate is against (default: base_currency).")
+    currencies: list[str] | None = Field(None, description="'wide': the currency columns (default: all but the date).")
+    direction: Literal["to_target", "from_target"] = Field(
+        "to_target", description="'to_target': 1 currency = rate target; 'from_target': 1 target = rate currency.")
+    date_format: str | None = Field(None, description="Date format of the date column (strftime codes).")
+    number_format: str | None = Field(None, description="How the rates are written, e.g. '1234,56'.")
+    delimiter: str = ","
+    encoding: str = "utf-8-sig"
+
+    @model_validator(mode="after")
+    def _columns(self) -> RatesLayout:
+        if self.layout == "long" and not (self.currency and self.rate):
+            raise ValueError("layout 'long' needs the 'currency' and 'rate' columns")
+        if self.number_format is not None:
+            _check_number_format(self.number_format)
+        return self
+
+
 class CanonicalSchema(_Strict):
     """The canonical schema plus the workspace's settings (``mappings/canonical.yaml``)."""
 
     schema_ref: str | None = Field(None, alias="$schema")
     base_currency: str = Field("EUR", pattern=r"^[A-Z]{3}$", description="ISO 4217 code of money fields.")
     rates: str | None = Field(None, description="Dated currency-rates CSV, relative to the workspace.")
-    rate_max_age_days: int = Field(7, ge=0, description="How old the latest rate may be on a pricing date.")
+    rates_layout: RatesLayout | None = Field(
+        None, description="The rates file's own layout (columns, one row per currency or one column per currency, "
+        "which way rates go); default: a CSV with the header date,from,to,rate.")
+    rate_max_age_days: int = Field(
+        7, ge=0, description="How many days old the nearest earlier rate may be on a pricing date; a date with "
+        "none that recent stops the run (0: only a rate of that very day).")
     output: str = Field("out", description="Folder for the output tables, relative to the workspace.")
     reports: str = Field("reports", description="Folder for run reports, relative to the workspace.")
     truth: str | None = Field(
