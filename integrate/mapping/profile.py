@@ -50,6 +50,8 @@ class ColumnProfile:
     date_formats: dict[str, float] = field(default_factory=dict)  # layout -> share of values it reads
     symbols: str = ""  # currency symbols seen in the values
     number_format: str | None = None  # a local number format the values are written in ('1.234,56')
+    codes: list[str] = field(default_factory=list)  # every distinct value, when there are at most 12
+    samples: list[str] = field(default_factory=list)  # up to 50 distinct values, most frequent first
 
     @property
     def empty_rate(self) -> float:
@@ -106,6 +108,9 @@ def profile_column(values: pd.Series) -> ColumnProfile:
                             list(present.drop_duplicates().head(3)))
     if distinct.empty:
         return profile
+    if len(counts) <= 12:
+        profile.codes = [str(v) for v in counts.sort_values(ascending=False, kind="mergesort").index]
+    profile.samples = [str(v) for v in counts.sort_values(ascending=False, kind="mergesort").index[:50]]
     s = distinct.str
     digits = s.replace(r"\D", "", regex=True).str.len()
     profile.shares = {
