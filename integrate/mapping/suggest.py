@@ -128,7 +128,9 @@ def _unit_from_values(profile: ColumnProfile, spec: CanonicalField) -> tuple[str
             fits.append((abs(math.log(converted / middle)) if middle > 0 else 0.0, unit, converted))
     if not fits:
         return None
-    _, unit, converted = min(fits)
+    # the field's own unit when the values fit it: exports of a schema's users are mostly in its units
+    own = [f for f in fits if f[1] == target]
+    _, unit, converted = own[0] if own else min(fits)
     lo, hi = profile.numbers[0] * converted / profile.numbers[1], profile.numbers[2] * converted / profile.numbers[1]
     return unit, (f"as {unit_label(unit)} the values ({profile.numbers[0]:g} to {profile.numbers[2]:g}) give "
                   f"{lo:.4g} to {hi:.4g} {spec.unit}, inside the plausible range [{low:g}, {high:g}]")
@@ -140,6 +142,9 @@ def _score(profile: ColumnProfile, name: str, spec: CanonicalField, phrases: set
     h = _similarity(header, best_phrase)
     v = 0.0 if vetoed(profile, spec) else _value_fit(profile, spec)
     if v == 0.0:
+        return 0.0, []
+    if spec.type in ("quantity", "money", "date") and h < 0.5 and not (spec.type == "money" and profile.symbols):
+        # numbers and dates look alike across many fields: without a word of the header for it, do not guess
         return 0.0, []
     confidence = 0.6 * h + 0.4 * v
     if spec.type in ("email", "postcode") and v >= 0.9:

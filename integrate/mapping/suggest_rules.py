@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import unicodedata
 
-from .meanings import header_unit
+from .meanings import header_currency, header_unit
 from .profile import ColumnProfile
 from .spec import CanonicalField
 from .suggest_words import normalise_header
@@ -82,8 +82,8 @@ def vetoed(profile: ColumnProfile, spec: CanonicalField) -> bool:
         return True
     if spec.type == "money" and money_vetoed(profile):
         return True
-    if spec.type == "quantity" and profile.symbols:
-        return True  # currency symbols in the values: money, not a measure
+    if spec.type == "quantity" and (profile.symbols or header_currency(profile.name)):
+        return True  # a currency in the values or the header: money, not a measure
     return False
 
 

@@ -58,7 +58,7 @@ CONCEPTS: tuple[Concept, ...] = (
              "lesson fee")),
     Concept(("spend", "spent"), ("money",), ("spend", "total spend", "lifetime spend", "total spent", "sales")),
     Concept(("deposit",), ("money",), ("deposit", "deposit amount", "deposit paid")),
-    Concept(("amount", "paid", "payment"), ("money",),
+    Concept(("amount", "paid", "payment", "fee"), ("money",),
             ("amount", "amount paid", "paid", "payment", "payments", "fee", "fees", "price", "total", "betrag",
              "beitrag", "zahlung", "montant", "paiement", "importe", "pago", "bedrag", "cuota")),
 )
