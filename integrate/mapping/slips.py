@@ -3,10 +3,12 @@
 Some rows of a column are written in another unit than the one declared (centimetres typed into
 an inches column). ``check`` finds them as values outside the field's plausible ``range`` that a
 known unit factor brings back. With ``fix_unit_slips: true``, a row whose value is out of range
-in the declared unit but in range read in exactly one other common unit of the same dimension
-is converted from that unit; where several units would fit, the one putting the value nearest
+in the declared unit but in range read in another common unit of the same dimension is converted
+from that unit; where several units would fit, the one putting the value nearest
 the middle of the range (on a log scale) is used, and where none fits the row is left as it is
-(out of range, for ``check`` to show). Every converted row is named in the canonical records'
+(out of range, for ``check`` to show). When more than a fifth of the column is out of range the
+declared unit itself is wrong: nothing is converted, and ``check`` names the factor. Every
+converted row is named in the canonical records'
 ``UNIT_FIXES`` column ("height_cm: read as cm, not in"), which the outputs can carry as provenance.
 """
 
@@ -22,6 +24,7 @@ from .factors import _COMMON_UNITS, unit_label
 from .units import unit_registry
 
 UNIT_FIXES = "_unit_fixes"  # canonical records: the fields whose unit was corrected in this row, and how
+MAX_SLIP_SHARE = 0.2  # above this share of a column out of range, the column's unit is wrong, not a few rows
 
 
 def _factor(unit: str, target: str) -> float | None:
@@ -38,9 +41,10 @@ def fix_slips(converted: pd.Series, declared: str, target: str, bounds: tuple[fl
     ``converted`` holds the values converted from ``declared`` to ``target``.
 
     Example:
-        >>> fixed, units = fix_slips(pd.Series([172.72, 436.88, np.nan]), "inch", "centimeter", (100, 230))
-        >>> fixed.round(2).tolist(), units.tolist()
-        ([172.72, 172.0, nan], [<NA>, 'centimeter', <NA>])
+        >>> cm = pd.Series([436.88, np.nan] + [172.72] * 8)  # one row of ten typed in centimetres
+        >>> fixed, units = fix_slips(cm, "inch", "centimeter", (100, 230))
+        >>> fixed.round(2).tolist()[:3], units.tolist()[:3]
+        ([172.0, nan, 172.72], ['centimeter', <NA>, <NA>])
     """
     low, high = bounds
     own = _factor(declared, target)
@@ -48,8 +52,8 @@ def fix_slips(converted: pd.Series, declared: str, target: str, bounds: tuple[fl
     if not own:
         return converted, units
     outside = converted.notna() & ~converted.between(low, high)
-    if not outside.any():
-        return converted, units
+    if not outside.any() or outside.sum() > MAX_SLIP_SHARE * converted.notna().sum():
+        return converted, units  # none, or so many that the declared unit is wrong (check names the factor)
     raw = converted[outside] / own
     middle = math.sqrt(low * high) if low > 0 else (low + high) / 2
     best = pd.Series(np.nan, index=raw.index)

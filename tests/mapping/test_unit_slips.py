@@ -36,11 +36,12 @@ def _raw(**columns: list) -> pd.DataFrame:
 
 
 def test_slipped_rows_are_converted_and_named() -> None:
-    raw = _raw(ht=["68", "172", "70", None, None], wt=["154", "70", "300", "12", "3"])
+    usual_ht, usual_wt = ["66"] * 10, ["150"] * 10  # the column's usual rows: slips are a few among many
+    raw = _raw(ht=["68", "172", "70", None, None] + usual_ht, wt=["154", "70", "300", "12", "3"] + usual_wt)
     result = apply_mapping(raw, _mapping({"ht": {"field": "height_cm", "unit": "in", "fix_unit_slips": True},
                                           "wt": {"field": "weight_kg", "unit": "lb", "fix_unit_slips": True}}),
                            CANONICAL, None, data_file="c.csv", mapping_file="c.yaml")
-    out = result.frame
+    out = result.frame.head(5)
     assert out["height_cm"].round(2).tolist()[:3] == [172.72, 172.0, 177.8]
     # 70 lb = 31.75 kg is in range (a light child) so it stays; 300 lb = 136.08 kg stays; 12 lb is out of
     # range but 12 st = 168 lb = 76.20 kg is in it (1 st = 14 lb); 3 fits no unit and stays 1.36 kg
@@ -48,6 +49,13 @@ def test_slipped_rows_are_converted_and_named() -> None:
     assert out[UNIT_FIXES].tolist()[1] == "height_cm: read as centimetres (cm), not inches (in)"
     assert out[UNIT_FIXES].tolist()[3] == "weight_kg: read as stone (st), not pounds (lb)"
     assert out[UNIT_FIXES].isna().tolist() == [True, False, True, False, True]
+
+
+def test_a_column_mostly_out_of_range_is_a_wrong_unit_not_slips() -> None:
+    raw = _raw(ht=["172", "180", "165", "68"])  # centimetres declared as inches: check names the factor
+    out = apply_mapping(raw, _mapping({"ht": {"field": "height_cm", "unit": "in", "fix_unit_slips": True}}),
+                        CANONICAL, None, data_file="c.csv", mapping_file="c.yaml").frame
+    assert out["height_cm"].round(2).tolist() == [436.88, 457.2, 419.1, 172.72] and UNIT_FIXES not in out
 
 
 def test_without_the_option_rows_stay_as_declared() -> None:
