@@ -269,5 +269,8 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
                 crosswalk=current.assign(entity_id=stable.to_numpy()).drop(columns="cluster"),
                 input_hashes=inputs, summary=changes.as_dict(), changes=entity_changes,
                 output_dir=str(out_dir.resolve()), report=str(result.report_path.resolve())))
+            from .history_store import record_inputs  # column profiles and mapping texts, for drift checks
+
+            record_inputs(ws, result.run_id, result.mapping_hashes)
     tick("done")
     return result

@@ -17,6 +17,7 @@ import pandas as pd
 from ..compare import GRADE_NAMES
 from ..mapping.spec import Thresholds
 from .charts import Marker, category_chart, histogram_chart
+from .mapping_section import mapping_changes_section
 from .tables import write_text_atomic
 
 if TYPE_CHECKING:
@@ -399,6 +400,7 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
     add("<h2>Mapping files used</h2>")
     hashes = pd.DataFrame({"file": list(result.mapping_hashes), "sha256": list(result.mapping_hashes.values())})
     add(_table(hashes))
+    add(mapping_changes_section(result, ws))
     if ws is not None:
         fields = pd.DataFrame([{"field": n, "type": f.type, "meaning": f.meaning, "resolution rule": f.resolve}
                                for n, f in ws.canonical.fields.items()])
