@@ -25,7 +25,8 @@ from .errors import InputError, InputErrors
 from .evaluate import Evaluation, evaluate, hard_negatives, read_crosswalk_file
 from .ids import ChangeSummary, assign_stable_ids, canonical_order, record_hashes
 from .mapping.apply import FAILURE_COLUMNS, MappedSource, apply_mapping
-from .mapping.money import RatesTable, load_rates
+from .mapping.money import RatesTable
+from .mapping.rates_layout import load_workspace_rates
 from .matching import MatchResult, match_records
 from .outputs.missing import run_missing_values
 from .resolve import check_orders, resolve, source_pair_conflicts
@@ -115,7 +116,7 @@ def read_and_map(ws: Workspace, progress: Progress = _quiet) -> tuple[pd.DataFra
         if not rates_path.exists():
             raise InputError("currency-rates file not found", file=ws.display(rates_path), reason="missing_file",
                              hint="check 'rates:' in mappings/canonical.yaml")
-        rates = load_rates(rates_path)
+        rates = load_workspace_rates(ws.canonical, rates_path, ws.display(rates_path))
     mapped: list[MappedSource] = []
     problems: list[InputError] = []
     progress("read")
