@@ -25,8 +25,10 @@ from .errors import InputError, InputErrors
 from .evaluate import Evaluation, evaluate, hard_negatives, read_crosswalk_file
 from .ids import ChangeSummary, assign_stable_ids, canonical_order, record_hashes
 from .mapping.apply import FAILURE_COLUMNS, MappedSource, apply_mapping
-from .mapping.money import RatesTable, load_rates
+from .mapping.money import RatesTable
+from .mapping.rates_layout import load_workspace_rates
 from .matching import MatchResult, match_records
+from .outputs.missing import run_missing_values
 from .resolve import check_orders, resolve, source_pair_conflicts
 from .score import ScoreModel
 from .sources import read_source
@@ -72,6 +74,7 @@ class RunResult:
     conflict_pairs: pd.DataFrame | None = None  # entities with conflicting values, per field and source pair
     run_id: int | None = None  # the run's number in the state store (when written)
     quality: RunQuality | None = None  # against the schema's 'truth' crosswalk, when one is given
+    missing: pd.DataFrame | None = None  # per field: missing before / after merging (outputs/missing.py)
 
 
 @dataclass
@@ -113,7 +116,7 @@ def read_and_map(ws: Workspace, progress: Progress = _quiet) -> tuple[pd.DataFra
         if not rates_path.exists():
             raise InputError("currency-rates file not found", file=ws.display(rates_path), reason="missing_file",
                              hint="check 'rates:' in mappings/canonical.yaml")
-        rates = load_rates(rates_path)
+        rates = load_workspace_rates(ws.canonical, rates_path, ws.display(rates_path))
     mapped: list[MappedSource] = []
     problems: list[InputError] = []
     progress("read")
@@ -254,6 +257,7 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
         clusters=cluster_table(match.entities, records), changes=changes, entity_changes=entity_changes,
         conflict_pairs=conflict_pairs, quality=judge_against_truth(ws, records, match, crosswalk),
     )
+    result.missing = run_missing_values(result, list(ws.canonical.fields))
     for name, columns in result.unmapped.items():
         result.warnings.append(f"source '{name}': columns not mentioned in its mapping: {', '.join(columns)}")
     if write:
@@ -271,6 +275,7 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
             "clusters": (result.clusters, ("csv", "parquet")),
             "splits": (splits_frame(match.splits, records), ("csv",)),
             "changes": (entity_changes, ("csv",)),
+            "missing": (result.missing, ("csv",)),
             "failures": (failures.astype({c: "string" for c in failures.columns}), ("csv",)),
         })
         result.output_dir = out_dir

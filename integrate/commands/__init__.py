@@ -5,4 +5,4 @@ prints results. Add a command by adding its module name to ``COMMANDS``.
 """
 
 COMMANDS = ("run", "evaluate", "schema", "review", "check", "suggest", "show", "changes", "explain", "blocking",
-            "mappings")
+            "mappings", "serve", "split", "export", "init")

@@ -26,7 +26,8 @@ from .factors import explanations_for
 from .findings import LEVELS, CheckReport, Finding, rows_text
 from .load import load_canonical, load_source_mapping, position_of
 from .meanings import field_meanings, meaning_findings
-from .money import RatesTable, load_rates
+from .money import RatesTable
+from .rates_layout import load_workspace_rates
 from .redundancy import redundant_columns
 from .spec import CanonicalSchema
 
@@ -82,7 +83,7 @@ def _load(root: Path, report: CheckReport) -> _Loaded | None:
     rates = None
     if canonical.rates:
         try:
-            rates = load_rates(root / canonical.rates)
+            rates = load_workspace_rates(canonical, root / canonical.rates, canonical.rates)
         except InputError as exc:
             exc.file = canonical.rates
             report.add([Finding.from_error(exc)])
@@ -248,7 +249,7 @@ def run_value_findings(records: pd.DataFrame, ws: Workspace, crosswalk: pd.DataF
     """
     rates = None
     if ws.canonical.rates and (ws.root / ws.canonical.rates).is_file():
-        rates = load_rates(ws.root / ws.canonical.rates)
+        rates = load_workspace_rates(ws.canonical, ws.root / ws.canonical.rates)
     loaded = _Loaded(ws, rates)
     locate = _Locator(ws)
     present = set(records[SOURCE].unique()) if SOURCE in records else set()

@@ -18,6 +18,7 @@ from ..compare import GRADE_NAMES
 from ..mapping.spec import Thresholds
 from .charts import Marker, category_chart, histogram_chart
 from .mapping_section import mapping_changes_section
+from .missing import missing_section
 from .tables import write_text_atomic
 
 if TYPE_CHECKING:
@@ -389,6 +390,7 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
     conflict_table = conflict_table.sort_values(["entities with conflicting values", "field"],
                                                 ascending=[False, True], kind="mergesort")
     add("<h3>Conflicts per field</h3>" + _table(conflict_table, ("entities with conflicting values",)))
+    add(missing_section(result))  # outputs/missing.py
     add(_source_pair_section(result))
     add(_clusters_section(result))
     add(_changes_section(result))
