@@ -121,14 +121,19 @@ def write_report_file(folder: Path, html: str) -> Path:
 
 # --- switching the pointer ------------------------------------------------------------------
 
-def switch_current(out_dir: Path, run_folder: Path) -> None:
-    """Make ``out/current`` point at ``run_folder`` and give every file of it a stable link."""
+def switch_current(out_dir: Path, run_folder: Path, *, points: bool = True) -> None:
+    """Make ``out/current`` point at ``run_folder`` and give every file of it a stable link.
+
+    ``points=False`` (recovery at a run's start) passes no kill points, so that each named point
+    stays the publish step it is named after.
+    """
     target = os.path.relpath(run_folder, out_dir)
     pointer = out_dir / CURRENT
     if not (pointer.is_symlink() and os.readlink(pointer) == target):
         _link(pointer, target)
         fsync_dir(out_dir)
-    reached("pointer:current")
+    if points:
+        reached("pointer:current")
     changed = False
     for path in sorted(run_folder.iterdir()):
         if path.name.startswith(".") or path.name == MANIFEST:
@@ -146,19 +151,21 @@ def switch_current(out_dir: Path, run_folder: Path) -> None:
         fsync_dir(out_dir)
 
 
-def publish_report(reports_dir: Path, report_path: Path, out_dir: Path) -> None:
+def publish_report(reports_dir: Path, report_path: Path, out_dir: Path, *, points: bool = True) -> None:
     """Copy the run's report to ``report_path`` and link ``latest.html`` to the current set's report."""
     source = out_dir / CURRENT / REPORT
     reports_dir.mkdir(parents=True, exist_ok=True)
     if not report_path.exists():
         write_atomic(report_path, lambda p: shutil.copyfile(source, p))
-    reached("pointer:report")
+    if points:
+        reached("pointer:report")
     latest = reports_dir / LATEST
     target = os.path.relpath(source, reports_dir)
     if not (latest.is_symlink() and os.readlink(latest) == target):
         _link(latest, target)
         fsync_dir(reports_dir)
-    reached("pointer:latest")
+    if points:
+        reached("pointer:latest")
 
 
 def prune(out_dir: Path, keep: int) -> list[Path]:
@@ -214,7 +221,7 @@ def _migrate_legacy(out_dir: Path) -> None:
             except OSError:
                 shutil.copy2(path, legacy / path.name)
     fsync_dir(legacy)
-    switch_current(out_dir, legacy)
+    switch_current(out_dir, legacy, points=False)
 
 
 def recover(out_dir: Path, reports_dir: Path, recorded: list[str], report_of: dict[str, str]) -> Recovery:
@@ -244,10 +251,10 @@ def recover(out_dir: Path, reports_dir: Path, recorded: list[str], report_of: di
         current = out_dir / CURRENT
         if not current.exists() or current.resolve() != last.resolve():
             found.switched_to = last
-        switch_current(out_dir, last)
+        switch_current(out_dir, last, points=False)
         report = report_of.get(str(last))
         if report:
-            publish_report(reports_dir, Path(report), out_dir)
+            publish_report(reports_dir, Path(report), out_dir, points=False)
     if runs.is_dir():
         pointed = (out_dir / CURRENT).resolve() if (out_dir / CURRENT).exists() else None
         for folder in runs.glob("run-*"):
