@@ -364,8 +364,9 @@ def campaign(template: Path, label: str, points: list[str], work: Path, log=prin
             rest = leftovers(chain)
             if rest:
                 case.problems.append(f"next run left {rest[:5]}")
+        verdict = "OK" if not case.problems else "FAIL: " + "; ".join(case.problems)
         log(f"{label:<6} {point:<22} killed={'yes' if case.killed else 'no ':<3} left={case.left:<8} "
-            f"tmp={case.temporaries:<2} {'behind ' if case.pointer_behind else ''}{'OK' if not case.problems else 'FAIL: ' + '; '.join(case.problems)}")
+            f"tmp={case.temporaries:<2} {'behind ' if case.pointer_behind else ''}{verdict}")
         cases.append(case)
     return cases
 

@@ -12,15 +12,21 @@ not yet fsynced), ``publish:folder`` (run folder renamed to its final name); ``s
 ``state:crosswalk`` inside the state-store transaction, ``state:commit`` after it; ``pointer:current``
 after the output pointer switched; ``pointer:report`` after the report copy; ``pointer:latest``
 after ``latest.html``; ``prune`` after old run folders were removed.
+
+``INTEGRATE_TEST_PAUSE_AT=<point>=<seconds>`` instead sleeps there (the first time), so that a
+test can start a second run while the first one holds the workspace.
 """
 
 from __future__ import annotations
 
 import os
 import signal
+import time
 
 KILL_ENV = "INTEGRATE_TEST_KILL_AT"
+PAUSE_ENV = "INTEGRATE_TEST_PAUSE_AT"
 _seen: dict[str, int] = {}
+_paused: set[str] = set()
 
 
 def _target() -> tuple[str, int] | None:
@@ -33,6 +39,12 @@ def _target() -> tuple[str, int] | None:
 
 def reached(point: str) -> None:
     """Mark that the run reached ``point``; kills the process here when a test asked for it."""
+    pause = os.environ.get(PAUSE_ENV, "")
+    if pause:
+        name, _, seconds = pause.partition("=")
+        if name == point and point not in _paused:
+            _paused.add(point)
+            time.sleep(float(seconds or 0))
     target = _target()
     if target is None or target[0] != point:
         return

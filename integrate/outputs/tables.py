@@ -6,6 +6,7 @@ Parquet files keep the values as they are (no spreadsheet opens them).
 
 from __future__ import annotations
 
+import csv
 import os
 import tempfile
 from collections.abc import Callable
@@ -72,9 +73,22 @@ def _parquet_ready(frame: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
+def _has_carriage_return(frame: pd.DataFrame) -> bool:
+    text = [c for c in frame.columns if frame[c].dtype == object or isinstance(frame[c].dtype, pd.StringDtype)]
+    return any(bool(frame[c].astype("string").str.contains("\r", regex=False).fillna(False).any()) for c in text)
+
+
 def write_csv(frame: pd.DataFrame, path: Path) -> None:
-    """A CSV with formula-like text cells quoted."""
-    neutralise_frame(frame).to_csv(path, index=False)
+    """A CSV with formula-like text cells quoted.
+
+    Python's CSV writer does not put a value holding a bare carriage return in quotes when lines
+    end in ``\n``, so a reader would cut the row there; such a table gets every field quoted.
+    """
+    safe = neutralise_frame(frame)
+    if _has_carriage_return(safe):
+        safe.to_csv(path, index=False, quoting=csv.QUOTE_ALL)
+    else:
+        safe.to_csv(path, index=False)
 
 
 def write_xlsx(sheets: dict[str, pd.DataFrame], path: Path) -> None:
