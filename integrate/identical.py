@@ -1,0 +1,115 @@
+"""Identical records collapsed to one before blocking and expanded after clustering.
+
+An export that repeats a record (the same person 20,000 times) made every block holding it too
+big to compare, so the copies were never merged, and the repeats dominated the model's random
+pairs. Here records whose compared fields hold the same standard values are one group: only its
+first record (the representative) is blocked, compared, scored and clustered; afterwards every
+copy joins its representative's entity, so copies cost nothing and always merge.
+
+Only copies within one source are grouped: an export repeating a record is a fact about that
+export, while two sources agreeing on every value is evidence the model should weigh (grouping
+across sources too cost the demo 0.008 of pairwise precision; within sources, precision stays
+0.9944 and recall rises from 0.9697 to 0.9747, as copies the blocks missed now merge).
+
+Kept out of the groups (each stays a record of its own):
+- records with fewer than ``MIN_FILLED`` compared fields filled: two records holding only a
+  common name are not the same person (our own rule);
+- records of sources that hold at most one record per person (``one_per_person``), and records
+  a reviewer's decision names, so that every constraint still applies to the records it names.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Collection
+from dataclasses import dataclass, replace
+
+import numpy as np
+import pandas as pd
+
+from .cluster import Split
+from .columns import SOURCE
+
+MIN_FILLED = 3  # compared fields a record must fill to be collapsed with its copies
+
+
+@dataclass
+class Identical:
+    """Which record stands for which (positions 0..n-1 of the full records)."""
+
+    group: np.ndarray  # per record: the position of its representative among the representatives
+    positions: np.ndarray  # per representative: its position among all records
+    full_records: pd.DataFrame
+    full_prepared: pd.DataFrame
+
+    @property
+    def collapsed(self) -> int:
+        return len(self.group) - len(self.positions)
+
+    def representatives(self, must_link: np.ndarray | None, cannot_link: np.ndarray | None
+                        ) -> tuple[pd.DataFrame, pd.DataFrame, np.ndarray | None, np.ndarray | None]:
+        """Records, prepared frame and constraint pairs restricted to the representatives."""
+        def pairs(p: np.ndarray | None) -> np.ndarray | None:
+            return None if p is None else self.group[np.asarray(p, dtype=np.int64)]
+        if not self.collapsed:
+            return self.full_records, self.full_prepared, must_link, cannot_link
+        return (self.full_records.iloc[self.positions].reset_index(drop=True),
+                self.full_prepared.iloc[self.positions].reset_index(drop=True), pairs(must_link), pairs(cannot_link))
+
+    def expand(self, scored: pd.DataFrame, entities: pd.DataFrame, splits: list[Split]
+               ) -> tuple[pd.DataFrame, pd.DataFrame, list[Split]]:
+        """Pairs, entities and splits in positions of the full records; copies join their entity."""
+        if not self.collapsed:
+            return scored, entities, splits
+        scored = scored.copy()
+        scored["i"] = self.positions[scored["i"].to_numpy(dtype=np.int64)]
+        scored["j"] = self.positions[scored["j"].to_numpy(dtype=np.int64)]
+        before = entities["cluster_size"].to_numpy()[self.group]
+        full = entities.iloc[self.group].reset_index(drop=True)
+        copy = np.ones(len(full), dtype=bool)
+        copy[self.positions] = False
+        full.loc[copy, "link_strength"] = 1.0  # identical to its representative
+        size = full.groupby("entity_id")["entity_id"].transform("size").to_numpy()
+        full["cluster_size"] = size
+        sources = pd.Series(self.full_records[SOURCE].astype(str).to_numpy())
+        full["sources_in_cluster"] = sources.groupby(full["entity_id"].to_numpy()).transform("nunique").to_numpy()
+        grown = (before == 1) & (size > 1)  # a record alone before, now with its copies: certain links
+        for column in ("weakest_link", "lowest_pair_probability"):
+            if column in full:
+                full[column] = full[column].astype("float64")
+                full.loc[grown, column] = 1.0
+        splits = [replace(s, kept_apart=(int(self.positions[s.kept_apart[0]]), int(self.positions[s.kept_apart[1]])))
+                  for s in splits]
+        return scored, full, splits
+
+
+def find_identical(records: pd.DataFrame, prepared: pd.DataFrame, compared: list[str], *,
+                   one_per_person: Collection[str] = (), must_link: np.ndarray | None = None,
+                   cannot_link: np.ndarray | None = None) -> Identical:
+    """Group records (positions 0..n-1) whose compared fields hold the same standard values."""
+    n = len(records)
+    columns = [c for c in compared if c in prepared.columns]
+    alone = np.zeros(n, dtype=bool)
+    if columns:
+        filled = prepared[columns].notna().sum(axis=1).to_numpy()
+        alone |= filled < min(MIN_FILLED, len(columns))
+    else:
+        alone[:] = True
+    if one_per_person:
+        alone |= records[SOURCE].astype(str).isin(list(one_per_person)).to_numpy()
+    for p in (must_link, cannot_link):
+        if p is not None and len(p):
+            alone[np.asarray(p, dtype=np.int64).ravel()] = True
+    if columns and not alone.all():
+        text = prepared[columns].astype("string").fillna("\x00")  # empty differs from any value
+        text[SOURCE] = records[SOURCE].astype("string").to_numpy()  # copies within one export
+        key = pd.util.hash_pandas_object(text, index=False).to_numpy()
+        key = np.where(alone, np.arange(n, dtype=np.uint64) ^ np.uint64(0x9E3779B97F4A7C15), key)
+        codes, _ = pd.factorize(pd.Series(key).astype(str).to_numpy() + np.where(alone, "a", "g"), sort=False)
+    else:
+        codes = np.arange(n)
+    # representatives in record order: the first record of each group
+    first = pd.Series(np.arange(n)).groupby(codes).transform("min").to_numpy()
+    positions = np.unique(first)
+    rank = np.empty(n, dtype=np.int64)
+    rank[positions] = np.arange(len(positions))
+    return Identical(rank[first], positions, records, prepared)
