@@ -63,3 +63,14 @@ def test_outputs_from_before_run_folders_become_the_current_set(tmp_path: Path) 
     assert (out / "merged.csv").is_symlink()
     assert (out / "merged.csv").read_text(encoding="utf-8") == "entity_id\nOLD\n"
     assert (out / "current").resolve() == out / "runs" / publish.LEGACY
+
+
+def test_the_legacy_set_is_pruned_first(tmp_path: Path) -> None:
+    out, reports = tmp_path / "out", tmp_path / "reports"
+    out.mkdir()
+    (out / "merged.csv").write_text("entity_id\nOLD\n", encoding="utf-8")
+    publish.recover(out, reports, [str(out)], {})
+    for run_id in (1, 2):
+        _publish(out, reports, run_id)
+    publish.prune(out, 2)
+    assert sorted(p.name for p in (out / "runs").iterdir()) == ["run-000001", "run-000002"]

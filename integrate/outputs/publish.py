@@ -173,7 +173,7 @@ def prune(out_dir: Path, keep: int) -> list[Path]:
     runs = out_dir / RUNS_DIR
     current = (out_dir / CURRENT).resolve()
     folders = sorted((p for p in runs.glob("run-*") if p.is_dir() and not p.name.endswith(PARTIAL)),
-                     key=lambda p: p.name, reverse=True)
+                     key=lambda p: (p.name != LEGACY, p.name), reverse=True)  # the legacy set is oldest
     removed = [p for p in folders[keep:] if p.resolve() != current]
     for folder in removed:
         shutil.rmtree(folder, ignore_errors=True)
