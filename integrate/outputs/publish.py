@@ -269,8 +269,11 @@ def recover(out_dir: Path, reports_dir: Path, recorded: list[str], report_of: di
 
 # --- readers --------------------------------------------------------------------------------
 
-def current_output_folder(workspace: str | Path, out: str | Path | None = None) -> Path:
+def current_output_folder(workspace: str | Path, out: str | Path | None = None, *, default: Path | None = None
+                          ) -> Path:
     """The folder holding the outputs to read: ``out``, else the last recorded run's, else the schema's.
+
+    ``default``: the schema's output folder when the caller knows it (else the workspace is loaded).
 
     The last recorded run's folder is one complete set even while a run is publishing the next.
     """
@@ -284,8 +287,10 @@ def current_output_folder(workspace: str | Path, out: str | Path | None = None) 
     last = store.last_run() if store is not None else None
     if last is not None and last.output_dir and Path(last.output_dir).is_dir():
         return Path(last.output_dir)
-    from ..workspace import load_workspace
+    if default is None:
+        from ..workspace import load_workspace
 
-    folder = load_workspace(workspace).output_dir
+        default = load_workspace(workspace).output_dir
+    folder = default
     current = folder / CURRENT
     return current.resolve() if current.is_dir() else folder

@@ -120,7 +120,7 @@ def load_review_data(workspace: str | Path) -> ReviewData:
     ws = load_workspace(workspace)
     from ..outputs.publish import current_output_folder
 
-    out = current_output_folder(ws.root)  # the last run's folder, wherever --out put it
+    out = current_output_folder(ws.root, default=ws.output_dir)  # the last run's folder, wherever --out put it
     pairs = order_pairs(_read_output(out / "pairs.parquet", "candidate pairs"))
     records = _read_output(out / "records.parquet", "canonical records")
     # sorted indexes: look-ups from the server's worker threads never touch an unsorted MultiIndex
