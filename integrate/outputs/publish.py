@@ -280,7 +280,7 @@ def current_output_folder(workspace: str | Path, out: str | Path | None = None, 
     if out:
         out_path = Path(out)
         current = out_path / CURRENT
-        return current.resolve() if current.is_dir() else out_path
+        return current.resolve() if current.is_symlink() and current.is_dir() else out_path
     from ..state import StateStore
 
     store = StateStore.existing(workspace)
@@ -292,5 +292,5 @@ def current_output_folder(workspace: str | Path, out: str | Path | None = None, 
 
         default = load_workspace(workspace).output_dir
     folder = default
-    current = folder / CURRENT
-    return current.resolve() if current.is_dir() else folder
+    current = folder / CURRENT  # a copy that followed the links has a plain folder here: read the copy's files
+    return current.resolve() if current.is_symlink() and current.is_dir() else folder
