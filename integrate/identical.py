@@ -40,6 +40,8 @@ class Identical:
     positions: np.ndarray  # per representative: its position among all records
     full_records: pd.DataFrame
     full_prepared: pd.DataFrame
+    estimator: object = None  # a reviewers' estimator whose decided pairs are renumbered meanwhile
+    _decided: pd.DataFrame | None = None
 
     @property
     def collapsed(self) -> int:
@@ -52,6 +54,11 @@ class Identical:
             return None if p is None else self.group[np.asarray(p, dtype=np.int64)]
         if not self.collapsed:
             return self.full_records, self.full_prepared, must_link, cannot_link
+        decided = getattr(self.estimator, "decided", None)
+        if isinstance(decided, pd.DataFrame):  # its records are never grouped: renumbering is one to one
+            self._decided = decided
+            self.estimator.decided = decided.assign(i=self.group[decided["i"].to_numpy(np.int64)],  # type: ignore[union-attr]
+                                                    j=self.group[decided["j"].to_numpy(np.int64)])
         return (self.full_records.iloc[self.positions].reset_index(drop=True),
                 self.full_prepared.iloc[self.positions].reset_index(drop=True), pairs(must_link), pairs(cannot_link))
 
@@ -60,6 +67,8 @@ class Identical:
         """Pairs, entities and splits in positions of the full records; copies join their entity."""
         if not self.collapsed:
             return scored, entities, splits
+        if self._decided is not None:
+            self.estimator.decided = self._decided  # type: ignore[union-attr]
         scored = scored.copy()
         scored["i"] = self.positions[scored["i"].to_numpy(dtype=np.int64)]
         scored["j"] = self.positions[scored["j"].to_numpy(dtype=np.int64)]
@@ -84,7 +93,7 @@ class Identical:
 
 def find_identical(records: pd.DataFrame, prepared: pd.DataFrame, compared: list[str], *,
                    one_per_person: Collection[str] = (), must_link: np.ndarray | None = None,
-                   cannot_link: np.ndarray | None = None) -> Identical:
+                   cannot_link: np.ndarray | None = None, estimator: object = None) -> Identical:
     """Group records (positions 0..n-1) whose compared fields hold the same standard values."""
     n = len(records)
     columns = [c for c in compared if c in prepared.columns]
@@ -96,7 +105,9 @@ def find_identical(records: pd.DataFrame, prepared: pd.DataFrame, compared: list
         alone[:] = True
     if one_per_person:
         alone |= records[SOURCE].astype(str).isin(list(one_per_person)).to_numpy()
-    for p in (must_link, cannot_link):
+    decided = getattr(estimator, "decided", None)
+    decided_pairs = decided[["i", "j"]].to_numpy(np.int64) if isinstance(decided, pd.DataFrame) else None
+    for p in (must_link, cannot_link, decided_pairs):
         if p is not None and len(p):
             alone[np.asarray(p, dtype=np.int64).ravel()] = True
     if columns and not alone.all():
@@ -112,4 +123,4 @@ def find_identical(records: pd.DataFrame, prepared: pd.DataFrame, compared: list
     positions = np.unique(first)
     rank = np.empty(n, dtype=np.int64)
     rank[positions] = np.arange(len(positions))
-    return Identical(rank[first], positions, records, prepared)
+    return Identical(rank[first], positions, records, prepared, estimator)

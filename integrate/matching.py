@@ -49,7 +49,8 @@ def match_records(records: pd.DataFrame, canonical: CanonicalSchema, *,
     prepared = standardise(records, canonical, regions)
     # identical records: one representative is matched, its copies join its entity (identical.py)
     same = find_identical(records, prepared, [n for n, f in canonical.fields.items() if f.is_compared()],
-                          one_per_person=one_per_person, must_link=must_link, cannot_link=cannot_link)
+                          one_per_person=one_per_person, must_link=must_link, cannot_link=cannot_link,
+                          estimator=estimator)
     records, prepared, must_link, cannot_link = same.representatives(must_link, cannot_link)
     group_codes = pd.factorize(records["_source"])[0] if across_sources_only else None
     progress("block")
