@@ -11,7 +11,6 @@ import pandas as pd
 from .block import BlockingReport, block, default_rules
 from .cluster import Split, cluster
 from .compare import compare
-from .identical import find_identical
 from .mapping.spec import CanonicalSchema
 from .score import ScoreModel, score
 from .standardise import standardise
@@ -47,11 +46,6 @@ def match_records(records: pd.DataFrame, canonical: CanonicalSchema, *,
     records = records.reset_index(drop=True)
     progress("standardise")
     prepared = standardise(records, canonical, regions)
-    # identical records: one representative is matched, its copies join its entity (identical.py)
-    same = find_identical(records, prepared, [n for n, f in canonical.fields.items() if f.is_compared()],
-                          one_per_person=one_per_person, must_link=must_link, cannot_link=cannot_link,
-                          estimator=estimator)
-    records, prepared, must_link, cannot_link = same.representatives(must_link, cannot_link)
     group_codes = pd.factorize(records["_source"])[0] if across_sources_only else None
     progress("block")
     rules = list(canonical.blocking) or default_rules(canonical)
@@ -64,7 +58,6 @@ def match_records(records: pd.DataFrame, canonical: CanonicalSchema, *,
     progress("cluster")
     entities, splits = cluster(records, scored, must_link=must_link, cannot_link=cannot_link,
                                one_per_person=one_per_person)
-    scored, entities, splits = same.expand(scored, entities, splits)
-    return MatchResult(same.full_prepared, scored, entities, blocking, model, splits)
+    return MatchResult(prepared, scored, entities, blocking, model, splits)
 
 
