@@ -305,6 +305,9 @@ def _publish(result: RunResult, ws: Workspace, store: StateStore, out_dir: Path,
     run.run_id, run.output_dir = run_id, str(result.run_dir.resolve())
     run.report = str(result.report_path.resolve())
     store.record_run(run)  # the commit point: from here on the new set is the current one
+    from .history_store import record_inputs  # column profiles and mapping texts, for drift checks
+
+    record_inputs(ws, run_id, result.mapping_hashes)
     publish.switch_current(out_dir, result.run_dir)
     publish.publish_report(ws.reports_dir, result.report_path, out_dir)
     publish.prune(out_dir, publish.keep_runs(keep_runs))

@@ -21,6 +21,7 @@ from ..sources import read_source
 from ..workspace import CANONICAL_FILE, MAPPINGS_DIR, SourceEntry, Workspace
 from .apply import FATAL_REASONS, MappedSource, apply_mapping
 from .distribution import NumericFeed, compare_distributions, compare_linked, numeric_fields, range_findings
+from .drift import drift_findings
 from .factors import explanations_for
 from .findings import LEVELS, CheckReport, Finding, rows_text
 from .load import load_canonical, load_source_mapping, position_of
@@ -184,6 +185,7 @@ def check_workspace(root: str | Path = ".", *, crosswalk: pd.DataFrame | None = 
     report.meanings = field_meanings(canonical, [e.mapping for e in ws.sources])
     report.add(meaning_findings(canonical, [e.mapping for e in ws.sources], locate))
     frames: list[pd.DataFrame] = []
+    raws: dict[str, pd.DataFrame] = {}  # as read, for the comparison with last month's profiles (drift.py)
     data_files: dict[str, str] = {}
     for entry in ws.sources:
         mapping = entry.mapping
@@ -199,6 +201,7 @@ def check_workspace(root: str | Path = ".", *, crosswalk: pd.DataFrame | None = 
                                mapping_file=ws.display(entry.mapping_file), mapping_path=entry.mapping_file,
                                on_error="collect")
         report.records[mapping.source] = len(mapped.frame)
+        raws[mapping.source] = raw
         report.add(Finding.from_error(e, mapping.source) for e in mapped.problems)
         if mapped.unmapped_columns:
             file, line, col = locate(mapping.source, "")
@@ -225,6 +228,7 @@ def check_workspace(root: str | Path = ".", *, crosswalk: pd.DataFrame | None = 
         if crosswalk is not None:
             report.linked_from = report.linked_from or "the given crosswalk"
             report.add(compare_linked(records, _entity_ids(records, crosswalk), canonical, feeds, locate))
+    report.add(drift_findings(ws, raws, loaded.rates))
     report.findings.sort(key=lambda f: LEVELS.index(f.level))
     return report
 
