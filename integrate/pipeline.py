@@ -24,6 +24,7 @@ from .compare import grade_name
 from .errors import InputError, InputErrors
 from .evaluate import Evaluation, evaluate, hard_negatives, read_crosswalk_file
 from .ids import ChangeSummary, assign_stable_ids, canonical_order, record_hashes
+from .killpoints import reached
 from .mapping.apply import FAILURE_COLUMNS, MappedSource, apply_mapping
 from .mapping.money import RatesTable
 from .mapping.rates_layout import load_workspace_rates
@@ -32,7 +33,7 @@ from .outputs.missing import run_missing_values
 from .resolve import check_orders, resolve, source_pair_conflicts
 from .score import ScoreModel
 from .sources import read_source
-from .state import NewRun, RunHistory, input_hashes
+from .state import NewRun, RunHistory, RunLock, StateStore, input_hashes
 from .workspace import Workspace, load_workspace
 
 if TYPE_CHECKING:
@@ -63,8 +64,9 @@ class RunResult:
     mapping_hashes: dict[str, str]
     timings: dict[str, float]
     started: dt.datetime
-    output_dir: Path | None = None
+    output_dir: Path | None = None  # the stable output folder (its files link to the current run's)
     report_path: Path | None = None
+    run_dir: Path | None = None  # the run's own folder, out/runs/run-N: one complete set
     warnings: list[str] = field(default_factory=list)
     review: ReviewSummary | None = None  # decisions applied, model re-estimated, audit precision
     splits: list[Split] = field(default_factory=list)  # cuts clustering made (constraints, chaining guard)
@@ -181,8 +183,8 @@ def pairs_frame(records: pd.DataFrame, match: MatchResult, types: dict[str, str]
 
 
 def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress = _quiet,
-                 write: bool = True, output_dir: str | Path | None = None, engine: str = "local",
-                 scheduler: str | None = None) -> RunResult:
+                 write: bool = True, output_dir: str | Path | None = None, keep_runs: int | None = None,
+                 engine: str = "local", scheduler: str | None = None) -> RunResult:
     """Run every stage on a workspace and (by default) write the outputs and the run report.
 
     Args:
@@ -190,6 +192,7 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
         progress: called with each stage name as it starts.
         write: write tables and the report; ``False`` only computes.
         output_dir: overrides the schema's ``output`` folder.
+        keep_runs: run folders to keep in the output folder (default ``INTEGRATE_KEEP_RUNS`` or 3).
         engine: where blocking, comparison and scoring run: ``"local"`` (this process) or
             ``"dask"`` (a dask.distributed cluster; same outputs; see ``integrate.engine``).
         scheduler: with ``engine="dask"``, a running cluster's scheduler address (default: a
@@ -197,9 +200,30 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
 
     Raises:
         InputError / InputErrors: a mapping file, source file or value is wrong; nothing is written.
+        RunLocked: another run of the workspace is in progress (nothing is read or written).
     """
-    started = dt.datetime.now(dt.UTC).replace(microsecond=0)
     ws = workspace if isinstance(workspace, Workspace) else load_workspace(workspace)
+    if not write:
+        return _run(ws, progress, write=False, output_dir=None, keep_runs=None, engine=engine, scheduler=scheduler)
+    from .outputs.publish import recover
+
+    store = StateStore.for_workspace(ws.root)
+    with RunLock(store):
+        out_dir = Path(output_dir) if output_dir else ws.output_dir
+        runs = store.runs()
+        found = recover(out_dir, ws.reports_dir, [r.output_dir or "" for r in runs],
+                        {r.output_dir: r.report for r in runs if r.output_dir and r.report})
+        if found:
+            log.info("cleaned up after an interrupted run: %d temporary files, %d unrecorded run folders removed%s",
+                     len(found.temporary_files), len(found.discarded_folders),
+                     f", current set switched to {found.switched_to}" if found.switched_to else "")
+        return _run(ws, progress, write=True, output_dir=out_dir, keep_runs=keep_runs, engine=engine,
+                    scheduler=scheduler)
+
+
+def _run(ws: Workspace, progress: Progress, *, write: bool, output_dir: Path | None, keep_runs: int | None,
+         engine: str = "local", scheduler: str | None = None) -> RunResult:
+    started = dt.datetime.now(dt.UTC).replace(microsecond=0)
     timings: dict[str, float] = {}
     clock = [time.perf_counter(), ""]
 
@@ -208,6 +232,7 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
         if clock[1]:
             timings[str(clock[1])] = timings.get(str(clock[1]), 0.0) + now - float(clock[0])
         clock[0], clock[1] = now, stage
+        reached("stage:" + stage)
         progress(stage)
 
     tick.count = getattr(progress, "count", None)  # type: ignore[attr-defined]  # counts inside a stage
@@ -260,13 +285,12 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
     result.missing = run_missing_values(result, list(ws.canonical.fields))
     for name, columns in result.unmapped.items():
         result.warnings.append(f"source '{name}': columns not mentioned in its mapping: {', '.join(columns)}")
-    if write:
+    if write and history.store is not None and output_dir is not None:
         tick("write")
-        from .outputs.report import write_report
-        from .outputs.tables import write_tables
-
-        out_dir = Path(output_dir) if output_dir else ws.output_dir
-        write_tables(out_dir, {
+        _publish(result, ws, history.store, output_dir, keep_runs, NewRun(
+            started_at=started.isoformat().replace("+00:00", "Z"), mapping_hashes=result.mapping_hashes,
+            crosswalk=current.assign(entity_id=stable.to_numpy()).drop(columns="cluster"),
+            input_hashes=inputs, summary=changes.as_dict(), changes=entity_changes), {
             "merged": (merged, ("csv", "parquet")),
             "crosswalk": (crosswalk, ("csv", "parquet")),
             "provenance": (provenance, ("csv", "parquet")),
@@ -278,16 +302,30 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
             "missing": (result.missing, ("csv",)),
             "failures": (failures.astype({c: "string" for c in failures.columns}), ("csv",)),
         })
-        result.output_dir = out_dir
-        result.report_path = write_report(result, ws)
-        if history.store is not None:
-            result.run_id = history.store.record_run(NewRun(
-                started_at=started.isoformat().replace("+00:00", "Z"), mapping_hashes=result.mapping_hashes,
-                crosswalk=current.assign(entity_id=stable.to_numpy()).drop(columns="cluster"),
-                input_hashes=inputs, summary=changes.as_dict(), changes=entity_changes,
-                output_dir=str(out_dir.resolve()), report=str(result.report_path.resolve())))
-            from .history_store import record_inputs  # column profiles and mapping texts, for drift checks
-
-            record_inputs(ws, result.run_id, result.mapping_hashes)
     tick("done")
     return result
+
+
+def _publish(result: RunResult, ws: Workspace, store: StateStore, out_dir: Path, keep_runs: int | None,
+             run: NewRun, tables: dict[str, tuple[pd.DataFrame, tuple[str, ...]]]) -> None:
+    """Write the set into a new run folder, record it, then switch the pointer (see outputs/publish.py)."""
+    from .outputs import publish
+    from .outputs.report import render_report
+    from .outputs.tables import write_tables
+
+    run_id = store.next_run_id()  # ours alone: the run lock is held
+    result.run_id, result.output_dir = run_id, out_dir
+    result.report_path = ws.reports_dir / f"run-{result.started.strftime('%Y%m%dT%H%M%SZ')}.html"
+    partial = publish.start_run_folder(out_dir, run_id)
+    write_tables(partial, tables)
+    publish.write_report_file(partial, render_report(result, ws))
+    result.run_dir = publish.seal_run_folder(partial, run_id, run.started_at)
+    run.run_id, run.output_dir = run_id, str(result.run_dir.resolve())
+    run.report = str(result.report_path.resolve())
+    store.record_run(run)  # the commit point: from here on the new set is the current one
+    from .history_store import record_inputs  # column profiles and mapping texts, for drift checks
+
+    record_inputs(ws, run_id, result.mapping_hashes)
+    publish.switch_current(out_dir, result.run_dir)
+    publish.publish_report(ws.reports_dir, result.report_path, out_dir)
+    publish.prune(out_dir, publish.keep_runs(keep_runs))

@@ -28,6 +28,10 @@ from __future__ import annotations
 import datetime as dt
 import json
 import os
+import socket
+import threading
+import time
+import uuid
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -36,6 +40,7 @@ import pandas as pd
 from sqlalchemy import (
     Column,
     Engine,
+    Float,
     ForeignKey,
     Index,
     Integer,
@@ -44,16 +49,19 @@ from sqlalchemy import (
     Table,
     Text,
     create_engine,
+    delete,
     event,
     func,
     insert,
     select,
+    update,
 )
 from sqlalchemy.engine import make_url
 from sqlalchemy.exc import ArgumentError, SQLAlchemyError
 
 from . import migrations
 from .errors import ConfigError, IntegrateError
+from .killpoints import reached
 from .mapping.load import file_hash
 from .workspace import Workspace
 
@@ -100,6 +108,16 @@ run_change_table = Table(
     Column("records", Integer),
     Column("records_added", Integer),
     Column("records_removed", Integer),
+)
+
+run_lock_table = Table(
+    "run_lock", metadata,
+    Column("lock_id", Integer, primary_key=True),  # always 1: one run at a time per state store
+    Column("token", String(32), nullable=False),  # the holder's own random token
+    Column("pid", Integer, nullable=False),
+    Column("host", String(255), nullable=False),
+    Column("started_at", String(32), nullable=False),
+    Column("heartbeat", Float, nullable=False),  # Unix time of the holder's last sign of life
 )
 
 CROSSWALK_COLUMNS = ["source", "record_id", "entity_id", "record_hash"]
@@ -157,6 +175,9 @@ def state_engine(workspace: str | Path) -> Engine:
                 cursor = dbapi_connection.cursor()
                 cursor.execute("PRAGMA journal_mode=WAL")  # readers do not wait for a writing run
                 cursor.execute("PRAGMA foreign_keys=ON")
+                # a committed run survives power loss, not only a killed process (WAL's default,
+                # NORMAL, may lose the last commits when the machine stops)
+                cursor.execute("PRAGMA synchronous=FULL")
                 cursor.close()
         else:  # a server: a pooled connection it closed meanwhile (restart, idle timeout) is replaced, not used
             engine = create_engine(url, pool_pre_ping=True)
@@ -199,6 +220,7 @@ class NewRun:
     changes: pd.DataFrame | None = None
     output_dir: str | None = None
     report: str | None = None
+    run_id: int | None = None  # the number reserved with ``next_run_id`` (under the run lock)
 
 
 class StateStore:
@@ -228,8 +250,9 @@ class StateStore:
         crosswalk = crosswalk.astype(object).where(crosswalk.notna(), None)
         try:
             with self.engine.begin() as conn:
+                numbered = {} if run.run_id is None else {"run_id": int(run.run_id)}
                 run_id = int(conn.execute(insert(run_table).values(
-                    started_at=run.started_at, finished_at=now_iso(), records=len(crosswalk),
+                    **numbered, started_at=run.started_at, finished_at=now_iso(), records=len(crosswalk),
                     entities=int(run.crosswalk["entity_id"].nunique()), output_dir=run.output_dir,
                     report=run.report, summary=json.dumps(run.summary, sort_keys=True),
                 )).inserted_primary_key[0])
@@ -237,15 +260,23 @@ class StateStore:
                          for p, h in sorted(run.mapping_hashes.items())]
                 files += [{"run_id": run_id, "kind": "input", "path": p, "sha256": h}
                           for p, h in sorted(run.input_hashes.items())]
+                reached("state:run")
                 if files:
                     conn.execute(insert(run_file_table), files)
                 self._insert(conn, run_crosswalk_table, crosswalk.assign(run_id=run_id))
+                reached("state:crosswalk")
                 if run.changes is not None and len(run.changes):
                     changes = run.changes.reindex(columns=CHANGE_TABLE_COLUMNS).assign(run_id=run_id)
                     self._insert(conn, run_change_table, changes.astype(object).where(changes.notna(), None))
         except SQLAlchemyError as exc:
             raise StateError(f"could not record the run in {shown_url(str(self.engine.url))}: {exc}") from exc
+        reached("state:commit")
         return run_id
+
+    def next_run_id(self) -> int:
+        """The number the next recorded run gets (reserve it only while holding the run lock)."""
+        rows = self._read(select(func.max(run_table.c.run_id).label("last")))
+        return int(rows[0]["last"] or 0) + 1
 
     @staticmethod
     def _insert(conn: Any, table: Table, frame: pd.DataFrame) -> None:
@@ -343,3 +374,110 @@ class RunHistory:
     @property
     def previous_run_id(self) -> int | None:
         return None if self.previous is None else self.previous.run_id
+
+
+LOCK_STALE_SECONDS = 60.0  # a holder silent this long is taken to be dead, on any host
+HEARTBEAT_SECONDS = 5.0
+
+
+class RunLocked(IntegrateError):
+    """Another run holds this workspace's run lock."""
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True  # it exists, under another user
+    except OSError:
+        return True
+    return True
+
+
+class RunLock:
+    """One run at a time per workspace: a row in the state store, kept fresh by a heartbeat.
+
+    A holder that was killed leaves its row behind; the next run takes it over at once when the
+    holder ran on the same host and its process is gone, or when its heartbeat is older than
+    ``LOCK_STALE_SECONDS`` (a holder on another host, or a reused process number).
+
+    Example:
+        >>> import tempfile
+        >>> store = StateStore.for_workspace(tempfile.mkdtemp())
+        >>> with RunLock(store):
+        ...     RunLock(store).acquire()
+        Traceback (most recent call last):
+        ...
+        integrate.state.RunLocked: another run of this workspace is in progress ...
+    """
+
+    def __init__(self, store: StateStore) -> None:
+        self.store = store
+        self.token = uuid.uuid4().hex
+        self.host = socket.gethostname()[:255]
+        self._stop = threading.Event()
+        self._beat: threading.Thread | None = None
+
+    def _stale(self, row: dict[str, Any]) -> bool:
+        if time.time() - float(row["heartbeat"]) > LOCK_STALE_SECONDS:
+            return True
+        return row["host"] == self.host and not _alive(int(row["pid"]))
+
+    def _refusal(self, row: dict[str, Any] | None) -> RunLocked:
+        who = (f" (process {row['pid']} on {row['host']}, started {row['started_at']}, "
+               f"last seen {max(0.0, time.time() - float(row['heartbeat'])):.0f} s ago)") if row else ""
+        return RunLocked(f"another run of this workspace is in progress{who}; wait for it to finish "
+                         f"(a run that was killed frees the lock at once on this host, "
+                         f"elsewhere after {LOCK_STALE_SECONDS:.0f} s)")
+
+    def _holder(self) -> dict[str, Any] | None:
+        rows = self.store._read(select(run_lock_table).where(run_lock_table.c.lock_id == 1))
+        return rows[0] if rows else None
+
+    def acquire(self) -> RunLock:
+        t = run_lock_table
+        try:
+            with self.store.engine.begin() as conn:
+                row = conn.execute(select(t).where(t.c.lock_id == 1)).mappings().first()
+                if row is not None and not self._stale(dict(row)):
+                    raise self._refusal(dict(row))
+                if row is not None:
+                    conn.execute(delete(t).where(t.c.lock_id == 1, t.c.token == row["token"]))
+                conn.execute(insert(t).values(lock_id=1, token=self.token, pid=os.getpid(), host=self.host,
+                                              started_at=now_iso(), heartbeat=time.time()))
+        except SQLAlchemyError as exc:  # the other run inserted its row first
+            raise self._refusal(self._holder()) from exc
+        self._stop.clear()
+        self._beat = threading.Thread(target=self._heartbeat, name="run-lock-heartbeat", daemon=True)
+        self._beat.start()
+        return self
+
+    def _heartbeat(self) -> None:
+        t = run_lock_table
+        while not self._stop.wait(HEARTBEAT_SECONDS):
+            try:
+                with self.store.engine.begin() as conn:
+                    conn.execute(update(t).where(t.c.lock_id == 1, t.c.token == self.token)
+                                 .values(heartbeat=time.time()))
+            except SQLAlchemyError:
+                continue  # busy database: the next beat tries again, well within the stale limit
+
+    def release(self) -> None:
+        self._stop.set()
+        if self._beat is not None:
+            self._beat.join()
+            self._beat = None
+        t = run_lock_table
+        try:
+            with self.store.engine.begin() as conn:
+                conn.execute(delete(t).where(t.c.lock_id == 1, t.c.token == self.token))
+        except SQLAlchemyError:
+            pass  # the row stays; the next run sees this process gone and takes the lock over
+
+    def __enter__(self) -> RunLock:
+        return self.acquire()
+
+    def __exit__(self, *_exc: object) -> None:
+        self.release()

@@ -70,7 +70,9 @@ def main(args: argparse.Namespace) -> int:
 
         if args.audit < 1:
             raise InputError(f"--audit needs a positive number of pairs, not {args.audit}", reason="bad_option")
-        pairs_path = ws.output_dir / "pairs.parquet"
+        from ..outputs.publish import current_output_folder
+
+        pairs_path = current_output_folder(ws.root, default=ws.output_dir) / "pairs.parquet"
         if not pairs_path.exists():
             raise InputError("no candidate pairs from a run", file=str(pairs_path), reason="missing_file",
                              hint="run 'integrate run' on this workspace first")

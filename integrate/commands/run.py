@@ -17,6 +17,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     run.add_argument("--scheduler", metavar="ADDRESS",
                      help="with --engine dask: a running Dask scheduler, e.g. tcp://10.0.0.5:8786 "
                           "(default: a local cluster of two worker processes)")
+    run.add_argument("--keep-runs", type=int, metavar="N",
+                     help="run folders to keep in the output folder (default: INTEGRATE_KEEP_RUNS or 3)")
     run.set_defaults(func=main)
 
 
@@ -24,8 +26,8 @@ def main(args: argparse.Namespace) -> int:
     from ..pipeline import STAGES, run_pipeline
 
     with stage_progress(STAGES) as progress:
-        result = run_pipeline(args.workspace, progress=progress, output_dir=args.out, engine=args.engine,
-                              scheduler=args.scheduler)
+        result = run_pipeline(args.workspace, progress=progress, output_dir=args.out,
+                              keep_runs=args.keep_runs, engine=args.engine, scheduler=args.scheduler)
     records = sum(result.source_counts.values())
     decisions = result.pairs["decision"].value_counts()
     print(f"{records} records from {len(result.source_counts)} sources -> {len(result.merged)} entities")
@@ -42,7 +44,7 @@ def main(args: argparse.Namespace) -> int:
         print(f"{len(result.failures)} values could not be read and were left empty (see failures.csv)")
     for warning in result.warnings:
         print(f"warning: {warning}", file=sys.stderr)
-    print(f"outputs: {result.output_dir}")
+    print(f"outputs: {result.output_dir} (run {result.run_id}: {result.run_dir})")
     print(f"report:  {result.report_path}")
     print("Review merges before acting on them; these files hold personal data.")
     return 0

@@ -26,17 +26,9 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def output_folder(workspace: str | Path, out: str | None) -> Path:
     """The folder holding the outputs to read: ``out``, else the last recorded run's, else the schema's."""
-    if out:
-        return Path(out)
-    from ..state import StateStore
+    from ..outputs.publish import current_output_folder
 
-    store = StateStore.existing(workspace)
-    last = store.last_run() if store is not None else None
-    if last is not None and last.output_dir:
-        return Path(last.output_dir)
-    from ..workspace import load_workspace
-
-    return load_workspace(workspace).output_dir
+    return current_output_folder(workspace, out)
 
 
 def _read(folder: Path, name: str, entity_id: str | None = None, record_ids: list[str] | None = None

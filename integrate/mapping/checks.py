@@ -220,7 +220,9 @@ def check_workspace(root: str | Path = ".", *, crosswalk: pd.DataFrame | None = 
         feeds = [f for f in _numeric_feeds(loaded) if f.source in report.records]
         report.add(range_findings(records, canonical, feeds, data_files))
         report.add(compare_distributions(records, canonical, feeds, locate))
-        crosswalk_path = ws.output_dir / CROSSWALK_FILE
+        from ..outputs.publish import current_output_folder  # the last run's folder, wherever --out put it
+
+        crosswalk_path = current_output_folder(ws.root, default=ws.output_dir) / CROSSWALK_FILE
         if crosswalk is None and use_last_run and crosswalk_path.is_file():
             crosswalk = _read_crosswalk(crosswalk_path, report)
             report.linked_from = ws.display(crosswalk_path) if crosswalk is not None else None

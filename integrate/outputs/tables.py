@@ -1,7 +1,12 @@
-"""Write output tables atomically: every file goes to a temporary name first, then is renamed."""
+"""Write output files atomically and durably: a temporary name first, fsync, then a rename.
+
+Every CSV and Excel file written here has its formula-like text cells quoted (``cells.py``);
+Parquet files keep the values as they are (no spreadsheet opens them).
+"""
 
 from __future__ import annotations
 
+import csv
 import os
 import tempfile
 from collections.abc import Callable
@@ -9,16 +14,48 @@ from pathlib import Path
 
 import pandas as pd
 
+from ..killpoints import reached
+from .cells import neutralise_frame
 
-def write_atomic(path: Path, write: Callable[[Path], None]) -> None:
-    """Call ``write`` on a temporary file beside ``path``, then rename it into place."""
-    path.parent.mkdir(parents=True, exist_ok=True)
+
+def fsync_file(path: Path) -> None:
+    """Flush a file's content to the disk."""
+    fd = os.open(path, os.O_RDONLY)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+def fsync_dir(path: Path) -> None:
+    """Flush a folder's entries (names created, renamed or removed in it) to the disk (POSIX)."""
+    try:
+        fd = os.open(path, os.O_RDONLY | getattr(os, "O_DIRECTORY", 0))
+    except OSError:
+        return  # a platform that cannot open folders (Windows): its renames are journalled instead
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass  # some file systems refuse fsync on a folder; nothing more can be done there
+    finally:
+        os.close(fd)
+
+
+def _temporary(path: Path) -> Path:
     fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     os.close(fd)
-    tmp = Path(tmp_name)
+    return Path(tmp_name)
+
+
+def write_atomic(path: Path, write: Callable[[Path], None]) -> None:
+    """Call ``write`` on a temporary file beside ``path``, fsync it, then rename it into place."""
+    path.parent.mkdir(parents=True, exist_ok=True)
+    tmp = _temporary(path)
     try:
         write(tmp)
+        fsync_file(tmp)
         os.replace(tmp, path)
+        fsync_dir(path.parent)
     finally:
         if tmp.exists():
             tmp.unlink()
@@ -36,10 +73,49 @@ def _parquet_ready(frame: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
+def _has_carriage_return(frame: pd.DataFrame) -> bool:
+    text = [c for c in frame.columns if frame[c].dtype == object or isinstance(frame[c].dtype, pd.StringDtype)]
+    return any(bool(frame[c].astype("string").str.contains("\r", regex=False).fillna(False).any()) for c in text)
+
+
+def write_csv(frame: pd.DataFrame, path: Path) -> None:
+    """A CSV with formula-like text cells quoted.
+
+    Python's CSV writer does not put a value holding a bare carriage return in quotes when lines
+    end in ``\n``, so a reader would cut the row there; such a table gets every field quoted.
+    """
+    safe = neutralise_frame(frame)
+    if _has_carriage_return(safe):
+        safe.to_csv(path, index=False, quoting=csv.QUOTE_ALL)
+    else:
+        safe.to_csv(path, index=False)
+
+
+def write_xlsx(sheets: dict[str, pd.DataFrame], path: Path) -> None:
+    """An Excel workbook, one sheet per frame, atomically; text is never stored as a formula.
+
+    Text cells go in as strings (``strings_to_formulas`` off) and formula-like ones get a quote
+    as in CSV files, so a spreadsheet neither runs them nor shows them as formulas when re-saved.
+    """
+    def write(tmp: Path) -> None:
+        try:
+            import xlsxwriter  # noqa: F401 - the 'excel' extra: never turns text into formulas
+            options: dict = {"engine": "xlsxwriter", "engine_kwargs": {
+                "options": {"strings_to_formulas": False, "strings_to_urls": False}}}
+        except ImportError:
+            options = {"engine": "openpyxl"}  # text starting with '=' would be a formula: the quote guards it
+        with pd.ExcelWriter(tmp, **options) as writer:
+            for name, frame in sheets.items():
+                neutralise_frame(frame).to_excel(writer, sheet_name=str(name)[:31], index=False)
+
+    write_atomic(path, write)
+
+
 def write_tables(folder: Path, tables: dict[str, tuple[pd.DataFrame, tuple[str, ...]]]) -> list[Path]:
     """Write each table in its formats ("csv", "parquet"); all temporary files are made first.
 
-    A failure while writing any table leaves every previous output untouched.
+    Each file is fsynced before the renames, the folder after them. A failure while writing any
+    table leaves every previous output in ``folder`` untouched.
     """
     folder.mkdir(parents=True, exist_ok=True)
     staged: list[tuple[Path, Path]] = []
@@ -47,18 +123,20 @@ def write_tables(folder: Path, tables: dict[str, tuple[pd.DataFrame, tuple[str, 
         for name, (frame, formats) in tables.items():
             for fmt in formats:
                 final = folder / f"{name}.{fmt}"
-                fd, tmp_name = tempfile.mkstemp(prefix=f".{final.name}.", suffix=".tmp", dir=folder)
-                os.close(fd)
-                tmp = Path(tmp_name)
+                tmp = _temporary(final)
                 staged.append((tmp, final))
                 if fmt == "csv":
-                    frame.to_csv(tmp, index=False)
+                    write_csv(frame, tmp)
                 elif fmt == "parquet":
                     _parquet_ready(frame).to_parquet(tmp, index=False)
                 else:
                     raise ValueError(f"unknown table format '{fmt}'")
+                fsync_file(tmp)
+                reached("write:file")
         for tmp, final in staged:
             os.replace(tmp, final)
+            reached("write:rename")
+        fsync_dir(folder)
     finally:
         for tmp, _ in staged:
             if tmp.exists():

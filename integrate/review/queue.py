@@ -118,7 +118,9 @@ def order_queue(pairs: pd.DataFrame, crosswalk: pd.DataFrame | None = None,
 def load_review_data(workspace: str | Path) -> ReviewData:
     """Load the last run's pairs and records of a workspace for reviewing."""
     ws = load_workspace(workspace)
-    out = ws.output_dir
+    from ..outputs.publish import current_output_folder
+
+    out = current_output_folder(ws.root, default=ws.output_dir)  # the last run's folder, wherever --out put it
     pairs = order_pairs(_read_output(out / "pairs.parquet", "candidate pairs"))
     records = _read_output(out / "records.parquet", "canonical records")
     # sorted indexes: look-ups from the server's worker threads never touch an unsorted MultiIndex
