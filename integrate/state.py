@@ -54,6 +54,7 @@ from sqlalchemy import (
     func,
     insert,
     select,
+    text,
     update,
 )
 from sqlalchemy.engine import make_url
@@ -256,6 +257,11 @@ class StateStore:
                     entities=int(run.crosswalk["entity_id"].nunique()), output_dir=run.output_dir,
                     report=run.report, summary=json.dumps(run.summary, sort_keys=True),
                 )).inserted_primary_key[0])
+                if numbered and conn.dialect.name == "postgresql":
+                    # An explicit number does not advance PostgreSQL's serial counter; move it on so a
+                    # later run recorded without a reserved number does not collide with this one.
+                    conn.execute(text("SELECT setval(pg_get_serial_sequence('run', 'run_id'), "
+                                      "(SELECT MAX(run_id) FROM run))"))
                 files = [{"run_id": run_id, "kind": "mapping", "path": p, "sha256": h}
                          for p, h in sorted(run.mapping_hashes.items())]
                 files += [{"run_id": run_id, "kind": "input", "path": p, "sha256": h}
