@@ -28,7 +28,7 @@ from .mapping.money import RatesTable, load_rates
 from .matching import MatchResult, match_records
 from .resolve import check_orders, resolve, source_pair_conflicts
 from .score import ScoreModel
-from .sources import read_source
+from .sources import add_read_failures, read_source
 from .state import NewRun, RunHistory, input_hashes
 from .workspace import Workspace, load_workspace
 
@@ -122,9 +122,9 @@ def read_and_map(ws: Workspace, progress: Progress = _quiet) -> tuple[pd.DataFra
         data_file = ws.display(data_path) if data_path else str(mapping.read.url)
         try:
             raw = read_source(mapping.read, ws.root, name=mapping.source)
-            mapped.append(apply_mapping(raw, mapping, ws.canonical, rates, data_file=data_file,
-                                        mapping_file=ws.display(entry.mapping_file),
-                                        mapping_path=entry.mapping_file))
+            mapped.append(add_read_failures(apply_mapping(raw, mapping, ws.canonical, rates, data_file=data_file,
+                                                          mapping_file=ws.display(entry.mapping_file),
+                                                          mapping_path=entry.mapping_file), raw, data_file))
         except InputErrors as many:
             problems.extend(many.errors)
         except InputError as one:

@@ -197,7 +197,11 @@ def apply_mapping(
     problems.extend(missing)
     raw = raw.reset_index(drop=True)
     absent = [str(p.value) for p in missing]
-    raw = raw.assign(**{c: pd.Series(pd.NA, index=raw.index, dtype="string") for c in absent})
+    read_later = _columns_read(mapping)
+    absent = [c for c in absent if c in read_later]  # an ignored column is never read: no need to add it
+    if absent:  # one concat, not one insert per column (quadratic with thousands of absent columns)
+        blank = pd.DataFrame({c: pd.Series(pd.NA, index=raw.index, dtype="string") for c in absent})
+        raw = pd.concat([raw, blank], axis=1)
     rows = raw[ROW]
     collect = _Collector(mapping.source, data_file, rows)
     out = empty_canonical(canonical).reindex(range(len(raw)))
@@ -243,6 +247,16 @@ def apply_mapping(
             raise _fatal_errors(fatal)
         problems.extend(_fatal_errors(fatal).errors)
     return MappedSource(mapping.source, out, failures, unmapped, problems)
+
+
+def _columns_read(mapping: SourceMapping) -> set[str]:
+    """Source columns apply_mapping reads: the record ID and date, and what non-ignored entries use."""
+    used = {mapping.record_id} | ({mapping.record_date} if mapping.record_date else set())
+    for column, entry in mapping.column_maps().items():
+        if not entry.ignore:
+            used.add(column)
+            used.update(c for c in (entry.unit_column, entry.currency_column, entry.priced_on) if c)
+    return used
 
 
 def _parse_date_column(raw: pd.DataFrame, column: str, mapping: SourceMapping, mapping_file: str,

@@ -17,13 +17,13 @@ import pandas as pd
 
 from ..columns import RECORD_ID, SOURCE
 from ..errors import InputError, InputErrors, MappingError
-from ..sources import read_source
+from ..sources import add_read_failures, read_source
 from ..workspace import CANONICAL_FILE, MAPPINGS_DIR, SourceEntry, Workspace
 from .apply import FATAL_REASONS, MappedSource, apply_mapping
 from .distribution import NumericFeed, compare_distributions, compare_linked, numeric_fields, range_findings
 from .factors import explanations_for
 from .findings import LEVELS, CheckReport, Finding, rows_text
-from .load import load_canonical, load_source_mapping, position_of
+from .load import load_canonical, load_source_mapping, locate_in, position_of, read_yaml
 from .meanings import field_meanings, meaning_findings
 from .money import RatesTable, load_rates
 from .redundancy import redundant_columns
@@ -94,17 +94,27 @@ class _Locator:
     def __init__(self, ws: Workspace) -> None:
         self.ws = ws
         self.files = {e.mapping.source: e.mapping_file for e in ws.sources}
+        self.roots: dict[Path, object] = {}  # each file parsed once, however many findings point into it
+
+    def _at(self, path: Path, *loc: str) -> tuple[int | None, int | None]:
+        if path not in self.roots:
+            try:
+                self.roots[path] = read_yaml(path)
+            except MappingError:
+                self.roots[path] = None
+        root = self.roots[path]
+        return (None, None) if root is None else locate_in(root, *loc)
 
     def __call__(self, source: str, column: str) -> tuple[str | None, int | None, int | None]:
         if not source:
             path = self.ws.canonical_file
-            return (self.ws.display(path), *position_of(path, "fields", column))
+            return (self.ws.display(path), *self._at(path, "fields", column))
         path = self.files.get(source)
         if path is None:
             return None, None, None
-        line, col = position_of(path, "columns", column)
+        line, col = self._at(path, "columns", column)
         if line is None:
-            line, col = position_of(path, "columns")
+            line, col = self._at(path, "columns")
         return self.ws.display(path), line, col
 
 
@@ -198,6 +208,7 @@ def check_workspace(root: str | Path = ".", *, crosswalk: pd.DataFrame | None = 
         mapped = apply_mapping(raw, mapping, canonical, loaded.rates, data_file=data_file,
                                mapping_file=ws.display(entry.mapping_file), mapping_path=entry.mapping_file,
                                on_error="collect")
+        mapped = add_read_failures(mapped, raw, data_file)
         report.records[mapping.source] = len(mapped.frame)
         report.add(Finding.from_error(e, mapping.source) for e in mapped.problems)
         if mapped.unmapped_columns:
