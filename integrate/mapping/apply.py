@@ -374,6 +374,12 @@ def _convert(values: pd.Series, entry: ColumnMap, column: str, target: str, raw:
                                             max_age_days=canonical.rate_max_age_days)
         collect.add(failures, column)
         return converted
+    if spec.type == "email":
+        from ..standardise import check_emails
+
+        valid, failures = check_emails(values)  # '=1+2' or '<script>' are failures, not addresses
+        collect.add(failures, column)
+        return valid
     return values.str.strip().replace("", pd.NA).astype("string")
 
 

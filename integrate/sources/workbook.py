@@ -59,7 +59,9 @@ def read_workbook(path: Path, spec: ReadSpec, src: SourceFile) -> pd.DataFrame:
             cells = list(sheet.iter_rows(min_row=1, values_only=True))
             formulas: list[tuple[object, ...]] = []
             if has_formulas:
-                book.data_only = False  # the parser reads this flag: the same sheet again, formulas as text
+                # the sheet parser reads this flag (openpyxl 3.1 has no setter): the same sheet again,
+                # formulas as text; tests/bad_input/test_lost_values.py fails if this stops working
+                book._data_only = False
                 formulas = list(sheet.iter_rows(min_row=1, values_only=True))
         except SourceError:
             raise
