@@ -24,6 +24,7 @@ from .errors import InputError, InputErrors
 from .evaluate import Evaluation, evaluate, hard_negatives, read_crosswalk_file
 from .ids import ChangeSummary, assign_stable_ids, canonical_order, record_hashes
 from .mapping.apply import FAILURE_COLUMNS, MappedSource, apply_mapping
+from .mapping.checks import no_records_text
 from .mapping.money import RatesTable, load_rates
 from .matching import MatchResult, match_records
 from .resolve import check_orders, resolve, source_pair_conflicts
@@ -134,6 +135,10 @@ def read_and_map(ws: Workspace, progress: Progress = _quiet) -> tuple[pd.DataFra
     if problems:
         raise problems[0] if len(problems) == 1 else InputErrors(problems)
     progress("map")
+    if mapped and all(m.frame.empty for m in mapped):
+        raise InputError("no source has any records (each file holds a header row only)",
+                         file=ws.display(ws.root / "mappings"), reason="no_records",
+                         hint="check that the exports are complete")
     records = pd.concat([m.frame for m in mapped], ignore_index=True)
     return records, mapped
 
@@ -241,6 +246,7 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
         clusters=cluster_table(match.entities, records), changes=changes, entity_changes=entity_changes,
         conflict_pairs=conflict_pairs, quality=judge_against_truth(ws, records, match, crosswalk),
     )
+    result.warnings += [no_records_text(m.name) for m in mapped if m.frame.empty]
     for name, columns in result.unmapped.items():
         result.warnings.append(f"source '{name}': columns not mentioned in its mapping: {', '.join(columns)}")
     if write:

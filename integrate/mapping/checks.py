@@ -30,6 +30,11 @@ from .redundancy import redundant_columns
 from .spec import CanonicalSchema
 
 CROSSWALK_FILE = "crosswalk.csv"
+NO_RECORDS_HINT = "check that the export is complete; a source with no records adds nothing to the run"
+
+
+def no_records_text(source: str) -> str:
+    return f"source '{source}' has no records (a header row only, or only blank rows)"
 
 
 @dataclass
@@ -210,6 +215,9 @@ def check_workspace(root: str | Path = ".", *, crosswalk: pd.DataFrame | None = 
                                on_error="collect")
         mapped = add_read_failures(mapped, raw, data_file)
         report.records[mapping.source] = len(mapped.frame)
+        if mapped.frame.empty:
+            report.add([Finding("warning", "no_records", no_records_text(mapping.source), data_file,
+                                source=mapping.source, hint=NO_RECORDS_HINT)])
         report.add(Finding.from_error(e, mapping.source) for e in mapped.problems)
         if mapped.unmapped_columns:
             file, line, col = locate(mapping.source, "")

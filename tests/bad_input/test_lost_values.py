@@ -17,7 +17,8 @@ from integrate.standardise import check_emails, is_email
 
 def test_nul_byte_inside_a_csv_value_is_kept(tmp_path: Path) -> None:
     """Reproducer: 'Iv\\x00an' was read as 'Iv', 'ivan.\\x00tran53@...' as 'ivan.' (exit 0, no failure)."""
-    (tmp_path / "p.csv").write_bytes(b'id,name,email\n1,Iv\x00an,ivan.\x00tran53@post.example.org\n2,"Bo\x00b",b@x.org\n')
+    data = b'id,name,email\n1,Iv\x00an,ivan.\x00tran53@post.example.org\n2,"Bo\x00b",b@x.org\n'
+    (tmp_path / "p.csv").write_bytes(data)
     frame = read_source(ReadSpec(format="csv", path="p.csv"), tmp_path, name="crm")
     assert frame["name"].tolist() == ["Iv\x00an", "Bo\x00b"]
     assert frame["email"].tolist() == ["ivan.\x00tran53@post.example.org", "b@x.org"]

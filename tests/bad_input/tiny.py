@@ -73,3 +73,12 @@ def assert_clean_error(proc: subprocess.CompletedProcess[str], *needles: str) ->
     for needle in needles:
         assert needle in proc.stderr, (needle, proc.stderr[-3000:])
     return proc.stderr
+
+
+def assert_check_error(proc: subprocess.CompletedProcess[str], *needles: str) -> str:
+    """``check`` lists its findings on stdout: exit 2, no traceback, an 'error:' line holding every needle."""
+    assert proc.returncode == 2, (proc.returncode, proc.stdout[-3000:], proc.stderr[-3000:])
+    assert "Traceback" not in proc.stderr + proc.stdout, proc.stderr[-3000:]
+    errors = [line for line in proc.stdout.splitlines() if line.startswith("error:")]
+    assert any(all(n in line for n in needles) for line in errors), (needles, errors[:5])
+    return "\n".join(errors)
