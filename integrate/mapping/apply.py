@@ -372,6 +372,10 @@ def _convert(values: pd.Series, entry: ColumnMap, column: str, target: str, raw:
                 "missing_rates", "set 'rates:' in canonical.yaml to a dated rates CSV", line, col)
         converted, failures = convert_money(amounts, currencies, dates, canonical.base_currency, rates,
                                             max_age_days=canonical.rate_max_age_days)
+        if entry.currency_column and not failures.empty:  # name the column the code came from
+            unknown = failures["reason"] == "unknown_currency"
+            failures.loc[unknown, "message"] = (f"currency column '{entry.currency_column}': "
+                                                + failures.loc[unknown, "message"].astype(str))
         collect.add(failures, column)
         return converted
     if spec.type == "email":
@@ -381,6 +385,12 @@ def _convert(values: pd.Series, entry: ColumnMap, column: str, target: str, raw:
         collect.add(failures, column)
         return valid
     return values.str.strip().replace("", pd.NA).astype("string")
+
+
+_FATAL_HINTS = {
+    "unknown_currency": "currency codes are the three letters of ISO 4217 (EUR, GBP, USD...); fix the value "
+                        "or map the column's codes with 'values'",
+}
 
 
 def _fatal_errors(fatal: pd.DataFrame) -> InputErrors:
@@ -393,7 +403,7 @@ def _fatal_errors(fatal: pd.DataFrame) -> InputErrors:
             ConversionError(
                 f"{first['message']} ({len(group)} rows: {rows}{more})",
                 file=str(first["file"]), line=int(first["row"]), column=str(column),
-                value=first["value"], reason=str(reason),
+                value=first["value"], reason=str(reason), hint=_FATAL_HINTS.get(str(reason)),
             )
         )
     return InputErrors(problems)

@@ -10,12 +10,13 @@ entity are compared across sources too.
 
 from __future__ import annotations
 
+import datetime as dt
 from dataclasses import dataclass
 from pathlib import Path
 
 import pandas as pd
 
-from ..columns import RECORD_ID, SOURCE
+from ..columns import RECORD_ID, ROW, SOURCE
 from ..errors import InputError, InputErrors, MappingError
 from ..sources import add_read_failures, read_source
 from ..workspace import CANONICAL_FILE, MAPPINGS_DIR, SourceEntry, Workspace
@@ -234,6 +235,7 @@ def check_workspace(root: str | Path = ".", *, crosswalk: pd.DataFrame | None = 
         records = pd.concat(frames, ignore_index=True)
         feeds = [f for f in _numeric_feeds(loaded) if f.source in report.records]
         report.add(range_findings(records, canonical, feeds, data_files))
+        report.add(birth_date_findings(records, canonical, data_files, _Locator(ws)))
         report.add(compare_distributions(records, canonical, feeds, locate))
         crosswalk_path = ws.output_dir / CROSSWALK_FILE
         if crosswalk is None and use_last_run and crosswalk_path.is_file():
@@ -276,4 +278,37 @@ def run_value_findings(records: pd.DataFrame, ws: Workspace, crosswalk: pd.DataF
     found += compare_distributions(records, ws.canonical, feeds, locate)
     if crosswalk is not None:
         found += compare_linked(records, _entity_ids(records, crosswalk), ws.canonical, feeds, locate)
+    return found
+
+
+OLDEST_AGE = 130  # years: no one alive is older (the oldest verified age is 122, common practice)
+
+
+def birth_date_findings(records: pd.DataFrame, canonical: CanonicalSchema, data_files: dict[str, str],
+                        locate: _Locator, today: dt.date | None = None) -> list[Finding]:
+    """Birth dates in the future or more than 130 years back, per source and field, with their rows.
+
+    A field is a birth date when its name or meaning says 'birth'. Dates are ISO 8601 text after
+    mapping (``1987-03-04``, or a year alone).
+    """
+    today = today or dt.datetime.now(dt.UTC).date()
+    found: list[Finding] = []
+    for name, spec in canonical.fields.items():
+        if spec.type != "date" or "birth" not in f"{name} {spec.meaning}".lower() or name not in records:
+            continue
+        text = records[name].astype("string")
+        year = pd.to_numeric(text.str.slice(0, 4), errors="coerce")
+        full = pd.to_datetime(text.where(text.str.len() >= 10).str.slice(0, 10), errors="coerce", format="%Y-%m-%d")
+        future = (full > pd.Timestamp(today)) | (year > today.year)
+        old = year < today.year - OLDEST_AGE
+        for label, bad in (("in the future", future.fillna(False)), (f"more than {OLDEST_AGE} years ago",
+                                                                     old.fillna(False))):
+            for source, group in records[bad.to_numpy(dtype=bool)].groupby(SOURCE, sort=True):
+                shown = ", ".join(str(v) for v in group[name].head(3))
+                found.append(Finding(
+                    "warning", "implausible_birth_date",
+                    f"{len(group)} value(s) of '{name}' are {label} ({rows_text(group[ROW])}; e.g. {shown})",
+                    data_files.get(str(source)), int(group[ROW].iloc[0]), None, str(source),
+                    hint="check the values and the column's date format (a two-digit year read in the wrong "
+                    "century looks like this)"))
     return found

@@ -105,3 +105,29 @@ def test_explain_unknown_record(tmp_path: Path) -> None:
     root = make_workspace(tmp_path)
     write_csv(root / "desk.csv", people_rows())
     assert_clean_error(run_cli("explain", "desk:T003", "desk:NOPE", str(root)), "NOPE", "hint")
+
+
+def test_birth_dates_in_the_future_or_too_old_are_flagged(tmp_path: Path) -> None:
+    root = make_workspace(tmp_path)
+    rows = people_rows()
+    rows[1][4], rows[2][4], rows[3][4] = "2199-01-01", "1850-05-05", "1880-02-02"
+    write_csv(root / "desk.csv", rows)
+    proc = run_cli("check", str(root))
+    assert proc.returncode == 1 and "Traceback" not in proc.stderr, proc.stderr
+    lines = [line for line in proc.stdout.splitlines() if "birth_date" in line]
+    assert any("1 value(s) of 'birth_date' are in the future (row 3; e.g. 2199-01-01)" in x for x in lines), lines
+    assert any("2 value(s) of 'birth_date' are more than 130 years ago (rows 4, 5" in x for x in lines), lines
+    assert all("desk.csv:" in x and "hint" in x for x in lines)
+
+
+def test_unknown_currency_names_the_currency_column(tmp_path: Path) -> None:
+    canonical = "base_currency: GBP\nrates: rates.csv\nfields:\n  given_name: {type: person_name, meaning: Given name.}\n" \
+                "  fee_gbp: {type: money, meaning: Fee paid.}\n"
+    (tmp_path / "mappings").mkdir()
+    (tmp_path / "mappings" / "canonical.yaml").write_text(canonical)
+    (tmp_path / "rates.csv").write_text("date,from,to,rate\n2026-01-01,EUR,GBP,0.85\n")  # invented rate
+    (tmp_path / "mappings" / "desk.yaml").write_text(
+        "source: desk\nread: {format: csv, path: desk.csv}\nrecord_id: id\nas_of: 2026-01-02\ncolumns:\n"
+        "  id: ignore\n  given: given_name\n  fee: {field: fee_gbp, currency_column: cur}\n  cur: ignore\n")
+    (tmp_path / "desk.csv").write_text("id,given,fee,cur\n1,Ana,10,GBP\n2,Bram,12,ZZQ\n")
+    assert_clean_error(run_cli("run", str(tmp_path)), "desk.csv:3", "currency column 'cur'", "'ZZQ'", "ISO 4217")
