@@ -121,7 +121,8 @@ def test_birth_dates_in_the_future_or_too_old_are_flagged(tmp_path: Path) -> Non
 
 
 def test_unknown_currency_names_the_currency_column(tmp_path: Path) -> None:
-    canonical = "base_currency: GBP\nrates: rates.csv\nfields:\n  given_name: {type: person_name, meaning: Given name.}\n" \
+    canonical = "base_currency: GBP\nrates: rates.csv\nfields:\n" \
+                "  given_name: {type: person_name, meaning: Given name.}\n" \
                 "  fee_gbp: {type: money, meaning: Fee paid.}\n"
     (tmp_path / "mappings").mkdir()
     (tmp_path / "mappings" / "canonical.yaml").write_text(canonical)
