@@ -38,6 +38,15 @@ from .columns import RECORD_DATE, RECORD_ID, SOURCE, TRUST
 from .errors import MappingError
 from .mapping.money import minor_units
 from .mapping.spec import CanonicalField, CanonicalSchema
+from .merged_values import (
+    CASED_TYPES,
+    DEFAULT_DECIMALS,
+    best_cased,
+    date_precision,
+    drop_reduced_dates,
+    round_half_away,
+    written_postcode,
+)
 from .text_normalise import clean_text, map_distinct
 
 PROVENANCE_COLUMNS = ["entity_id", "field", "value", "source", "record_id", "rule", "candidates",
@@ -123,18 +132,22 @@ def _sum_once(long: pd.DataFrame, name: str, spec: CanonicalField) -> pd.DataFra
     return once
 
 
+# money is added in integers of a millionth of the minor unit, then rounded once per entity
+MONEY_FINE_DIGITS = 6
+
+
 def _aggregate(long: pd.DataFrame, rule: str, ftype: str, digits: int) -> pd.DataFrame:
     if ftype == "money":
-        # integer minor units: exact sums, no float drift
-        scale = 10 ** digits
-        units = pd.Series(np.round(long["value"].to_numpy() * scale).astype(np.int64), index=long.index)
+        # integer units finer than the minor unit: exact sums, no float drift, and no payment
+        # rounded before it is added; the total is rounded once, half away from zero
+        fine = 10 ** MONEY_FINE_DIGITS
+        units = pd.Series(np.round(long["value"].to_numpy() * 10 ** digits * fine).astype(np.int64),
+                          index=long.index)
         total = units.groupby(long["entity_id"]).sum()
-        if rule == "sum":
-            value = total / scale
-        else:  # mean, rounded half away from zero in integers
-            count = units.groupby(long["entity_id"]).size()
-            t, c = total.to_numpy(), count.to_numpy()
-            value = pd.Series(np.sign(t) * ((2 * np.abs(t) + c) // (2 * c)) / scale, index=total.index)
+        count = units.groupby(long["entity_id"]).size() if rule == "mean" else pd.Series(1, index=total.index)
+        t, c = total.to_numpy(), count.to_numpy() * fine
+        minor = np.sign(t) * ((2 * np.abs(t) + c) // (2 * c))
+        value = pd.Series(minor / 10 ** digits, index=total.index)
     else:
         grouped = long.groupby("entity_id", sort=True)["value"]
         value = grouped.sum() if rule == "sum" else grouped.mean()
@@ -190,6 +203,8 @@ def resolve(records: pd.DataFrame, entity_ids: pd.Series, canonical: CanonicalSc
             year_only = (long["value"].str.len() == 4) & (spec.type == "date")
             long["_sortable"] = long["value"].where(~year_only, long["value"] + "-00-00")
         usable = long[~long["_excluded"]]
+        if spec.type == "date" and spec.resolve not in ("min", "max", "all"):
+            usable = drop_reduced_dates(usable)  # a full date beats a year alone
         digits = minor_units(canonical.base_currency) if spec.type == "money" else 0
         counted = usable
         if spec.resolve in AGGREGATE_RULES and spec.type in NUMERIC_TYPES:
@@ -205,17 +220,42 @@ def resolve(records: pd.DataFrame, entity_ids: pd.Series, canonical: CanonicalSc
                                    "_source": first["_source"].to_numpy(), "_rid": first["_rid"].to_numpy()})
         else:
             chosen = _pick(usable, spec.resolve, spec)
+            if spec.type in CASED_TYPES:
+                chosen = best_cased(usable, chosen)
+        if spec.resolve == "sum" and spec.empty_sum == "zero":
+            missing = merged.index.difference(pd.Index(chosen["entity_id"]))
+            chosen = pd.concat([chosen, pd.DataFrame({"entity_id": missing, "value": 0.0, "_source": "",
+                                                      "_rid": ""})], ignore_index=True)
         if spec.type == "money" and spec.resolve != "all":
             chosen = chosen.assign(value=chosen["value"].astype(float).round(digits))
+        elif spec.type == "quantity" and spec.resolve != "all":
+            places = DEFAULT_DECIMALS if spec.decimals is None else spec.decimals
+            chosen = chosen.assign(value=round_half_away(chosen["value"].astype(float).to_numpy(), places))
+        elif spec.type == "postcode" and spec.resolve != "all":
+            chosen = chosen.assign(value=map_distinct(chosen["value"].astype(str), written_postcode).to_numpy())
         merged[name] = pd.Series(chosen["value"].to_numpy(), index=chosen["entity_id"].to_numpy())
         prov_parts.append(_provenance(long, usable, counted, chosen, name, spec, digits, merged.index))
     merged = merged.reset_index()
     for name, spec in canonical.fields.items():
         numeric = spec.type in NUMERIC_TYPES and spec.resolve != "all"  # 'all' lists values as text
         merged[name] = merged[name].astype("float64" if numeric else "string")
+    merged = _with_counts(merged, records, ids, canonical)
     provenance = pd.concat(prov_parts, ignore_index=True) if prov_parts else pd.DataFrame(
         columns=PROVENANCE_COLUMNS)
     return merged, provenance
+
+
+def _with_counts(merged: pd.DataFrame, records: pd.DataFrame, ids: np.ndarray,
+                 canonical: CanonicalSchema) -> pd.DataFrame:
+    """``records`` and ``sources`` per entity after the ID, and ``<date>_precision`` after each date."""
+    members = pd.DataFrame({"entity_id": ids, "source": records[SOURCE].astype(str).to_numpy()})
+    grouped = members.groupby("entity_id")["source"]
+    merged.insert(1, "records", merged["entity_id"].map(grouped.size()).fillna(0).astype("int64"))
+    merged.insert(2, "sources", merged["entity_id"].map(grouped.nunique()).fillna(0).astype("int64"))
+    for name, spec in canonical.fields.items():
+        if spec.type == "date" and spec.resolve != "all":
+            merged.insert(merged.columns.get_loc(name) + 1, name + "_precision", date_precision(merged[name]))
+    return merged
 
 
 def _shown(values: pd.Series, spec: CanonicalField, digits: int) -> pd.Series:
@@ -279,7 +319,8 @@ def _why(out: pd.DataFrame, usable: pd.DataFrame, counted: pd.DataFrame, spec: C
     base = base.where(n != 1, "the only value")
     excluded = out["excluded"].fillna(0).astype(int)
     base = base.where(excluded == 0, base + "; " + excluded.astype(str) + " out of range left out")
-    return base.where(n > 0, "no usable value")
+    empty = "no amounts: 0 (empty_sum: zero)" if rule == "sum" and spec.empty_sum == "zero" else "no usable value"
+    return base.where(n > 0, empty)
 
 
 def source_pair_conflicts(records: pd.DataFrame, entity_ids: pd.Series, canonical: CanonicalSchema,

@@ -24,7 +24,12 @@ LINK, POSSIBLE, NON_LINK = "link", "possible link", "non-link"
 LABEL_SAME, LABEL_DIFFERENT = 1, 2  # codes of reviewed pairs passed to estimate (0: undecided)
 RANDOM_PAIRS = 100_000  # random record pairs drawn to estimate u (seeded)
 EM_MAX_ITER = 1000
-EM_TOLERANCE = 1e-7  # relative change of the log-likelihood that ends EM
+EM_TOLERANCE = 1e-7  # relative change of the log-likelihood that ends EM ...
+# ... together with this largest change, between two steps, of any grade pattern's match
+# probability: the likelihood alone flattens out while the match class still moves. (The non-match
+# classes may keep trading mass along a flat ridge of the likelihood long after; that hardly moves
+# a match probability, and these are what decide links.)
+PARAM_TOLERANCE = 1e-4
 PSEUDO_COUNT = 0.5  # added to every level's count so no probability is exactly 0 or 1
 # Share of relatives' pairs (one household or family) born on the same day. About one birth in 60
 # is a twin birth in the UK (common practice, recalled from memory), so roughly 3 in 100 sibling
@@ -109,18 +114,58 @@ def all_pairs_count(n: int, groups: np.ndarray | None) -> int:
     return int((sizes.sum() ** 2 - (sizes ** 2).sum()) // 2)
 
 
-def random_pairs(n: int, count: int, groups: np.ndarray | None = None, seed: int = SEED) -> pd.DataFrame:
-    """Random distinct record pairs (seeded); across groups only when groups are given."""
-    rng = np.random.default_rng(seed)
+def record_hashes(prepared: pd.DataFrame) -> np.ndarray:
+    """A 64-bit hash of each record's standardised values: what a record is, not where it sits."""
+    if prepared.shape[1] == 0:
+        return np.arange(len(prepared), dtype=np.uint64)
+    return pd.util.hash_pandas_object(prepared, index=False).to_numpy(np.uint64)
+
+
+def _mix(values: np.ndarray, salt: int) -> np.ndarray:
+    """SplitMix64's finaliser (Steele, Lea & Flood 2014) of values xor a salt: a fresh hash per salt."""
+    z = values ^ np.uint64((salt * 0x9E3779B97F4A7C15) & 0xFFFFFFFFFFFFFFFF)
+    z = (z ^ (z >> np.uint64(30))) * np.uint64(0xBF58476D1CE4E5B9)
+    z = (z ^ (z >> np.uint64(27))) * np.uint64(0x94D049BB133111EB)
+    return z ^ (z >> np.uint64(31))
+
+
+def random_pairs(n: int, count: int, groups: np.ndarray | None = None, seed: int = SEED,
+                 hashes: np.ndarray | None = None) -> pd.DataFrame:
+    """About ``count`` random distinct record pairs; across groups only when groups are given.
+
+    The pairs are drawn by record hash, not by position: in each of a few rounds the records are
+    put in the order of a salted hash of their values and each is paired with the next (the last
+    round keeps the share of its pairs it needs, chosen by a hash of the pair). Adding,
+    removing or reordering a handful of records changes a handful of pairs (at most two per
+    round per record), so the u estimates and the fit that rests on them stay put. Records with
+    equal values (equal hashes) are never paired with each other. When there are no more pairs
+    than ``count``, all of them are returned.
+    """
+    empty = pd.DataFrame({"i": np.zeros(0, np.int64), "j": np.zeros(0, np.int64)})
     if n < 2:
-        return pd.DataFrame({"i": np.zeros(0, np.int64), "j": np.zeros(0, np.int64)})
-    i = rng.integers(0, n, size=count * 2)
-    j = rng.integers(0, n, size=count * 2)
-    keep = i != j
-    if groups is not None:
-        keep &= groups[i] != groups[j]
-    i, j = i[keep][:count], j[keep][:count]
-    return pd.DataFrame({"i": np.minimum(i, j), "j": np.maximum(i, j)})
+        return empty
+    total = all_pairs_count(n, groups)
+    if total <= count:
+        i, j = np.triu_indices(n, 1)
+        keep = np.ones(len(i), bool) if groups is None else groups[i] != groups[j]
+        return pd.DataFrame({"i": i[keep].astype(np.int64), "j": j[keep].astype(np.int64)})
+    base = np.arange(n, dtype=np.uint64) if hashes is None else np.asarray(hashes, np.uint64)
+    # rounds of n - 1 neighbour pairs needed (before pairs within one group are dropped); the last,
+    # partial round keeps a share of its pairs chosen by pair hash, so the sample grows smoothly
+    rounds = count / ((n - 1) * (total / (n * (n - 1) / 2)))
+    parts = []
+    for r in range(int(np.ceil(rounds))):
+        order = np.argsort(_mix(base, seed + r), kind="stable")
+        a, b = order[:-1], order[1:]
+        keep = base[a] != base[b]
+        if r + 1 > rounds:
+            cut = np.uint64(min(int((rounds - r) * 2.0**64), 2**64 - 1))
+            keep &= _mix(base[a] ^ base[b], seed - r - 1) < cut
+        if groups is not None:
+            keep &= groups[a] != groups[b]
+        parts.append(np.column_stack([np.minimum(a, b)[keep], np.maximum(a, b)[keep]]))
+    both = np.unique(np.concatenate(parts), axis=0)
+    return pd.DataFrame({"i": both[:, 0].astype(np.int64), "j": both[:, 1].astype(np.int64)})
 
 
 def pattern_codes(matrix: np.ndarray) -> np.ndarray:
@@ -283,18 +328,22 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
         design[np.flatnonzero(present), offset[col] + G[present, col]] = 1.0
     converged = False
     previous = -np.inf
+    previous_params = None
     iteration = 0
     for iteration in range(1, EM_MAX_ITER + 1):  # noqa: B007 - the count is reported
         log_theta = np.column_stack([np.concatenate([np.log(theta[k][f]) for f in names]) for k in classes])
-        log_f = (design @ log_theta).T + np.log([shares[k] for k in classes])[:, None]
+        log_shares = np.log([shares[k] for k in classes])
+        log_f = (design @ log_theta).T + log_shares[:, None]
         log_f = np.where(allowed, log_f, -np.inf)
         log_total = np.logaddexp.reduce(log_f, axis=0)
         post = np.exp(log_f - log_total)
         likelihood = float((counts * log_total).sum())
-        if abs(likelihood - previous) <= EM_TOLERANCE * abs(likelihood):
+        params = post[classes.index(MATCH)]
+        steady = previous_params is not None and float(np.abs(params - previous_params).max()) <= PARAM_TOLERANCE
+        if steady and abs(likelihood - previous) <= EM_TOLERANCE * abs(likelihood):
             converged = True
             break
-        previous = likelihood
+        previous, previous_params = likelihood, params
         weighted = post * counts  # classes x patterns
         level_counts = design.T @ weighted.T  # levels x classes
         for c, k in enumerate(classes):
@@ -417,7 +466,7 @@ def score(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchem
         grades = compare(prepared, pairs, canonical)
     field_types = {f: canonical.fields[f].type for f in grades.columns}
     joint, types = model_grades(grades, field_types)
-    sample = random_pairs(len(prepared), RANDOM_PAIRS, groups)
+    sample = random_pairs(len(prepared), RANDOM_PAIRS, groups, hashes=record_hashes(prepared))
     random_joint, _ = model_grades(compare(prepared, sample, canonical), field_types)
     u_random = {f: _level_freq(random_joint[f].to_numpy(np.int64), _levels(types[f])) for f in joint.columns}
     if len(joint):

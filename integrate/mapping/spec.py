@@ -63,6 +63,13 @@ class CanonicalField(_Strict):
         None, min_length=1, description="For 'first_non_empty': source names, most preferred first "
         "(sources not listed come after them, by trust rank)."
     )
+    decimals: int | None = Field(
+        None, ge=0, le=10, description="Decimal places of a quantity's merged value (default 2); money always "
+        "has its currency's ISO 4217 minor units."
+    )
+    empty_sum: Literal["empty", "zero"] = Field(
+        "empty", description="For 'sum': an entity whose records carry no amount is left empty, or sums to zero."
+    )
     same_transaction: list[str] | None = Field(
         None, min_length=1, description="For 'sum': records of one entity that agree on all of these are one "
         "transaction exported twice and count once. Keys: 'source', 'record_date' or canonical field names "

@@ -1,4 +1,9 @@
-"""The HTML run report: one self-contained file (inline CSS and SVG charts, no scripts, no downloads)."""
+"""The HTML run report: one self-contained file (inline CSS and SVG charts, no scripts, no downloads).
+
+A summary of the figures to read first and a table of contents open the page. Every value from the
+records is HTML-escaped, and a Content-Security-Policy allowing no script at all (only inline
+styles) makes any value that slipped through inert.
+"""
 
 from __future__ import annotations
 
@@ -11,6 +16,7 @@ import pandas as pd
 
 from ..compare import GRADE_NAMES
 from ..mapping.spec import Thresholds
+from .charts import Marker, category_chart, histogram_chart
 from .tables import write_text_atomic
 
 if TYPE_CHECKING:
@@ -34,11 +40,23 @@ table{border-collapse:collapse;margin:.5rem 0}td,th{border:1px solid #999;paddin
 th{background:#e8efe6}td.n{text-align:right;font-variant-numeric:tabular-nums}
 .caution{background:#fff4d6;border:2px solid #8a6d00;padding:.6rem 1rem}.warn{color:#8a2a00}
 figure{margin:.5rem 0}figcaption{font-size:.9rem;color:#333}code{background:#f1f1f1;padding:0 .2rem}
+.scroll{overflow-x:auto;max-width:100%}td{overflow-wrap:anywhere}
+.summary{display:grid;grid-template-columns:repeat(auto-fit,minmax(11rem,1fr));gap:.6rem;margin:1rem 0}
+.summary div{border:1px solid #3a5a40;border-radius:.3rem;padding:.4rem .7rem;background:#f4f8f3}
+.summary b{display:block;font-size:1.35rem}nav.toc{font-size:.95rem}nav.toc ol{margin:.2rem 0;columns:2 16rem}
 """
+# no script may run in the report: only inline styles and inline SVG are allowed
+CSP = "default-src 'none'; style-src 'unsafe-inline'; img-src data:; base-uri 'none'; form-action 'none'"
 
 
 def _e(value: object) -> str:
     return html.escape(str(value))
+
+
+def _cell(value: object) -> str:
+    if isinstance(value, (int, np.integer)) and not isinstance(value, bool):
+        return f"{int(value):,}"  # thousands separators
+    return str(value)
 
 
 def _table(frame: pd.DataFrame, numeric: tuple[str, ...] = ()) -> str:
@@ -48,42 +66,9 @@ def _table(frame: pd.DataFrame, numeric: tuple[str, ...] = ()) -> str:
         cells = []
         for column, value in zip(frame.columns, row):
             cls = ' class="n"' if column in numeric else ""
-            cells.append(f"<td{cls}>{_e(value)}</td>")
+            cells.append(f"<td{cls}>{_e(_cell(value))}</td>")
         rows.append("<tr>" + "".join(cells) + "</tr>")
-    return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>"
-
-
-def bar_chart(labels: list[str], values: list[float], title: str, *, width: int = 640,
-              log_scale: bool = False) -> str:
-    """A horizontal-axis bar chart as inline SVG (labels under the bars)."""
-    height, pad, base = 220, 40, 180
-    n = max(len(values), 1)
-    bar_w = (width - 2 * pad) / n
-    shown = [np.log10(v + 1) if log_scale else v for v in values]
-    top = max(shown) if shown and max(shown) > 0 else 1.0
-    parts = [f'<svg role="img" aria-label="{_e(title)}" width="{width}" height="{height + 30}" '
-             f'viewBox="0 0 {width} {height + 30}" xmlns="http://www.w3.org/2000/svg">',
-             f'<title>{_e(title)}</title>',
-             f'<line x1="{pad}" y1="{base}" x2="{width - pad}" y2="{base}" stroke="#333"/>']
-    step = max(1, n // 12)
-    for k, (label, value, s) in enumerate(zip(labels, values, shown)):
-        h = (base - 20) * s / top
-        x = pad + k * bar_w
-        parts.append(f'<rect x="{x + 1:.1f}" y="{base - h:.1f}" width="{max(bar_w - 2, 1):.1f}" '
-                     f'height="{h:.1f}" fill="#3a5a40"><title>{_e(label)}: {_e(value)}</title></rect>')
-        if k % step == 0:
-            parts.append(f'<text x="{x + bar_w / 2:.1f}" y="{base + 14}" font-size="10" '
-                         f'text-anchor="middle">{_e(label)}</text>')
-    parts.append(f'<text x="{pad}" y="14" font-size="11">max {max(values) if values else 0:g}'
-                 f'{" (log scale)" if log_scale else ""}</text></svg>')
-    return "".join(parts)
-
-
-def _histogram(values: np.ndarray, bins: int = 30) -> tuple[list[str], list[float]]:
-    if len(values) == 0:
-        return [], []
-    counts, edges = np.histogram(values, bins=bins)
-    return [f"{e:.0f}" for e in edges[:-1]], counts.astype(float).tolist()
+    return f"<div class='scroll'><table><thead><tr>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table></div>"
 
 
 def _review_section(review: ReviewSummary) -> str:
@@ -254,15 +239,77 @@ def _quality_section(result: RunResult) -> str:
     return text
 
 
+def _summary(result: RunResult, thresholds: Thresholds) -> str:
+    """The figures to read first: records in, entities out, links, review, precision, changes."""
+    records = int(sum(result.source_counts.values()))
+    decisions = result.pairs["decision"].value_counts()
+    probability = result.pairs["probability"].to_numpy(float)
+    linked = probability[probability >= thresholds.link]
+    precision = f"{linked.mean():.1%}" if len(linked) else "n/a"
+    how = "model estimate: mean match probability of the links"
+    audit = getattr(result.review, "audit", None) if result.review is not None else None
+    if audit is not None:
+        precision, how = f"{audit.precision:.1%}", f"checked by reviewers on {audit.checked:,} sampled links"
+    changes = result.changes
+    detail = "details under Changes"
+    if changes is None:
+        changed = "not recorded"
+    elif changes.previous_run is None:
+        changed = "first run"
+    else:
+        changed = f"{changes.records_moved:,} records moved"
+        detail = (f"{changes.created:,} entities created, {changes.merged:,} merged, {changes.split:,} split "
+                  f"(run {changes.previous_run} before)")
+    tiles = [("records in", f"{records:,}", f"from {len(result.source_counts):,} sources"),
+             ("entities out", f"{result.merged.shape[0]:,}", "one row each in merged.csv"),
+             ("links", f"{int(decisions.get('link', 0)):,}", f"pairs at or above {thresholds.link:g}"),
+             ("possible links to review", f"{int(decisions.get('possible link', 0)):,}",
+              f"pairs from {thresholds.review:g} to {thresholds.link:g}: integrate review"),
+             ("estimated precision", precision, how),
+             ("since the last run", changed, detail)]
+    return ("<section id='summary' aria-label='Summary'><div class='summary'>"
+            + "".join(f"<div><span>{_e(a)}</span><b>{_e(b)}</b><small>{_e(c)}</small></div>" for a, b, c in tiles)
+            + "</div></section>")
+
+
+def _with_contents(body: str) -> str:
+    """Give every section heading an id and put a table of contents where ``<!--toc-->`` stands."""
+    import re
+
+    titles: list[tuple[str, str]] = []
+
+    def anchor(m: re.Match[str]) -> str:
+        slug = f"s{len(titles) + 1}"
+        titles.append((slug, m.group(1)))
+        return f"<h2 id='{slug}'>{m.group(1)}</h2>"
+
+    body = re.sub(r"<h2>(.*?)</h2>", anchor, body)
+    toc = ("<nav class='toc' aria-label='Contents'><h2 id='contents'>Contents</h2><ol>"
+           + "".join(f"<li><a href='#{slug}'>{title}</a></li>" for slug, title in titles) + "</ol></nav>")
+    return body.replace("<!--toc-->", toc, 1)
+
+
+def _weight_markers(result: RunResult, thresholds: Thresholds) -> list[Marker]:
+    """The link and review thresholds as total weights: p = 1 / (1 + 2^-(w + prior weight))."""
+    prior = result.model.prior_weight
+    return [Marker(float(np.log2(t / (1 - t)) - prior), f"{name} {t:g}", colour)
+            for name, t, colour in (("link", thresholds.link, "#b00020"), ("review", thresholds.review, "#8a6d00"))]
+
+
 def render_report(result: RunResult, ws: Workspace | None = None) -> str:
     s: list[str] = []
     add = s.append
     entities = result.merged.shape[0]
     records = int(sum(result.source_counts.values()))
-    add(f"<!doctype html><html lang='en'><head><meta charset='utf-8'><title>Run report {_e(result.started)}"
-        f"</title><style>{_CSS}</style></head><body>")
-    add(f"<h1>Run report</h1><p>Run started {_e(result.started.isoformat())}; {records} records from "
-        f"{len(result.source_counts)} sources became {entities} entities.</p>")
+    thresholds = ws.canonical.thresholds if ws is not None else Thresholds()
+    add(f"<!doctype html><html lang='en'><head><meta charset='utf-8'>"
+        f"<meta http-equiv='Content-Security-Policy' content=\"{CSP}\">"
+        f"<meta name='viewport' content='width=device-width, initial-scale=1'>"
+        f"<title>Run report {_e(result.started)}</title><style>{_CSS}</style></head><body>")
+    add(f"<h1>Run report</h1><p>Run started {_e(result.started.isoformat())}; {records:,} records from "
+        f"{len(result.source_counts):,} sources became {entities:,} entities.</p>")
+    add(_summary(result, thresholds))
+    add("<!--toc-->")
     add("<div class='caution' role='note'><strong>Before you use these results</strong><ul>"
         + "".join(f"<li>{_e(c)}</li>" for c in CAUTIONS) + "</ul></div>")
     if result.warnings:
@@ -280,7 +327,7 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
 
     b = result.blocking
     add("<h2>Blocking</h2>")
-    add(f"<p>{b.candidate_pairs} candidate pairs out of {b.all_pairs} possible pairs "
+    add(f"<p>{b.candidate_pairs:,} candidate pairs out of {b.all_pairs:,} possible pairs "
         f"(reduction ratio {b.reduction_ratio:.6f}).</p>")
     rules = pd.DataFrame({"rule": b.rules, "pairs": [b.pairs_per_rule[r] for r in b.rules],
                           "found by this rule only": [b.unique_per_rule[r] for r in b.rules]})
@@ -296,10 +343,23 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
     add("<h2>Scores</h2>")
     decisions = result.pairs["decision"].value_counts()
     add(_table(decisions.rename_axis("decision").reset_index(name="pairs"), ("pairs",)))
-    labels, values = _histogram(result.pairs["weight"].to_numpy())
-    add("<figure>" + bar_chart(labels, values, "Candidate pairs by total weight (bits)", log_scale=True)
-        + "<figcaption>Candidate pairs by total weight in bits (log scale): matches gather on the right, "
-          "non-matches on the left; the valley between them is where review matters.</figcaption></figure>")
+    weights = result.pairs["weight"].to_numpy(float)
+    if len(weights):
+        counts, edges = np.histogram(weights, bins=40)
+        add("<figure>" + histogram_chart(edges, counts, "Candidate pairs by total weight", "total weight (bits)",
+                                         "candidate pairs", log_scale=True,
+                                         markers=_weight_markers(result, thresholds))
+            + "<figcaption>Candidate pairs by total weight in bits (log scale): matches gather on the right, "
+              "non-matches on the left; the dashed lines are the link and review thresholds, and the pairs "
+              "between them are the possible links.</figcaption></figure>")
+        counts, edges = np.histogram(result.pairs["probability"].to_numpy(float), bins=20, range=(0.0, 1.0))
+        add("<figure>" + histogram_chart(edges, counts, "Candidate pairs by match probability", "match probability",
+                                         "candidate pairs", log_scale=True, x_format="{:.2f}",
+                                         markers=[Marker(thresholds.link, f"link {thresholds.link:g}"),
+                                                  Marker(thresholds.review, f"review {thresholds.review:g}",
+                                                         "#8a6d00")])
+            + "<figcaption>Number of candidate pairs per band of match probability (log scale).</figcaption>"
+              "</figure>")
     model = result.model
     add(f"<p>Fellegi–Sunter model estimated by EM in {model.iterations} iterations "
         f"({'converged' if model.converged else 'not converged'}); share of matches among all record pairs "
@@ -314,16 +374,19 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
     add("<details><summary>m- and u-probabilities and weights per field and grade</summary>"
         + _table(pd.DataFrame(rows), ("m", "u (non-matches)", "u (random pairs)", "weight (bits)")) + "</details>")
 
-    add(_borderline_section(result, (ws.canonical.thresholds if ws is not None else Thresholds()).link))
+    add(_borderline_section(result, thresholds.link))
     add(_quality_section(result))
 
     add("<h2>Entities</h2>")
     sizes = result.crosswalk.groupby("entity_id").size().value_counts().sort_index()
-    add("<figure>" + bar_chart([str(k) for k in sizes.index], sizes.astype(float).tolist(),
-                               "Entities by number of records", log_scale=True)
+    add("<figure>" + category_chart([str(k) for k in sizes.index], sizes.astype(float).tolist(),
+                                    "Entities by number of records", "records in the entity", "entities",
+                                    log_scale=True)
         + "<figcaption>Entities by number of records (log scale). Large clusters deserve a look.</figcaption></figure>")
     conflicts = result.provenance.groupby("field")["conflict"].sum().astype(int)
     conflict_table = conflicts.rename_axis("field").reset_index(name="entities with conflicting values")
+    conflict_table = conflict_table.sort_values(["entities with conflicting values", "field"],
+                                                ascending=[False, True], kind="mergesort")
     add("<h3>Conflicts per field</h3>" + _table(conflict_table, ("entities with conflicting values",)))
     add(_source_pair_section(result))
     add(_clusters_section(result))
@@ -344,7 +407,7 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
     timing = pd.DataFrame({"stage": list(result.timings), "seconds": [f"{v:.2f}" for v in result.timings.values()]})
     add("<h2>Timings</h2>" + _table(timing, ("seconds",)))
     add("</body></html>")
-    return "\n".join(s)
+    return _with_contents("\n".join(s))
 
 
 def write_report(result: RunResult, ws: Workspace) -> Path:

@@ -1,12 +1,14 @@
 """Reviewing in a terminal, for a server without a browser: ``integrate review --terminal``.
 
-Same queue, same decisions, same store as the review page; reads answers line by line, so it
-also works with answers piped in.
+Same queue, same decisions, same store as the review page. On a terminal it is a full-screen
+view that redraws in place and takes single keys (``review.terminal_screen``); with answers piped
+in (standard input or output not a terminal) it reads answers line by line.
 """
 
 from __future__ import annotations
 
 import re
+import sys
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
@@ -71,7 +73,16 @@ def render_item(item: dict[str, Any], progress: dict[str, int]) -> list[str]:
 def review_in_terminal(data: ReviewData, store: DecisionStore, reviewer: str, *, kind: str = POSSIBLE,
                        source: str | None = None, field_name: str | None = None,
                        read: Callable[[str], str] = input, write: Callable[[str], None] = print) -> TerminalSession:
-    """Show pairs one at a time and store the answers until the queue is empty, 'q', or end of input."""
+    """Show pairs one at a time and store the answers until the queue is empty, 'q', or end of input.
+
+    On a terminal (and with the default ``read``) the full-screen view runs instead."""
+    if read is input and write is print and sys.stdin.isatty() and sys.stdout.isatty():
+        try:
+            from .terminal_screen import review_full_screen
+        except ImportError:  # Textual not installed (the 'review' extra): the line mode still works
+            write("(full-screen view needs the 'review' extra: pip install 'integrate[review]'; line mode)")
+        else:
+            return review_full_screen(data, store, reviewer, kind=kind, source=source, field_name=field_name)
     session = TerminalSession()
     undo_stack: list[int] = []
     again: tuple[str, str, str, str] | None = None  # a pair to show next (after an undo)
