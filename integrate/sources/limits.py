@@ -81,7 +81,7 @@ def time_limit(limits: ReadLimits, shown: str, name: str) -> Iterator[None]:
     """
     usable = limits.seconds > 0 and threading.current_thread() is threading.main_thread() and hasattr(
         signal, "setitimer")
-    if not usable:
+    if not usable or signal.getitimer(signal.ITIMER_REAL)[0] > 0:  # a caller's own alarm is running: keep it
         yield
         return
 

@@ -7,6 +7,7 @@ import warnings
 import zipfile
 import zlib
 from pathlib import Path
+from typing import BinaryIO
 
 import pandas as pd
 from openpyxl import load_workbook
@@ -43,33 +44,8 @@ def read_workbook(path: Path, spec: ReadSpec, src: SourceFile) -> pd.DataFrame:
                 reason="encrypted_file",
                 hint="remove the password (or save as Excel Workbook .xlsx) and export again",
             )
-    try:
-        with warnings.catch_warnings():
-            # openpyxl warns about features it does not read (data validation, styles);
-            # they do not change cell values
-            warnings.filterwarnings("ignore", category=UserWarning, module="openpyxl")
-            book = load_workbook(path, read_only=True, data_only=True)
-    except Exception as exc:  # noqa: BLE001 - any failure of the parser on a hostile file is a bad file
-        raise _bad_file(src, exc) from exc
-    try:
-        sheet = book[_sheet_name(book.sheetnames, spec.sheet, src)]
-        has_formulas = _check_sheet_xml(path, getattr(sheet, "_worksheet_path", None), limits, src)
-        try:
-            # openpyxl reads cell by cell; this is the only way to it, as inside pandas
-            cells = list(sheet.iter_rows(min_row=1, values_only=True))
-            formulas: list[tuple[object, ...]] = []
-            if has_formulas:
-                # the sheet parser reads this flag (openpyxl 3.1 has no setter): the same sheet again,
-                # formulas as text; tests/bad_input/test_lost_values.py fails if this stops working
-                book._data_only = False
-                formulas = list(sheet.iter_rows(min_row=1, values_only=True))
-        except SourceError:
-            raise
-        except Exception as exc:  # noqa: BLE001 - corrupt or cut-short sheet XML in an intact zip
-            raise _bad_file(src, exc) from exc
-    finally:
-        book.close()
-
+    with path.open("rb") as handle:  # closed here even when openpyxl gives up half-way
+        cells, formulas = _read_cells(handle, path, spec, src, limits)
     header_at = next((i for i, row in enumerate(cells) if any(v is not None for v in row)), None)
     if header_at is None:
         return text_frame(pd.DataFrame(), [], src)
@@ -94,6 +70,39 @@ def read_workbook(path: Path, spec: ReadSpec, src: SourceFile) -> pd.DataFrame:
     if lost:
         attach_failures(out, lost)
     return out
+
+
+def _read_cells(handle: BinaryIO, path: Path, spec: ReadSpec, src: SourceFile,
+                limits: ReadLimits) -> tuple[list[tuple[object, ...]], list[tuple[object, ...]]]:
+    """Every row of the sheet as stored values, and (when the sheet has formulas) as formula text."""
+    try:
+        with warnings.catch_warnings():
+            # openpyxl warns about features it does not read (data validation, styles);
+            # they do not change cell values
+            warnings.filterwarnings("ignore", category=UserWarning, module="openpyxl")
+            book = load_workbook(handle, read_only=True, data_only=True)
+    except Exception as exc:  # noqa: BLE001 - any failure of the parser on a hostile file is a bad file
+        raise _bad_file(src, exc) from exc
+    try:
+        sheet = book[_sheet_name(book.sheetnames, spec.sheet, src)]
+        has_formulas = _check_sheet_xml(path, getattr(sheet, "_worksheet_path", None), limits, src)
+        try:
+            # openpyxl reads cell by cell; this is the only way to it, as inside pandas
+            cells = list(sheet.iter_rows(min_row=1, values_only=True))
+            formulas: list[tuple[object, ...]] = []
+            if has_formulas:
+                # the sheet parser reads this flag (openpyxl 3.1 has no setter): the same sheet again,
+                # formulas as text; tests/bad_input/test_lost_values.py fails if this stops working
+                book._data_only = False
+                formulas = list(sheet.iter_rows(min_row=1, values_only=True))
+        except SourceError:
+            raise
+        except Exception as exc:  # noqa: BLE001 - corrupt or cut-short sheet XML in an intact zip
+            raise _bad_file(src, exc) from exc
+    finally:
+        book.close()
+
+    return cells, formulas
 
 
 def _bad_file(src: SourceFile, exc: BaseException) -> SourceError:
