@@ -226,6 +226,9 @@ def text_frame(columns: pd.DataFrame, rows: Sequence[int] | np.ndarray, src: Sou
     Raises:
         SourceError: a source column is itself called ``_row``.
     """
+    from integrate.sources.limits import check_columns, read_limits
+
+    check_columns(columns.shape[1], read_limits(), src.shown, src.name)  # before converting each column
     names = [str(c) for c in columns.columns]
     if ROW in names:
         raise SourceError(

@@ -11,6 +11,7 @@ import pandas as pd
 from integrate.errors import SourceError
 from integrate.mapping.spec import ReadSpec
 from integrate.sources.frame import SourceFile, read_text, text_frame
+from integrate.sources.limits import check_columns, read_limits
 
 
 def read_json_records(path: Path, spec: ReadSpec, src: SourceFile) -> pd.DataFrame:
@@ -33,6 +34,8 @@ def read_json_records(path: Path, spec: ReadSpec, src: SourceFile) -> pd.DataFra
         rows = list(range(1, len(records) + 1))
     else:
         records, rows = _parse_lines(text, src)
+    if records and isinstance(records[0], dict):  # refuse a record wider than the column limit before the frame
+        check_columns(len(records[0]), read_limits(), src.shown, src.name)
     flat: list[dict[str, object]] = []
     # JSON has no columnar form: each record already is a Python object, checked and flattened
     for record, row in zip(records, rows):

@@ -166,3 +166,11 @@ def test_header_only_source_warns(tmp_path: Path) -> None:
     assert "warning: shop.csv: source 'shop' has no records" in proc.stdout, proc.stdout
     write_csv(root / "desk.csv", [])
     assert_clean_error(run_cli("run", str(root)), "no source has any records")
+
+
+def test_jsonl_record_with_20000_keys_is_refused(tmp_path: Path) -> None:
+    """Found by the fuzzer (seed 7, 'json / wide'): 20,000 keys in one record ran past the case limit."""
+    (tmp_path / "w.jsonl").write_text(json.dumps({f"c{i}": i for i in range(20_000)}) + "\n", encoding="utf-8")
+    with pytest.raises(SourceError) as caught:
+        read_source(ReadSpec(format="jsonl", path="w.jsonl"), tmp_path, name="wide")
+    assert caught.value.reason == "too_many_columns" and "20,000 columns" in caught.value.message
