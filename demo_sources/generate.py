@@ -546,13 +546,16 @@ class World:
     NAMESAKES = (("James", "Smith", "M", 6), ("Sarah", "Brown", "F", 5),
                   ("David", "Jones", "M", 4), ("Emma", "Taylor", "F", 4))
 
-    def __init__(self, dice: Dice):
+    def __init__(self, dice: Dice, n_people: int = N_PEOPLE, streets: list[Street] | None = None,
+                 phones: tuple[list[str], list[str]] | None = None):
         self.dice = dice
+        self.n_people = n_people
+        self.phones = phones  # (mobiles, landlines) to hand out; None: the fiction pools
         self.given_f = WeightedWords(GIVEN_FEMALE, GIVEN_ANY)
         self.given_m = WeightedWords(GIVEN_MALE, GIVEN_ANY)
         self.given_x = WeightedWords(GIVEN_FEMALE, GIVEN_MALE, GIVEN_ANY)
         self.family_names = WeightedWords(FAMILY_NAMES)
-        self.streets = build_streets(dice)
+        self.streets = build_streets(dice) if streets is None else streets
         self.used_addresses: dict[tuple[str, int], None] = {}
         self.used_emails: dict[str, None] = {}
         self.households: list[Household] = []
@@ -583,8 +586,8 @@ class World:
         while True:
             street = self.dice.pick(self.streets)
             number = self.dice.integer(1, street.max_number)
-            if (street.name, number) not in self.used_addresses:
-                self.used_addresses[(street.name, number)] = None
+            if (street.name, street.district, number) not in self.used_addresses:
+                self.used_addresses[(street.name, street.district, number)] = None
                 return f"{number} {street.name}", street.postcode_for(number)
 
     def draw_birth(self, first_year: int, last_year: int) -> dt.date:
@@ -606,7 +609,7 @@ class World:
 
     def _add_person(self, household: Household, given: str, family: str, sex: str,
                     birth: dt.date) -> Person:
-        person = Person(f"P{len(self.people) + 1:05d}", household, given, family, sex, birth)
+        person = Person(f"P{len(self.people) + 1:0{max(5, len(str(self.n_people)))}d}", household, given, family, sex, birth)
         household.family_name = household.family_name or family
         self.people.append(person)
         return person
@@ -614,8 +617,8 @@ class World:
     def _build_households(self) -> None:
         planted = [(g, f, s) for g, f, s, n in self.NAMESAKES for _ in range(n)]
         sizes, size_weights = (2, 3, 4, 5), (0.50, 0.25, 0.17, 0.08)
-        while len(self.people) < N_PEOPLE:
-            remaining = N_PEOPLE - len(self.people)
+        while len(self.people) < self.n_people:
+            remaining = self.n_people - len(self.people)
             if self.dice.chance(0.87):
                 size = 1
             else:
@@ -729,9 +732,12 @@ class World:
         mobiles); about 3,500 of the 4,000 landlines go to households, current
         and previous homes.
         """
-        mobiles = [MOBILE_POOL[i] for i in self.dice.choose_many(1000, 1000)]
-        landlines = [LANDLINE_POOL[i] for i in self.dice.choose_many(4000, 4000)]
-        owners = sorted(self.dice.choose_many(len(self.people), 880))
+        if self.phones is not None:
+            mobiles, landlines = self.phones
+        else:
+            mobiles = [MOBILE_POOL[i] for i in self.dice.choose_many(1000, 1000)]
+            landlines = [LANDLINE_POOL[i] for i in self.dice.choose_many(4000, 4000)]
+        owners = sorted(self.dice.choose_many(len(self.people), len(self.people) * 880 // N_PEOPLE))
         for index in owners:
             person = self.people[index]
             person.mobile = mobiles.pop()
@@ -1196,19 +1202,33 @@ def write_membership(path: Path, records: list[Record]) -> None:
     write_reproducible_zip(path, buffer.getvalue())
 
 
-def write_reproducible_zip(path: Path, data: bytes) -> None:
-    """Rewrite a zip with fixed member timestamps and fixed document dates."""
+def write_reproducible_zip(path: Path, data: bytes, members: dict[str, bytes] | None = None,
+                           sheet: tuple[str, Path, str] | None = None) -> None:
+    """Rewrite a zip with fixed member timestamps and fixed document dates.
+
+    ``members`` (name -> content) replaces ``data``; ``sheet`` = (head, rows file, tail) streams
+    the first worksheet from a file instead (big workspaces).
+    """
     stamp = FIXED_FILE_TIME.strftime("%Y-%m-%dT%H:%M:%SZ")
-    with zipfile.ZipFile(io.BytesIO(data)) as source, \
-            zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as target:
-        for info in source.infolist():
-            content = source.read(info.filename)
-            if info.filename == "docProps/core.xml":
-                content = re.sub(rb"(<dcterms:(created|modified)[^>]*>)[^<]*(</dcterms:)",
-                                 rb"\g<1>" + stamp.encode() + rb"\g<3>", content)
-            fixed = zipfile.ZipInfo(info.filename, date_time=FIXED_FILE_TIME.timetuple()[:6])
+    if members is None:
+        with zipfile.ZipFile(io.BytesIO(data)) as source:
+            members = {info.filename: source.read(info.filename) for info in source.infolist()}
+    with zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as target:
+        for name, content in members.items():
+            fixed = zipfile.ZipInfo(name, date_time=FIXED_FILE_TIME.timetuple()[:6])
             fixed.compress_type = zipfile.ZIP_DEFLATED
             fixed.external_attr = 0o644 << 16
+            if sheet is not None and name == "xl/worksheets/sheet1.xml":
+                head, rows, tail = sheet
+                with target.open(fixed, "w", force_zip64=True) as out, open(rows, "rb") as staged:
+                    out.write(head.encode())
+                    while block := staged.read(1 << 20):
+                        out.write(block)
+                    out.write(tail.encode())
+                continue
+            if name == "docProps/core.xml":
+                content = re.sub(rb"(<dcterms:(created|modified)[^>]*>)[^<]*(</dcterms:)",
+                                 rb"\g<1>" + stamp.encode() + rb"\g<3>", content)
             target.writestr(fixed, content)
 
 
@@ -1283,15 +1303,16 @@ def entity_rows(world: World, records: list[Record], rates: Rates):
                f"{person.weight_kg:.1f}", fee, spend, deposits, event_fees)
 
 
+ENTITY_COLUMNS = ("entity_id", "given_name", "family_name", "sex", "birth_date", "email", "phone",
+                  "street", "postcode", "height_cm", "weight_kg", "annual_fee_gbp",
+                  "lifetime_spend_gbp", "deposits_gbp", "event_fees_gbp")
+
+
 def write_truth(folder: Path, world: World, records: list[Record], rates: Rates) -> None:
     folder.mkdir(parents=True, exist_ok=True)
     write_csv(folder / "crosswalk.csv", ("source", "record_id", "entity_id"),
               ((r.source, r.record_id, r.person.entity_id) for r in records))
-    write_csv(folder / "entities.csv",
-              ("entity_id", "given_name", "family_name", "sex", "birth_date", "email",
-               "phone", "street", "postcode", "height_cm", "weight_kg", "annual_fee_gbp",
-               "lifetime_spend_gbp", "deposits_gbp", "event_fees_gbp"),
-              entity_rows(world, records, rates))
+    write_csv(folder / "entities.csv", ENTITY_COLUMNS, entity_rows(world, records, rates))
     write_csv(folder / "record_faults.csv", ("source", "record_id", "faults"),
               ((r.source, r.record_id, ";".join(r.faults)) for r in records))
 
@@ -1362,11 +1383,384 @@ def generate(out: Path) -> None:
     summarise(world, records)
 
 
+# --------------------------------------------------------------------------
+# Big workspaces (--people N): the same world and faults, many more people
+# --------------------------------------------------------------------------
+
+BIG_CHUNK = 50_000  # people whose records are planned, rendered and written together
+
+
+class BufferedGen:
+    """The few generator calls the world and the renderers make, served from numpy blocks.
+
+    A scalar call into numpy costs microseconds; a big world makes tens of millions of them, so
+    uniforms and normals are drawn 65,536 at a time and handed out one by one. Deterministic per
+    seed (a different stream from ``Dice``, which the committed demo keeps).
+    """
+
+    BLOCK = 1 << 16
+
+    def __init__(self, seed: int):
+        self.rng = np.random.default_rng(seed)
+        self._uniforms: list[float] = []
+        self._normals: list[float] = []
+
+    def random(self) -> float:
+        if not self._uniforms:
+            self._uniforms = self.rng.random(self.BLOCK).tolist()
+        return self._uniforms.pop()
+
+    def normal(self, mean: float, sd: float) -> float:
+        if not self._normals:
+            self._normals = self.rng.standard_normal(self.BLOCK).tolist()
+        return mean + sd * self._normals.pop()
+
+    def uniform(self, lo: float, hi: float) -> float:
+        return lo + (hi - lo) * self.random()
+
+    def integers(self, lo: int, hi: int) -> int:
+        """Uniform integer in [lo, hi)."""
+        return lo + min(int(self.random() * (hi - lo)), hi - lo - 1)
+
+    def choice(self, n: int, size: int | None = None, replace: bool = True, p=None):
+        if size is None:
+            if p is None:
+                return self.integers(0, n)
+            return _weighted_index(p, self.random())
+        if replace or n > 16:
+            return self.rng.choice(n, size=size, replace=replace, p=p)
+        weights = [1.0] * n if p is None else [float(w) for w in p]
+        chosen = []
+        for _ in range(size):  # one weighted draw at a time, without putting back
+            total = sum(weights)
+            index = _weighted_index([w / total for w in weights], self.random())
+            chosen.append(index)
+            weights[index] = 0.0
+        return chosen
+
+
+def _weighted_index(p, roll: float) -> int:
+    cumulative = 0.0
+    last = 0
+    for index, weight in enumerate(p):
+        if weight > 0:
+            last = index
+            cumulative += weight
+            if roll < cumulative:
+                return index
+    return last
+
+
+class FastDice(Dice):
+    """``Dice`` on a buffered stream: the big generator's source of randomness."""
+
+    def __init__(self, seed: int):
+        self.gen = BufferedGen(seed)
+
+
+def scrambled_numbers(count: int, digits: int, salt: int) -> list[str]:
+    """``count`` distinct numbers of ``digits`` digits in a scrambled order (an affine bijection
+    modulo 10**digits with a multiplier coprime to 10)."""
+    modulus = 10 ** digits
+    assert count <= modulus
+    index = np.arange(count, dtype=np.int64)
+    values = (index * 7_919_981 + salt) % modulus  # 7,919,981 is coprime to 10
+    return [f"{v:0{digits}d}" for v in values.tolist()]
+
+
+def big_phone_pools(dice: Dice, n_people: int) -> tuple[list[str], list[str]]:
+    """Mobile and landline numbers enough for ``n_people`` without sharing more than the demo.
+
+    The fiction ranges (see MOBILE_POOL) hold 5,000 numbers; beyond them numbers come from the
+    UK's 04 range, which is not allocated to any service (UK numbering plan, recalled from
+    memory: check before reusing). They are written 0400 ... (mobiles) and 0410 ... (landlines).
+    """
+    mobiles = [MOBILE_POOL[i] for i in dice.choose_many(1000, 1000)]
+    landlines = [LANDLINE_POOL[i] for i in dice.choose_many(4000, 4000)]
+    want_mobiles = n_people // 4 + 100
+    want_landlines = n_people + 100
+    mobiles = ["400" + n for n in scrambled_numbers(max(0, want_mobiles - len(mobiles)), 7, 12_345)] + mobiles
+    landlines = ["410" + n for n in scrambled_numbers(max(0, want_landlines - len(landlines)), 7, 54_321)
+                 ] + landlines
+    return mobiles, landlines  # popped from the end: the fiction numbers go first
+
+
+def build_big_streets(dice: Dice, n_people: int) -> list[Street]:
+    """Streets in proportion to the people (the demo's 160 per 5,000); a street name may recur
+    in another postcode district, as in any large region."""
+    words = word_list(STREET_WORDS)
+    wanted = max(160, n_people * 160 // N_PEOPLE)
+    names: dict[tuple[str, str], None] = {}
+    while len(names) < wanted:
+        district = f"{dice.pick(POSTCODE_AREAS)}{dice.integer(1, 19)}"
+        names[(f"{dice.pick(words)} {dice.pick(STREET_TYPES)}", district)] = None
+    streets = []
+    used_units: dict[str, None] = {}
+    for name, district in names:
+        units = []
+        while len(units) < dice.integer(1, 3):
+            unit = (f"{district} {dice.integer(1, 9)}"
+                    f"{dice.pick(INWARD_LETTERS)}{dice.pick(INWARD_LETTERS)}")
+            if unit not in used_units:
+                used_units[unit] = None
+                units.append(unit)
+        streets.append(Street(name, district, units, dice.integer(12, 180)))
+    return streets
+
+
+@dataclass
+class _People:
+    """A slice of the world's people, for planning their records (plan_records reads .people)."""
+
+    people: list[Person]
+
+
+def assign_ids_continuing(records: list[Record], dice: Dice, numbers: dict[str, int]) -> None:
+    """``assign_ids`` for one chunk of records, carrying each desk's last number across chunks."""
+    by_source: dict[str, list[Record]] = defaultdict(list)
+    for rec in records:
+        by_source[rec.source].append(rec)
+    for source, recs in by_source.items():
+        shuffled = [recs[i] for i in dice.choose_many(len(recs), len(recs))]
+        ordered = shuffled if source == "webshop" else sorted(shuffled, key=lambda r: r.day)
+        number = numbers.get(source, 0)
+        for rec in ordered:
+            if source == "membership":
+                number += dice.integer(1, 3)
+                rec.record_id = f"M-{number:07d}"
+            elif source == "webshop":
+                number += dice.integer(1, 40)
+                rec.record_id = f"W{100000 + number}"
+            elif source == "rentals":
+                number += dice.integer(1, 2)
+                rec.record_id = f"R-{number:07d}"
+            else:
+                number += 1 if dice.chance(0.95) else dice.integer(2, 4)
+                rec.record_id = str(number)
+        numbers[source] = number
+
+
+class BigWriters:
+    """The four department files and the truth, written chunk by chunk."""
+
+    def __init__(self, out: Path):
+        self.out = out
+        (out / "truth").mkdir(parents=True, exist_ok=True)
+        self.sheet = BigSheet(out / "membership.xlsx")
+        self.webshop = open(out / "webshop.csv", "w", encoding="utf-8", newline="")
+        self.webshop_csv = csv.writer(self.webshop, lineterminator="\n")
+        self.webshop_csv.writerow(WEBSHOP_COLUMNS)
+        self.rentals = open(out / "rentals.jsonl", "w", encoding="utf-8", newline="\n")
+        events = out / "events.sqlite"
+        if events.exists():
+            events.unlink()
+        self.events = sqlite3.connect(events)
+        self.events.execute(
+            "CREATE TABLE signups (signup_id INTEGER PRIMARY KEY, given TEXT, surname TEXT, "
+            "email TEXT, birth_year INTEGER, fee REAL, event_name TEXT, event_date TEXT)")
+        self.truth = {}
+        for name, header in (("crosswalk", ("source", "record_id", "entity_id")),
+                             ("entities", ENTITY_COLUMNS),
+                             ("record_faults", ("source", "record_id", "faults"))):
+            handle = open(out / "truth" / f"{name}.csv", "w", encoding="utf-8", newline="")
+            writer = csv.writer(handle, lineterminator="\n")
+            writer.writerow(header)
+            self.truth[name] = (handle, writer)
+
+    def write(self, world: World, people: list[Person], records: list[Record], rates: Rates) -> None:
+        records.sort(key=record_sort_key)
+        self.sheet.append([[rec.record_id] + [rec.row[c] for c in MEMBERSHIP_COLUMNS[1:]]
+                           for rec in records if rec.source == "membership"])
+        self.webshop_csv.writerows([rec.record_id] + [rec.row[c] for c in WEBSHOP_COLUMNS[1:]]
+                                   for rec in records if rec.source == "webshop")
+        self.rentals.writelines(json.dumps({"rental_ref": rec.record_id, **rec.row}, ensure_ascii=False) + "\n"
+                                for rec in records if rec.source == "rentals")
+        self.events.executemany(
+            "INSERT INTO signups VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
+            [(int(rec.record_id), rec.row["given"], rec.row["surname"], rec.row["email"],
+              rec.row["birth_year"], rec.row["fee"], rec.row["event_name"], rec.row["event_date"])
+             for rec in records if rec.source == "events"])
+        self.truth["crosswalk"][1].writerows((r.source, r.record_id, r.person.entity_id) for r in records)
+        self.truth["record_faults"][1].writerows((r.source, r.record_id, ";".join(r.faults)) for r in records)
+        self.truth["entities"][1].writerows(entity_rows(_People(people), records, rates))
+
+    def close(self) -> None:
+        self.events.commit()
+        self.events.close()
+        self.webshop.close()
+        self.rentals.close()
+        for handle, _ in self.truth.values():
+            handle.close()
+        self.sheet.close()
+
+
+class BigSheet:
+    """The membership workbook of a big workspace, its rows streamed as sheet XML.
+
+    openpyxl builds an object per cell, which costs more than the rest of the generator; here
+    openpyxl writes a template workbook (header row, styles for the date and number formats) and
+    the rows go straight into the sheet's XML (inline strings, Office Open XML, ECMA-376 part 1
+    section 18.3), staged in a file beside the workbook.
+    """
+
+    EPOCH = dt.datetime(1899, 12, 30)  # day 0 of the 1900 date system (ECMA-376 section 18.17.4)
+    LETTERS = "ABCDEFGHIJ"
+
+    def __init__(self, path: Path):
+        self.path = path
+        self.staging = path.with_name(path.name + ".rows")
+        self.handle = open(self.staging, "w", encoding="utf-8")
+        self.rows = 1
+        self.styles = self._template_styles()
+
+    def _template(self, with_sample: bool) -> bytes:
+        workbook = openpyxl.Workbook()
+        sheet = workbook.active
+        sheet.title = "Members"
+        sheet.append(MEMBERSHIP_COLUMNS)
+        for cell in sheet[1]:
+            cell.font = Font(bold=True)
+        if with_sample:  # one row that shows which style number each format got
+            sheet.append(["x", "x", "x", FIXED_FILE_TIME, "x", "x", "x", 1.0, 1.0, "x"])
+            row = sheet[2]
+            row[3].number_format = "dd/mm/yyyy"
+            row[7].number_format = "0.0"
+            row[8].number_format = "0.00"
+        for letter, width in zip(self.LETTERS, (11, 32, 12, 12, 15, 26, 10, 11, 11, 16), strict=True):
+            sheet.column_dimensions[letter].width = width
+        workbook.properties.creator = "Tallow Creek membership office (invented demo)"
+        workbook.properties.title = "Members"
+        workbook.properties.created = FIXED_FILE_TIME
+        workbook.properties.modified = FIXED_FILE_TIME
+        buffer = io.BytesIO()
+        workbook.save(buffer)
+        return buffer.getvalue()
+
+    def _template_styles(self) -> dict[int, str]:
+        with zipfile.ZipFile(io.BytesIO(self._template(True))) as book:
+            xml = book.read("xl/worksheets/sheet1.xml").decode()
+        self.template = self._template(True)
+        row = xml[xml.index('<row r="2"'):]
+        return {index: re.search(rf'<c r="{letter}2" s="(\d+)"', row).group(1)
+                for index, letter in ((3, "D"), (7, "H"), (8, "I"))}
+
+    @staticmethod
+    def _text(value: str) -> str:
+        escaped = value.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
+        space = ' xml:space="preserve"' if value != value.strip() or "  " in value else ""
+        return f"<is><t{space}>{escaped}</t></is>"
+
+    def append(self, rows: list[list]) -> None:
+        parts = []
+        for row in rows:
+            self.rows += 1
+            r = self.rows
+            parts.append(f'<row r="{r}">')
+            for index, value in enumerate(row):
+                if value is None:
+                    continue
+                ref = f"{self.LETTERS[index]}{r}"
+                if isinstance(value, dt.datetime):
+                    serial = (value - self.EPOCH).days
+                    parts.append(f'<c r="{ref}" s="{self.styles[3]}" t="n"><v>{serial}</v></c>')
+                elif isinstance(value, float):
+                    parts.append(f'<c r="{ref}" s="{self.styles[index]}" t="n"><v>{value!r}</v></c>')
+                else:
+                    parts.append(f'<c r="{ref}" t="inlineStr">{self._text(str(value))}</c>')
+            parts.append("</row>")
+        self.handle.write("".join(parts))
+
+    def close(self) -> None:
+        self.handle.close()
+        with zipfile.ZipFile(io.BytesIO(self.template)) as template:
+            xml = template.read("xl/worksheets/sheet1.xml").decode()
+            head = xml[:xml.index('<row r="2"')]
+            head = re.sub(r'<dimension ref="[^"]*"', f'<dimension ref="A1:J{self.rows}"', head)
+            tail = xml[xml.index("</sheetData>"):]
+            members = {i.filename: template.read(i.filename) for i in template.infolist()}
+        write_reproducible_zip(self.path, b"", members=members, sheet=(head, self.staging, tail))
+        self.staging.unlink()
+
+
+def copy_mappings(workspace: Path) -> None:
+    """The demo's mapping files beside the big sources, so the folder is a workspace."""
+    here = Path(__file__).resolve().parent
+    target = workspace / "mappings"
+    target.mkdir(parents=True, exist_ok=True)
+    for path in sorted((here.parent / "mappings").glob("*.yaml")):
+        target.joinpath(path.name).write_text(path.read_text(encoding="utf-8"), encoding="utf-8")
+
+
+def generate_big(workspace: Path, n_people: int, seed: int = SEED, quiet: bool = False) -> None:
+    """A workspace of ``n_people`` invented people: sources under DIR/demo_sources (the four
+    formats, rates and truth) and the demo's mappings under DIR/mappings.
+
+    The world is built whole (addresses, e-mails and phones are unique across it); records are
+    planned, damaged and written BIG_CHUNK people at a time, so memory holds the people but only
+    one chunk of records.
+    """
+    started = dt.datetime.now()
+    out = workspace / "demo_sources"
+    out.mkdir(parents=True, exist_ok=True)
+    dice = FastDice(seed)
+    rates = Rates(dice)
+    world = World(dice, n_people, streets=build_big_streets(dice, n_people),
+                  phones=big_phone_pools(dice, n_people))
+    programme = build_event_programme(dice)
+    writers = BigWriters(out)
+    numbers: dict[str, int] = {}
+    total = Counter()
+    for start in range(0, len(world.people), BIG_CHUNK):
+        people = world.people[start:start + BIG_CHUNK]
+        records = plan_records(_People(people), dice, programme)
+        render_records(records, dice, rates)
+        assign_ids_continuing(records, dice, numbers)
+        plant_unit_slips(records, dice)
+        writers.write(world, people, records, rates)
+        total.update(r.source for r in records)
+        if not quiet:
+            print(f"  {start + len(people):,} of {len(world.people):,} people", flush=True)
+    writers.close()
+    write_rates(out / "rates.csv", rates)
+    copy_mappings(workspace)
+    seconds = (dt.datetime.now() - started).total_seconds()
+    print("records per source:", ", ".join(f"{s}={total[s]}" for s in SOURCES),
+          f"(total {sum(total.values())}); {len(world.people)} people; {seconds:.0f} s")
+
+
+def render_records(records: list[Record], dice: Dice, rates: Rates) -> None:
+    for rec in records:
+        if rec.source == "membership":
+            render_membership(rec, dice)
+        elif rec.source == "webshop":
+            render_webshop(rec, dice, rates)
+        elif rec.source == "rentals":
+            render_rentals(rec, dice, rates)
+        else:
+            render_events(rec, dice)
+
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    parser.add_argument("--out", type=Path, default=Path(__file__).resolve().parent,
-                        help="output folder (default: the folder of this script)")
-    generate(parser.parse_args().out)
+    parser.add_argument("--out", type=Path, default=None,
+                        help="output folder (default: the folder of this script); with --people, "
+                             "a workspace folder that gets demo_sources/ and mappings/")
+    parser.add_argument("--people", type=int, default=None,
+                        help="make a big workspace of this many invented people (about 1.8 records "
+                             "each) instead of the committed 5,000-people demo")
+    parser.add_argument("--seed", type=int, default=SEED, help=f"random seed (default {SEED})")
+    args = parser.parse_args()
+    if args.people is None:
+        if args.seed != SEED:
+            parser.error("--seed applies to --people workspaces; the committed demo uses its own seed")
+        generate(args.out or Path(__file__).resolve().parent)
+        return
+    if args.out is None:
+        parser.error("--people needs --out DIR (the workspace folder to create)")
+    if args.people < 10:
+        parser.error("--people must be at least 10")
+    generate_big(args.out, args.people, args.seed)
 
 
 if __name__ == "__main__":

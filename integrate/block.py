@@ -14,6 +14,7 @@ import jellyfish
 import numpy as np
 import pandas as pd
 
+from .errors import InputError
 from .mapping.spec import BlockingRule, CanonicalSchema
 from .standardise import DAY, MONTH, ROOT_SUFFIX, YEAR
 
@@ -22,6 +23,20 @@ log = logging.getLogger(__name__)
 PAIR_COLUMNS = ("i", "j", "rules")
 SEPARATOR = "\x1f"  # between the parts of a rule's key text
 SORTED_WINDOW = 5  # sorted-neighbourhood window of the default rules (records compared with the next 4)
+# A block of more records than this is not compared all against all: its records are sorted by their
+# other fields and each is paired with the next SPLIT_WINDOW - 1 (a sorted neighbourhood inside the
+# block), so pairs per record stay bounded however common a key value gets.
+SPLIT_BLOCK_SIZE = 64
+SPLIT_WINDOW = 10
+MAX_RULE_PAIRS = 60_000_000  # a rule producing more candidate pairs than this is refused
+
+
+class BlockingTooLarge(InputError):
+    """A blocking rule would produce more candidate pairs than allowed (rather than swapping)."""
+
+    def __init__(self, message: str) -> None:
+        super().__init__(message, reason="blocking_too_large",
+                         hint="add a further key to the rule in mappings/canonical.yaml, or remove the rule")
 
 
 @dataclass
@@ -35,6 +50,9 @@ class BlockingReport:
     skipped_blocks: list[tuple[str, str, int]] = field(default_factory=list)
     candidate_pairs: int = 0
     all_pairs: int = 0
+    # per rule whose blocks were too large: (rule, how many key values, five largest, records left
+    # without any candidate pair among them)
+    split_blocks: list[tuple[str, int, list[tuple[str, int]], int]] = field(default_factory=list)
 
     @property
     def reduction_ratio(self) -> float:
@@ -195,24 +213,65 @@ def rule_key(prepared: pd.DataFrame, rule: BlockingRule) -> pd.Series:
     return _Keys(prepared).rule(rule).series(prepared.index)
 
 
-def _pairs_for_key(key: _Key, max_block: int) -> tuple[np.ndarray, np.ndarray, list[tuple[str, int]]]:
-    """Every pair of records sharing a key value, leaving out blocks larger than ``max_block``."""
+def _pairs_in_blocks(codes: np.ndarray, records: np.ndarray, size_of: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Every pair within the blocks of ``records`` (ordered by block), as positions into ``records``'s
+    frame; ``size_of`` is each listed record's block size."""
+    if not len(records):
+        return np.zeros(0, np.int64), np.zeros(0, np.int64)
+    starts = np.flatnonzero(np.r_[True, codes[records][1:] != codes[records][:-1]])
+    place = np.arange(len(records)) - np.repeat(starts, np.diff(np.r_[starts, len(records)]))
+    followers = size_of - 1 - place  # each record pairs with the records after it in its block
+    left = np.repeat(np.arange(len(records)), followers)
+    right = left + 1 + np.arange(len(left)) - np.repeat(np.cumsum(followers) - followers, followers)
+    return records[left], records[right]
+
+
+def _pairs_for_key(key: _Key, max_block: int, rank: np.ndarray | None = None, window: int = SPLIT_WINDOW
+                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Every pair of records sharing a key value; a block larger than ``max_block`` is split by a
+    sorted neighbourhood inside it (records in ``rank`` order, each paired with the next
+    ``window - 1``). Returns (i, j, codes of the split blocks, largest first)."""
     sizes = np.bincount(key.codes[key.codes >= 0], minlength=key.count)
     big = np.flatnonzero(sizes > max_block)
     size_of = np.append(sizes, 0)[key.codes]  # a missing key (-1) is in no block
     keep = (size_of > 1) & (size_of <= max_block)
     records = np.flatnonzero(keep)
     records = records[np.argsort(key.codes[records], kind="stable")]  # by block, then position
-    block_sizes = size_of[records]
-    starts = np.flatnonzero(np.r_[True, key.codes[records][1:] != key.codes[records][:-1]]) if len(records) else \
-        np.zeros(0, np.int64)
-    place = np.arange(len(records)) - np.repeat(starts, np.diff(np.r_[starts, len(records)]))
-    followers = block_sizes - 1 - place  # each record pairs with the records after it in its block
-    left = np.repeat(np.arange(len(records)), followers)
-    right = left + 1 + np.arange(len(left)) - np.repeat(np.cumsum(followers) - followers, followers)
+    i, j = _pairs_in_blocks(key.codes, records, size_of[records])
+    if len(big):
+        inside = np.flatnonzero(size_of > max_block)
+        order = np.arange(len(key.codes)) if rank is None else rank
+        inside = inside[np.lexsort((order[inside], key.codes[inside]))]  # by block, then rank
+        same = key.codes[inside][1:] == key.codes[inside][:-1]
+        left, right = [i], [j]
+        for step in range(1, window):
+            ok = np.ones(max(len(inside) - step, 0), bool)
+            for k in range(step):
+                ok &= same[k:len(same) - step + 1 + k]
+            left.append(inside[:-step][ok])
+            right.append(inside[step:][ok])
+        a, b = np.concatenate(left), np.concatenate(right)
+        i, j = np.minimum(a, b), np.maximum(a, b)
     big = big[np.argsort(-sizes[big], kind="stable")]
-    big_blocks = [(str(text), int(size)) for text, size in zip(key.texts(big).tolist(), sizes[big].tolist())]
-    return records[left], records[right], big_blocks
+    return i, j, big
+
+
+def record_rank(prepared: pd.DataFrame, columns: list[str]) -> np.ndarray:
+    """Each record's place when records are sorted by ``columns`` in turn (missing last), for the
+    sorted neighbourhoods that split large blocks: duplicates agree on most fields and sort near."""
+    keys = []
+    for column in columns[::-1]:  # np.lexsort: the last key is the primary one
+        codes, uniques = pd.factorize(prepared[column].astype("string"), use_na_sentinel=True)
+        order = np.argsort(np.asarray(uniques, dtype=object).astype(str), kind="stable")
+        rank = np.empty(len(uniques) + 1, np.int64)
+        rank[order] = np.arange(len(uniques))
+        rank[-1] = len(uniques)
+        keys.append(rank[codes])
+    if not keys:
+        return np.arange(len(prepared))
+    out = np.empty(len(prepared), np.int64)
+    out[np.lexsort(keys)] = np.arange(len(prepared))
+    return out
 
 
 def _neighbour_pairs(key: _Key, window: int) -> tuple[np.ndarray, np.ndarray]:
@@ -246,6 +305,9 @@ def block(
     *,
     groups: pd.Series | None = None,
     max_block_size: int = 1000,
+    split_block_size: int = SPLIT_BLOCK_SIZE,
+    max_rule_pairs: int = MAX_RULE_PAIRS,
+    order_columns: list[str] | None = None,
 ) -> tuple[pd.DataFrame, BlockingReport]:
     """Union of the candidate pairs of every rule.
 
@@ -253,7 +315,10 @@ def block(
         prepared: standardised frame (positions 0..n-1 are record numbers).
         rules: blocking rules; a pair is a candidate when any rule's keys all agree.
         groups: when given (e.g. 'left'/'right'), only pairs across different groups are kept.
-        max_block_size: a key value shared by more records than this is skipped, with a warning.
+        max_block_size, split_block_size: a block of more records than the smaller of the two is
+            split by a sorted neighbourhood inside it (window SPLIT_WINDOW), one warning per rule.
+        max_rule_pairs: a rule producing more pairs than this raises BlockingTooLarge.
+        order_columns: fields that order records inside a split block (default: every column).
 
     Returns:
         (pairs frame with columns i, j, rules (bit mask, bit k = rule k), report)
@@ -272,21 +337,35 @@ def block(
     largest: dict[str, list[tuple[str, int]]] = {}
     skipped: list[tuple[str, str, int]] = []
     keys = _Keys(prepared)
+    limit = max(2, min(max_block_size, split_block_size))
+    rank: np.ndarray | None = None
+    in_split: list[tuple[str, np.ndarray, np.ndarray, np.ndarray]] = []  # rule, its split codes, key codes, sizes
     for bit, rule in enumerate(rules):
         key = keys.rule(rule)
         if rule.window:
             i, j = _neighbour_pairs(key, rule.window)
-            big: list[tuple[str, int]] = []
+            big = np.zeros(0, np.int64)
         else:
-            i, j, big = _pairs_for_key(key, max_block_size)
+            sizes = np.bincount(key.codes[key.codes >= 0], minlength=key.count)
+            whole = sizes[sizes <= limit]
+            expected = int((whole * (whole - 1) // 2).sum() + (sizes[sizes > limit] * (SPLIT_WINDOW - 1)).sum())
+            if expected > max_rule_pairs:
+                top = ", ".join(f"'{t}' ({n})" for t, n in _largest_blocks(key))
+                raise BlockingTooLarge(
+                    f"blocking rule '{rule.name}' would make about {expected:,} candidate pairs "
+                    f"(limit {max_rule_pairs:,}); its largest key values: {top}")
+            if rank is None and (sizes > limit).any():
+                rank = record_rank(prepared, order_columns if order_columns is not None else
+                                   [c for c in prepared.columns if not str(c).startswith("_")])
+            i, j, big = _pairs_for_key(key, limit, rank)
         if group_codes is not None:
             across = group_codes[i] != group_codes[j]
             i, j = i[across], j[across]
-        for value, size in big:
-            shown = value.replace(SEPARATOR, " + ")
-            log.warning("blocking rule '%s': key '%s' is shared by %d records; block skipped", rule.name,
-                        shown, size)
-            skipped.append((rule.name, shown, size))
+        if len(big):
+            in_split.append((rule.name, big, key.codes, np.bincount(key.codes[key.codes >= 0], minlength=key.count)))
+            largest_split = [(str(t).replace(SEPARATOR, " + "), int(n)) for t, n in
+                             zip(key.texts(big[:5]).tolist(), in_split[-1][3][big[:5]].tolist())]
+            in_split[-1] = (rule.name, big, key.codes, np.array(largest_split, dtype=object))
         largest[rule.name] = [(k.replace(SEPARATOR, " + "), v) for k, v in _largest_blocks(key)]
         collected.append(pd.DataFrame({"i": i, "j": j, "rules": np.int64(1 << bit)}))
     if collected:
@@ -306,6 +385,7 @@ def block(
         "rules": np.bitwise_or.reduceat(masks, starts).astype(np.int64) if len(code) else masks,
     })
     masks = pairs["rules"].to_numpy()
+    split = _split_summary(in_split, pairs, n, limit)
     per_rule = {r.name: int(((masks >> b) & 1).sum()) for b, r in enumerate(rules)}
     unique = {r.name: int((masks == (1 << b)).sum()) for b, r in enumerate(rules)}
     if group_codes is not None:
@@ -313,8 +393,30 @@ def block(
         all_pairs = int((sizes.sum() ** 2 - (sizes ** 2).sum()) // 2)
     else:
         all_pairs = n * (n - 1) // 2
-    report = BlockingReport([r.name for r in rules], per_rule, unique, largest, skipped, len(pairs), all_pairs)
+    report = BlockingReport([r.name for r in rules], per_rule, unique, largest, skipped, len(pairs), all_pairs,
+                            split_blocks=split)
     return pairs, report
+
+
+def _split_summary(in_split: list, pairs: pd.DataFrame, n: int, limit: int
+                   ) -> list[tuple[str, int, list[tuple[str, int]], int]]:
+    """One warning per rule with blocks too large to compare all against all."""
+    if not in_split:
+        return []
+    has_pair = np.zeros(n, bool)
+    has_pair[pairs["i"].to_numpy()] = True
+    has_pair[pairs["j"].to_numpy()] = True
+    out = []
+    for name, big, codes, top in in_split:
+        inside = np.isin(codes, big)
+        alone = int((inside & ~has_pair).sum())
+        shown = [(str(t), int(c)) for t, c in top.tolist()]
+        log.warning("blocking rule '%s': %d key values are shared by more than %d records (largest: %s); "
+                    "each was split by a sorted neighbourhood (window %d) inside it; %d of their records "
+                    "have no candidate pair", name, len(big), limit,
+                    ", ".join(f"'{t}' ({c})" for t, c in shown), SPLIT_WINDOW, alone)
+        out.append((name, len(big), shown, alone))
+    return out
 
 
 def default_rules(canonical: CanonicalSchema) -> list[BlockingRule]:

@@ -152,6 +152,14 @@ class _Components:
         same_component = self.component[i] == self.component[j]
         i, j, p = i[same_component], j[same_component], scored["probability"].to_numpy(float)[same_component]
         clear = p < DIFFERENT_BELOW
+        self.breaks_a_rule = self._suspects(i[clear], j[clear])
+        # the look-ups below serve only components that may be cut (and contradictions): the
+        # others need no Python object per pair
+        needed = self.breaks_a_rule.copy()
+        for a, _ in self.contradictions:
+            needed[self.component[a]] = True
+        keep = needed[self.component[i]]
+        i, j, p, clear = i[keep], j[keep], p[keep], clear[keep]
         self.different: dict[int, list[tuple[int, float]]] = {}
         for a, b, q in zip(*(x.tolist() for x in self._ordered(i[clear], j[clear], p[clear]))):
             self.different.setdefault(a, []).append((b, q))
@@ -159,7 +167,6 @@ class _Components:
         self.pair_probability: dict[tuple[int, int], float] = {}
         for a, b, q in zip(i.tolist(), j.tolist(), p.tolist()):
             self.pair_probability.setdefault((a, b), q)
-        self.breaks_a_rule = self._suspects(i[clear], j[clear])
 
     def _components(self, n: int) -> tuple[np.ndarray, int]:
         """Components of links and must-links, numbered in the order of their first record by rank."""

@@ -447,3 +447,35 @@ def compare(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSch
     if len(names) >= 2:
         _swap_names(grades, cols, names, i, j)
     return pd.DataFrame({k: v.astype(np.int8) for k, v in grades.items()}, index=pairs.index)
+
+
+CHUNK_BYTES_PER_PAIR = 600  # about what comparing one pair holds at once (grades, scores, codes)
+
+
+def chunk_size(pairs: int, available: int | None = None) -> int:
+    """Pairs per chunk: an eighth of the memory available now, within 100,000 and 4,000,000."""
+    if available is None:
+        import psutil
+
+        available = psutil.virtual_memory().available
+    return int(min(max(available // 8 // CHUNK_BYTES_PER_PAIR, 100_000), 4_000_000, max(pairs, 1)))
+
+
+def compare_in_chunks(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchema, *,
+                      size: int | None = None, count: Callable[[int, int, str], None] | None = None
+                      ) -> pd.DataFrame:
+    """``compare`` over fixed-size chunks of the pairs (each pair's grades depend on that pair
+    alone), so memory for the work in flight is bounded; ``count(done, total, 'pairs')`` after
+    each chunk. A distributed engine can call ``compare`` on its own partitions the same way."""
+    size = size or chunk_size(len(pairs))
+    if len(pairs) <= size:
+        out = compare(prepared, pairs, canonical)
+        if count is not None:
+            count(len(pairs), len(pairs), "pairs")
+        return out
+    parts = []
+    for start in range(0, len(pairs), size):
+        parts.append(compare(prepared, pairs.iloc[start:start + size], canonical))
+        if count is not None:
+            count(min(start + size, len(pairs)), len(pairs), "pairs")
+    return pd.concat(parts)

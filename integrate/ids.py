@@ -215,5 +215,7 @@ def _changes(cur: pd.DataFrame, prev: pd.DataFrame, overlap: pd.DataFrame, previ
 
 def record_hashes(records: pd.DataFrame, fields: list[str]) -> np.ndarray:
     """A 16-hex-digit hash of each record's canonical values (to count records whose values changed)."""
-    values = records[fields].astype("string").fillna("\x00")
+    # floats to 9 decimals: a unit conversion's last-digit noise (167.38600000000002) is not a changed value
+    values = records[fields].apply(lambda c: c.round(9) if c.dtype.kind == "f" else c)
+    values = values.astype("string").fillna("\x00")
     return np.char.mod("%016x", pd.util.hash_pandas_object(values, index=False).to_numpy()).astype(object)

@@ -10,7 +10,7 @@ import pandas as pd
 
 from .block import BlockingReport, block, default_rules
 from .cluster import Split, cluster
-from .compare import compare
+from .compare import compare_in_chunks
 from .mapping.spec import CanonicalSchema
 from .score import ScoreModel, score
 from .standardise import standardise
@@ -45,14 +45,20 @@ def match_records(records: pd.DataFrame, canonical: CanonicalSchema, *,
     """
     records = records.reset_index(drop=True)
     progress("standardise")
+    count = getattr(progress, "count", None)
+    if count is not None:
+        count(0, len(records), "records")
     prepared = standardise(records, canonical, regions)
     group_codes = pd.factorize(records["_source"])[0] if across_sources_only else None
     progress("block")
+    if count is not None:
+        count(len(records), len(records), "records")
     rules = list(canonical.blocking) or default_rules(canonical)
     pairs, blocking = block(prepared, rules, groups=None if group_codes is None else pd.Series(group_codes),
-                            max_block_size=canonical.max_block_size)
+                            max_block_size=canonical.max_block_size,
+                            order_columns=[n for n, f in canonical.fields.items() if f.is_compared()])
     progress("compare")
-    grades = compare(prepared, pairs, canonical)
+    grades = compare_in_chunks(prepared, pairs, canonical, count=getattr(progress, "count", None))
     progress("score")
     scored, model = score(prepared, pairs, canonical, groups=group_codes, grades=grades, estimator=estimator)
     progress("cluster")

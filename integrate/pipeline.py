@@ -14,6 +14,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING
 
+import numpy as np
 import pandas as pd
 
 from .block import BlockingReport
@@ -25,8 +26,10 @@ from .evaluate import Evaluation, evaluate, hard_negatives, read_crosswalk_file
 from .ids import ChangeSummary, assign_stable_ids, canonical_order, record_hashes
 from .mapping.apply import FAILURE_COLUMNS, MappedSource, apply_mapping
 from .mapping.checks import no_records_text
-from .mapping.money import RatesTable, load_rates
+from .mapping.money import RatesTable
+from .mapping.rates_layout import load_workspace_rates
 from .matching import MatchResult, match_records
+from .outputs.missing import run_missing_values
 from .resolve import check_orders, resolve, source_pair_conflicts
 from .score import ScoreModel
 from .sources import add_read_failures, read_source
@@ -72,6 +75,7 @@ class RunResult:
     conflict_pairs: pd.DataFrame | None = None  # entities with conflicting values, per field and source pair
     run_id: int | None = None  # the run's number in the state store (when written)
     quality: RunQuality | None = None  # against the schema's 'truth' crosswalk, when one is given
+    missing: pd.DataFrame | None = None  # per field: missing before / after merging (outputs/missing.py)
 
 
 @dataclass
@@ -113,7 +117,7 @@ def read_and_map(ws: Workspace, progress: Progress = _quiet) -> tuple[pd.DataFra
         if not rates_path.exists():
             raise InputError("currency-rates file not found", file=ws.display(rates_path), reason="missing_file",
                              hint="check 'rates:' in mappings/canonical.yaml")
-        rates = load_rates(rates_path)
+        rates = load_workspace_rates(ws.canonical, rates_path, ws.display(rates_path))
     mapped: list[MappedSource] = []
     problems: list[InputError] = []
     progress("read")
@@ -158,8 +162,9 @@ def pairs_frame(records: pd.DataFrame, match: MatchResult, types: dict[str, str]
     i, j = p["i"].to_numpy(), p["j"].to_numpy()
     names = match.blocking.rules
     masks = p["rules"].to_numpy()
-    rule_names = pd.Series(masks).map(
-        lambda m: ",".join(n for b, n in enumerate(names) if (int(m) >> b) & 1))
+    distinct, inverse = np.unique(masks, return_inverse=True)  # names built once per distinct mask
+    rule_names = pd.Series(np.array([",".join(n for b, n in enumerate(names) if (int(m) >> b) & 1)
+                                     for m in distinct.tolist()], dtype=object)[inverse.reshape(-1)])
     out = pd.DataFrame({
         "source_a": records[SOURCE].to_numpy()[i], "record_id_a": records[RECORD_ID].to_numpy()[i],
         "source_b": records[SOURCE].to_numpy()[j], "record_id_b": records[RECORD_ID].to_numpy()[j],
@@ -205,6 +210,8 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
         clock[0], clock[1] = now, stage
         progress(stage)
 
+    tick.count = getattr(progress, "count", None)  # type: ignore[attr-defined]  # counts inside a stage
+
     check_orders(ws.canonical, [e.mapping.source for e in ws.sources], ws.display(ws.canonical_file))
     inputs = input_hashes(ws) if write else {}
     records, mapped = read_and_map(ws, tick)
@@ -247,6 +254,7 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
         conflict_pairs=conflict_pairs, quality=judge_against_truth(ws, records, match, crosswalk),
     )
     result.warnings += [no_records_text(m.name) for m in mapped if m.frame.empty]
+    result.missing = run_missing_values(result, list(ws.canonical.fields))
     for name, columns in result.unmapped.items():
         result.warnings.append(f"source '{name}': columns not mentioned in its mapping: {', '.join(columns)}")
     if write:
@@ -264,6 +272,7 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
             "clusters": (result.clusters, ("csv", "parquet")),
             "splits": (splits_frame(match.splits, records), ("csv",)),
             "changes": (entity_changes, ("csv",)),
+            "missing": (result.missing, ("csv",)),
             "failures": (failures.astype({c: "string" for c in failures.columns}), ("csv",)),
         })
         result.output_dir = out_dir
@@ -274,5 +283,8 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
                 crosswalk=current.assign(entity_id=stable.to_numpy()).drop(columns="cluster"),
                 input_hashes=inputs, summary=changes.as_dict(), changes=entity_changes,
                 output_dir=str(out_dir.resolve()), report=str(result.report_path.resolve())))
+            from .history_store import record_inputs  # column profiles and mapping texts, for drift checks
+
+            record_inputs(ws, result.run_id, result.mapping_hashes)
     tick("done")
     return result

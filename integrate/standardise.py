@@ -8,19 +8,19 @@ from __future__ import annotations
 import re
 
 import pandas as pd
-import phonenumbers
 import pyarrow as pa
 import pyarrow.compute as pc
 
 from .columns import RECORD_DATE, SOURCE
 from .mapping.spec import CanonicalSchema
+from .phone_numbers import CallingCode
+from .phone_numbers import to_e164 as phone_e164
 from .text_normalise import (
     clean_email,
     clean_identifier,
     clean_name,
     clean_postcode,
     clean_text,
-    digits_only,
     map_distinct,
     name_affixes,
     name_root,
@@ -76,10 +76,11 @@ def check_emails(values: pd.Series) -> tuple[pd.Series, pd.DataFrame]:
     return text.mask(pd.Series(~valid, index=text.index)).astype("string"), failures
 
 
-def to_e164(text: str, region: str | None) -> str | None:
+def to_e164(text: str, region: str | None, custom: dict[str, CallingCode] | None = None) -> str | None:
     """A phone number in E.164 form ('+447700900123'), or its digits when it cannot be parsed.
 
-    Uses "possible" rather than "valid": numbers reserved for fiction are possible but not valid.
+    ``region`` is ISO 3166 alpha-2 or a calling code ('+44'); ``custom`` holds calling codes the
+    workspace declares (see ``integrate.phone_numbers``).
 
     Example:
         >>> to_e164("07700 900123", "GB")
@@ -87,22 +88,17 @@ def to_e164(text: str, region: str | None) -> str | None:
         >>> to_e164("0044 20 7946 0123", "GB")
         '+442079460123'
     """
-    try:
-        number = phonenumbers.parse(text, region)
-    except phonenumbers.NumberParseException:
-        return digits_only(text)
-    if not phonenumbers.is_possible_number(number):
-        return digits_only(text)
-    return phonenumbers.format_number(number, phonenumbers.PhoneNumberFormat.E164)
+    return phone_e164(text, region, custom)
 
 
-def standardise_phones(values: pd.Series, regions: pd.Series) -> pd.Series:
+def standardise_phones(values: pd.Series, regions: pd.Series,
+                       custom: dict[str, CallingCode] | None = None) -> pd.Series:
     """E.164 per distinct (value, region) pair."""
     keys = values.astype("string") + "\x1f" + regions.fillna("").astype("string")
 
     def one(key: str) -> str | None:
         text, region = key.split("\x1f", 1)
-        return to_e164(text, region or None)
+        return to_e164(text, region or None, custom)
 
     out = map_distinct(keys, one)
     return out.where(values.notna(), pd.NA)
@@ -163,7 +159,7 @@ def standardise(records: pd.DataFrame, canonical: CanonicalSchema,
             source_regions = records[SOURCE].map(regions or {}).astype("string")
             if spec.region:
                 source_regions = source_regions.fillna(spec.region)
-            out[name] = standardise_phones(values, source_regions)
+            out[name] = standardise_phones(values, source_regions, canonical.calling_code_plans())
         elif spec.type == "postcode":
             out[name] = map_distinct(values, clean_postcode)
         elif spec.type == "identifier":

@@ -52,6 +52,7 @@ from sqlalchemy import (
 from sqlalchemy.engine import make_url
 from sqlalchemy.exc import ArgumentError, SQLAlchemyError
 
+from . import migrations
 from .errors import ConfigError, IntegrateError, missing_driver_error
 from .mapping.load import file_hash
 from .workspace import Workspace
@@ -136,9 +137,10 @@ _ENGINES: dict[str, Engine] = {}
 
 
 def state_engine(workspace: str | Path) -> Engine:
-    """The (shared, cached) engine of a workspace's state database.
+    """The (shared, cached) engine of a workspace's state database, its schema upgraded to the newest.
 
     Raises:
+        StateError: the database cannot be reached or upgraded.
         ConfigError: ``INTEGRATE_STATE_URL`` is not a usable SQLAlchemy URL (or its driver is missing).
     """
     url = state_url(workspace)
@@ -156,14 +158,19 @@ def state_engine(workspace: str | Path) -> Engine:
                 cursor.execute("PRAGMA journal_mode=WAL")  # readers do not wait for a writing run
                 cursor.execute("PRAGMA foreign_keys=ON")
                 cursor.close()
-        else:
-            engine = create_engine(url)
+        else:  # a server: a pooled connection it closed meanwhile (restart, idle timeout) is replaced, not used
+            engine = create_engine(url, pool_pre_ping=True)
     except ImportError as exc:  # the dialect exists but its driver package is not installed
         raise missing_driver_error(shown_url(url), exc) from exc
     except ArgumentError as exc:  # also a missing driver (NoSuchModuleError)
         raise ConfigError(f"{STATE_URL_ENV}={shown_url(url)!r} is not a usable SQLAlchemy URL: {exc} "
                           "(e.g. sqlite:///path/state.sqlite or postgresql+psycopg://user@host/db; "
                           "the database's driver must be installed)") from exc
+    try:
+        migrations.upgrade(engine)  # an older store is brought to the newest schema in place
+    except (SQLAlchemyError, migrations.NewerSchema) as exc:
+        engine.dispose()
+        raise StateError(f"state database {shown_url(url)} cannot be used: {exc}") from exc
     _ENGINES[url] = engine
     return engine
 

@@ -9,7 +9,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from integrate.block import block, rule_key
+from integrate.block import SPLIT_WINDOW, BlockingTooLarge, block, rule_key
 from integrate.mapping.spec import BlockingRule
 
 # Soundex codes under the US National Archives rules (NARA, "The Soundex Indexing System";
@@ -63,12 +63,34 @@ def test_sorted_neighbourhood_pairs_records_within_the_window() -> None:
     assert set(zip(pairs["i"], pairs["j"])) == {(0, 1), (0, 2), (2, 3), (3, 4)}
 
 
-def test_huge_blocks_are_skipped_with_a_warning(caplog: pytest.LogCaptureFixture) -> None:
-    frame = pd.DataFrame({"city": ["x"] * 30 + ["y", "y"]}, dtype="string")
-    pairs, report = block(frame, [BlockingRule(name="city", keys=["city"])], max_block_size=20)
-    assert set(zip(pairs["i"], pairs["j"])) == {(30, 31)}
-    assert report.skipped_blocks == [("city", "x", 30)]
-    assert "'x' is shared by 30 records" in caplog.text
+def test_huge_blocks_are_split_by_a_sorted_neighbourhood_with_one_warning_per_rule(
+        caplog: pytest.LogCaptureFixture) -> None:
+    # 30 records share 'x', over the limit of 20: instead of all 435 pairs (or none), each record is
+    # paired with its neighbours in the order of the other fields (sorted neighbourhood,
+    # Hernandez & Stolfo 1995), window SPLIT_WINDOW
+    names = [f"n{k:02d}" for k in range(30)]
+    frame = pd.DataFrame({"city": ["x"] * 30 + ["y", "y"], "name": names[::-1] + ["a", "b"],
+                          "town": ["z"] * 25 + ["w"] * 5 + ["v", "v"]}, dtype="string")
+    rules = [BlockingRule(name="city", keys=["city"]), BlockingRule(name="town", keys=["town"])]
+    pairs, report = block(frame, rules, max_block_size=20, order_columns=["name"])
+    found = set(zip(pairs["i"].tolist(), pairs["j"].tolist()))
+    assert (30, 31) in found
+    window = SPLIT_WINDOW
+    expected = {(min(a, b), max(a, b)) for a in range(30) for b in range(30) if 0 < abs(a - b) < window}
+    town_w = {(a, b) for a in range(25, 30) for b in range(a + 1, 30)}
+    assert found == expected | town_w | {(30, 31)}
+    assert report.skipped_blocks == []
+    assert [(r, k, top) for r, k, top, _ in report.split_blocks] == [("city", 1, [("x", 30)]), ("town", 1, [("z", 25)])]
+    assert caplog.text.count("blocking rule 'city'") == 1
+    assert "'x' (30)" in caplog.text
+
+
+def test_a_rule_over_the_pair_limit_is_refused_naming_its_largest_keys() -> None:
+    frame = pd.DataFrame({"city": ["x"] * 40 + ["y"] * 30}, dtype="string")
+    with pytest.raises(BlockingTooLarge, match=r"rule 'city'.*'x' \(40\), 'y' \(30\)"):
+        block(frame, [BlockingRule(name="city", keys=["city"])], max_rule_pairs=500)
+    pairs, _ = block(frame, [BlockingRule(name="city", keys=["city"])], max_rule_pairs=1225)
+    assert len(pairs) == 40 * 39 // 2 + 30 * 29 // 2
 
 
 def test_a_key_of_several_fields_is_their_words_joined() -> None:

@@ -183,18 +183,36 @@ def test_missing_mapped_column(club: Path) -> None:
     assert "height_inches" in proc.stdout  # the hint lists the columns that exist
 
 
-def test_bad_date_cells_are_warnings_with_rows(club: Path) -> None:
+def _break_dates(club: Path, lines_at: tuple[int, ...]) -> None:
     data = club / "data" / "club.csv"
     lines = data.read_text().splitlines()
-    for at in (4, 9):  # file lines 4 and 9
+    for at in lines_at:
         fields = lines[at - 1].split(",")
         fields[3] = "31/02/1970"
         lines[at - 1] = ",".join(fields)
     data.write_text("\n".join(lines) + "\n")
+
+
+def test_bad_date_cells_are_warnings_with_rows(club: Path) -> None:
+    _break_dates(club, (4, 9))  # file lines 4 and 9: 2 of 30 values, allowed by a 10% limit
+    edit(club / "mappings" / "club.yaml", "trust: 2\n", "trust: 2\nmax_unreadable: 0.1\n")
     proc = cli("check", str(club))
     assert proc.returncode == 1, proc.stdout
     assert "warning: data/club.csv:4 column 'dob': 2 value(s) cannot be read and will be left empty " \
            "(rows 4, 9)" in proc.stdout, proc.stdout
+
+
+def test_too_many_unreadable_values_are_an_error_in_check_and_run(club: Path) -> None:
+    _break_dates(club, (4, 9))  # 2 of 30 = 6.7%, above the default 5%
+    proc = cli("check", str(club))
+    assert_no_traceback(proc)
+    assert proc.returncode == 2, proc.stdout
+    assert "column 'dob': 2 of 30 values (7%) cannot be read" in proc.stdout, proc.stdout
+    assert "'31/02/1970'" in proc.stdout
+    run = cli("run", str(club))
+    assert_no_traceback(run)
+    assert run.returncode == 2 and "2 of 30 values" in run.stdout + run.stderr
+    assert not (club / "out").exists()
 
 
 def test_ambiguous_dates_without_format_list_their_rows(club: Path) -> None:

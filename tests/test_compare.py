@@ -254,3 +254,27 @@ def test_a_slip_on_a_short_form_is_close() -> None:
     given = ["ndy", "Andrew", "Peggr", "Margaret", "Jan", "Jan", "Jan", "Daniel"]
     grades = _given_name_grades(given, [0, 2, 4, 0], [1, 3, 7, 3])
     assert [GRADE_NAMES["person_name"][g] for g in grades] == ["close", "close", "different", "different"]
+
+
+def test_comparing_in_chunks_gives_the_grades_of_one_pass() -> None:
+    # each pair's grades depend on that pair alone, so chunk boundaries change nothing
+    from pathlib import Path
+
+    from integrate.block import block, default_rules
+    from integrate.compare import chunk_size, compare, compare_in_chunks
+    from integrate.pipeline import read_and_map
+    from integrate.standardise import standardise
+    from integrate.workspace import load_workspace
+
+    ws = load_workspace(Path(__file__).resolve().parents[1])
+    records, _ = read_and_map(ws)
+    records = records.reset_index(drop=True).iloc[:3000].reset_index(drop=True)
+    prepared = standardise(records, ws.canonical, {e.mapping.source: e.mapping.region for e in ws.sources})
+    pairs, _ = block(prepared, list(ws.canonical.blocking) or default_rules(ws.canonical))
+    seen: list[tuple[int, int]] = []
+    chunked = compare_in_chunks(prepared, pairs, ws.canonical, size=997,
+                                count=lambda done, total, unit: seen.append((done, total)))
+    pd.testing.assert_frame_equal(chunked, compare(prepared, pairs, ws.canonical))
+    assert seen[-1] == (len(pairs), len(pairs)) and len(seen) == -(-len(pairs) // 997)
+    assert chunk_size(10**9, available=8 * 10**9) == 8 * 10**9 // 8 // 600
+    assert chunk_size(50, available=10**12) == 50

@@ -1,4 +1,5 @@
-"""The state store on real SQLite files: runs round-trip, writes are all-or-nothing, tables are shared."""
+"""The state store on real SQLite files and a real PostgreSQL server (``state_backend``): runs round-trip,
+writes are all-or-nothing, tables are shared."""
 
 from __future__ import annotations
 
@@ -7,8 +8,10 @@ import sqlite3
 from pathlib import Path
 
 import pandas as pd
+import psycopg
 import pytest
-from sqlalchemy import Column, Integer, MetaData, String, Table, insert, select
+from sqlalchemy import Column, Integer, MetaData, String, Table, insert, inspect, select
+from sqlalchemy.engine import make_url
 
 from integrate import cli
 from integrate.errors import ConfigError
@@ -35,9 +38,9 @@ def _default_url(monkeypatch: pytest.MonkeyPatch) -> None:
     monkeypatch.delenv(STATE_URL_ENV, raising=False)
 
 
-def test_runs_round_trip(tmp_path: Path) -> None:
+def test_runs_round_trip(tmp_path: Path, state_backend: str) -> None:
     store = StateStore.for_workspace(tmp_path)
-    assert state_database(tmp_path).is_file() and store.last_run() is None
+    assert state_database(tmp_path).is_file() == (state_backend == "sqlite") and store.last_run() is None
     first = store.record_run(NewRun(
         started_at="2026-01-01T10:00:00Z", crosswalk=crosswalk([("a", "1", "E1"), ("a", "2", "E1"), ("b", "9", "E2")]),
         mapping_hashes={"mappings/canonical.yaml": "c" * 64}, input_hashes={"demo/a.csv": "d" * 64, "sql://x": None},
@@ -64,7 +67,7 @@ def test_runs_round_trip(tmp_path: Path) -> None:
     assert store.entity_history("E1").values.tolist() == [[first, 2]]
 
 
-def test_a_failed_write_leaves_no_partial_run(tmp_path: Path) -> None:
+def test_a_failed_write_leaves_no_partial_run(tmp_path: Path, state_backend: str) -> None:
     store = StateStore.for_workspace(tmp_path)
     store.record_run(NewRun(started_at="2026-01-01T00:00:00Z", crosswalk=crosswalk([("a", "1", "E1")])))
     # the same record twice breaks the crosswalk's primary key half-way through the transaction
@@ -73,12 +76,18 @@ def test_a_failed_write_leaves_no_partial_run(tmp_path: Path) -> None:
         store.record_run(NewRun(started_at="2026-01-02T00:00:00Z", crosswalk=bad,
                                 mapping_hashes={"m.yaml": "0" * 64}))
     assert len(store.runs()) == 1
-    with sqlite3.connect(state_database(tmp_path)) as raw:  # checked without SQLAlchemy
-        assert raw.execute("select count(*) from run_file").fetchone() == (0,)
-        assert raw.execute("select count(*) from run_crosswalk").fetchone() == (1,)
+    if state_backend == "sqlite":
+        with sqlite3.connect(state_database(tmp_path)) as raw:  # checked without SQLAlchemy
+            assert raw.execute("select count(*) from run_file").fetchone() == (0,)
+            assert raw.execute("select count(*) from run_crosswalk").fetchone() == (1,)
+    else:
+        with psycopg.connect(make_url(store.engine.url).set(drivername="postgresql")  # checked with the bare driver
+                             .render_as_string(hide_password=False)) as raw:
+            assert raw.execute("select count(*) from run_file").fetchone() == (0,)
+            assert raw.execute("select count(*) from run_crosswalk").fetchone() == (1,)
 
 
-def test_another_module_keeps_its_tables_in_the_same_database(tmp_path: Path) -> None:
+def test_another_module_keeps_its_tables_in_the_same_database(tmp_path: Path, state_backend: str) -> None:
     other = MetaData()
     notes = Table("review_note", other, Column("id", Integer, primary_key=True), Column("text", String))
     engine = state_engine(tmp_path)
@@ -90,8 +99,7 @@ def test_another_module_keeps_its_tables_in_the_same_database(tmp_path: Path) ->
     assert store.engine is engine  # one engine per database, shared
     with engine.connect() as conn:
         assert conn.execute(select(notes.c.text)).scalars().all() == ["checked"]
-    with sqlite3.connect(state_database(tmp_path)) as raw:
-        tables = {row[0] for row in raw.execute("select name from sqlite_master where type = 'table'")}
+    tables = set(inspect(engine).get_table_names())
     assert {"run", "run_file", "run_crosswalk", "run_change", "review_note"} <= tables
 
 
@@ -151,7 +159,8 @@ def test_changes_command_without_runs(tmp_path: Path, capsys: pytest.CaptureFixt
     assert not state_database(tmp_path).exists()
 
 
-def test_first_run_summary_from_the_changes_command(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_first_run_summary_from_the_changes_command(tmp_path: Path, capsys: pytest.CaptureFixture[str],
+                                                   state_backend: str) -> None:
     StateStore.for_workspace(tmp_path).record_run(NewRun(
         started_at="2026-01-01T00:00:00Z", crosswalk=crosswalk([("a", "1", "E1"), ("b", "2", "E2")]),
         summary={"previous_run": None, "created": 2}))

@@ -4,4 +4,5 @@ A command module parses nothing itself beyond its own arguments and calls the pu
 prints results. Add a command by adding its module name to ``COMMANDS``.
 """
 
-COMMANDS = ("run", "evaluate", "schema", "review", "check", "suggest", "show", "changes", "explain", "blocking")
+COMMANDS = ("run", "evaluate", "schema", "review", "check", "suggest", "show", "changes", "explain", "blocking",
+            "mappings", "serve", "split", "export", "init")

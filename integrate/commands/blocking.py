@@ -25,7 +25,8 @@ def main(args: argparse.Namespace) -> int:
     regions = {e.mapping.source: e.mapping.region for e in ws.sources}
     prepared = standardise(records, ws.canonical, regions)
     rules = list(ws.canonical.blocking) or default_rules(ws.canonical)
-    pairs, report = block(prepared, rules, max_block_size=ws.canonical.max_block_size)
+    pairs, report = block(prepared, rules, max_block_size=ws.canonical.max_block_size,
+                          order_columns=[n for n, f in ws.canonical.fields.items() if f.is_compared()])
     print(f"{len(records)} records, {report.candidate_pairs} candidate pairs of {report.all_pairs} "
           f"({report.candidate_pairs / max(len(records), 1):.1f} per record); "
           f"reduction ratio {report.reduction_ratio:.6f}")
@@ -36,6 +37,10 @@ def main(args: argparse.Namespace) -> int:
         print(f"{rule:<{width}}  {report.pairs_per_rule[rule]:>9}  {report.unique_per_rule[rule]:>9}  {largest}")
     for rule, key, size in report.skipped_blocks:
         print(f"skipped: rule '{rule}', key '{key}' shared by {size} records (over max_block_size)")
+    for rule, count, top, alone in report.split_blocks:
+        shown = ", ".join(f"'{k}' ({n})" for k, n in top)
+        print(f"split: rule '{rule}', {count} key values too large to compare all against all (largest: {shown}); "
+              f"{alone} of their records have no candidate pair")
     if args.truth:
         truth = read_crosswalk_file(args.truth)
         crosswalk = records[["_source", "_record_id"]].rename(columns={"_source": "source", "_record_id": "record_id"})

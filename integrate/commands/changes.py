@@ -13,6 +13,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     cmd.add_argument("workspace", nargs="?", default=".", help="workspace folder (default: current folder)")
     cmd.add_argument("--run", type=int, help="run number (default: the last run)")
     cmd.add_argument("--limit", type=int, default=30, help="entities to list (default: 30; 0 lists none)")
+    cmd.add_argument("--since", type=int, metavar="RUN",
+                     help="compare with this earlier run instead of the run just before (any two runs)")
     cmd.set_defaults(func=main)
 
 
@@ -34,6 +36,10 @@ def main(args: argparse.Namespace) -> int:
     if run is None:
         raise InputError(f"run {args.run} is not in the state store", value=args.run, reason="unknown_run",
                          hint=f"runs are numbered {runs[0].run_id} to {runs[-1].run_id}")
+    if args.since is not None:  # any two runs: commands/changes_since.py
+        from .changes_since import print_since
+
+        return print_since(store, runs, args.since, run, args.limit)
     summary = run.summary
     console.print(f"Run {run.run_id} (started {run.started_at}): {run.records} records, {run.entities} entities.")
     if summary.get("previous_run") is None:

@@ -7,6 +7,7 @@ import getpass
 from pathlib import Path
 
 from ..errors import InputError
+from .serve import port_number
 
 
 def _default_reviewer() -> str:
@@ -22,7 +23,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                                     "the terminal; move decisions between workspaces; audit automatic links.")
     rv.add_argument("workspace", nargs="?", default=".", help="workspace folder (default: current folder)")
     rv.add_argument("--host", default="127.0.0.1", help="address to listen on (default: 127.0.0.1, this machine only)")
-    rv.add_argument("--port", type=int, default=8765, help="port to listen on (default: 8765)")
+    rv.add_argument("--port", type=port_number, default=8765, help="port to listen on (default: 8765)")
     rv.add_argument("--reviewer", default=None, help="your name, stored with every decision (default: login name)")
     rv.add_argument("--terminal", action="store_true", help="review in this terminal instead of a browser")
     rv.add_argument("--source", help="terminal: only pairs with a record from this source")

@@ -11,10 +11,17 @@ import pandas as pd
 
 from ..columns import RECORD_DATE, RECORD_ID, ROW, SOURCE, TRUST
 from ..errors import ConversionError, InputError, InputErrors, MappingError
+from ..phone_numbers import is_country, to_e164
+from ..text_normalise import map_distinct
+from .addresses import split_addresses
 from .dates import parse_dates
 from .money import RatesTable, convert_money, is_currency, parse_amounts
+from .names import split_names
+from .numbers import to_plain_numbers
+from .slips import UNIT_FIXES, describe, fix_slips
 from .spec import CanonicalSchema, ColumnMap, SourceMapping
 from .units import check_compatible, convert_quantity, resolve_unit
+from .unreadable import unreadable_problems
 
 FAILURE_COLUMNS = ["source", "file", "row", "column", "value", "reason", "message"]
 
@@ -228,6 +235,20 @@ def apply_mapping(
         if entry.values is not None:
             values = attempt(_drop_unmapped(values, entry), _apply_value_map, values, entry, column, data_file,
                              rows)
+        if entry.address_format and entry.address_fields:
+            parts, failed = split_addresses(values, entry.address_format)
+            for part, target in entry.address_fields.items():
+                _fill(out, target, parts[part])
+            _cell_failures(collect, values, failed, column, "address_not_split",
+                           f"is not an address in the layout '{entry.address_format}'")
+            continue
+        if entry.name_format:
+            given, family, failed = split_names(values)
+            _fill(out, entry.name_fields[0], given)
+            _fill(out, entry.name_fields[1], family)
+            _cell_failures(collect, values, failed, column, "name_not_split",
+                           "is not a name in a layout name_format 'auto' reads")
+            continue
         if entry.split:
             parts = values.str.strip().str.extract(entry.split)
             for target in entry.targets():
@@ -237,6 +258,14 @@ def apply_mapping(
         target = entry.field
         converted = attempt(None, _convert, values, entry, column, target, raw, mapping, canonical, rates,
                             collect, mapping_file, positions)
+        if converted is not None and entry.fix_unit_slips:
+            if canonical.fields[target].range is None or canonical.fields[target].type != "quantity":
+                line, col = positions.at("columns", column)
+                attempt(None, _raise, _mapping_error(
+                    mapping_file, column, f"'fix_unit_slips' needs a quantity field with a 'range' ('{target}' has "
+                    "none)", "needs_range", "add 'range: [low, high]' to the field in canonical.yaml", line, col))
+            else:
+                converted = _fix_unit_slips(out, converted, entry, target, canonical)
         if converted is not None:
             _fill(out, target, converted)
 
@@ -246,6 +275,13 @@ def apply_mapping(
         if on_error == "raise":
             raise _fatal_errors(fatal)
         problems.extend(_fatal_errors(fatal).errors)
+    limit = mapping.max_unreadable if mapping.max_unreadable is not None else canonical.max_unreadable
+    too_many = unreadable_problems(raw, failures[~failures["reason"].isin(FATAL_REASONS)], mapping, data_file,
+                                   limit)
+    if too_many:
+        if on_error == "raise":
+            raise too_many[0] if len(too_many) == 1 else InputErrors(too_many)
+        problems.extend(too_many)
     return MappedSource(mapping.source, out, failures, unmapped, problems)
 
 
@@ -335,6 +371,8 @@ def _convert(values: pd.Series, entry: ColumnMap, column: str, target: str, raw:
     line, col = positions.at("columns", column)
     if spec.type == "date":
         return _parse_date_column(raw.assign(**{column: values}), column, mapping, mapping_file, collect, positions)
+    if spec.type in ("quantity", "money"):
+        values = _in_plain_numbers(values, entry.number_format or mapping.number_format, collect, column)
     if spec.type == "quantity":
         assert spec.unit is not None
         if entry.unit:
@@ -352,14 +390,17 @@ def _convert(values: pd.Series, entry: ColumnMap, column: str, target: str, raw:
     if spec.type == "money":
         amounts, failures = parse_amounts(values)
         collect.add(failures, column)
-        if entry.currency:
-            if not is_currency(entry.currency):
-                raise _mapping_error(mapping_file, column, f"'{entry.currency}' is not an ISO 4217 currency code",
-                                     "unknown_currency", "use a three-letter code such as EUR, GBP, USD", line, col)
-            currencies: str | pd.Series = entry.currency.strip().upper()
-        else:
-            assert entry.currency_column is not None
+        if entry.currency and not is_currency(entry.currency):
+            raise _mapping_error(mapping_file, column, f"'{entry.currency}' is not an ISO 4217 currency code",
+                                 "unknown_currency", "use a three-letter code such as EUR, GBP, USD", line, col)
+        currencies: str | pd.Series
+        if entry.currency_column:
             currencies = raw[entry.currency_column].astype("string").str.strip().str.upper()
+            if entry.currency:  # the fallback for blank currency cells
+                currencies = currencies.replace("", pd.NA).fillna(entry.currency.strip().upper())
+        else:
+            assert entry.currency is not None
+            currencies = entry.currency.strip().upper()
         if entry.priced_on:
             dates = _parse_date_column(raw, entry.priced_on, mapping, mapping_file, collect, positions)
             dates = dates.fillna(mapping.as_of.isoformat())
@@ -384,7 +425,55 @@ def _convert(values: pd.Series, entry: ColumnMap, column: str, target: str, raw:
         valid, failures = check_emails(values)  # '=1+2' or '<script>' are failures, not addresses
         collect.add(failures, column)
         return valid
+    if spec.type == "phone" and entry.country:
+        plans = canonical.calling_code_plans()
+        if not is_country(entry.country, plans):
+            raise _mapping_error(mapping_file, column, f"phone country '{entry.country}' is not known",
+                                 "unknown_country", "use an ISO 3166 code ('DE'), a calling code ('+49'), or "
+                                 "declare the calling code under 'calling_codes:' in canonical.yaml", line, col)
+        text = values.str.strip().replace("", pd.NA)
+        return map_distinct(text, lambda v: to_e164(v, entry.country, plans)).astype("string")
     return values.str.strip().replace("", pd.NA).astype("string")
+
+
+def _raise(error: InputError) -> None:
+    raise error
+
+
+def _fix_unit_slips(out: pd.DataFrame, converted: pd.Series, entry: ColumnMap, target: str,
+                    canonical: CanonicalSchema) -> pd.Series:
+    """Rows written in another unit reconverted; each named in the records' UNIT_FIXES column."""
+    spec = canonical.fields[target]
+    assert entry.unit and spec.unit and spec.range
+    declared = resolve_unit(entry.unit)
+    fixed, units = fix_slips(converted.reset_index(drop=True), declared, resolve_unit(spec.unit), spec.range)
+    if units.notna().any():
+        notes = describe(target, declared, units)
+        previous = out[UNIT_FIXES] if UNIT_FIXES in out else pd.Series(pd.NA, index=out.index, dtype="string")
+        out[UNIT_FIXES] = previous.where(notes.isna(), previous.fillna("").str.cat(notes, sep="; ").str.lstrip("; "))
+    return fixed
+
+
+def _cell_failures(collect: _Collector, values: pd.Series, failed: pd.Series, column: str, reason: str,
+                   message: str) -> None:
+    if failed.any():
+        shown = values[failed].astype(str)
+        collect.add(pd.DataFrame({"index": shown.index, "value": shown.to_numpy(), "reason": reason,
+                                  "message": ("'" + shown + "' " + message).to_numpy()}), column)
+
+
+def _in_plain_numbers(values: pd.Series, fmt: str | None, collect: _Collector, column: str) -> pd.Series:
+    """Number texts in a local format rewritten to plain 1234.56; values not in the format become failures."""
+    if fmt is None:
+        return values
+    plain = to_plain_numbers(values, fmt)
+    bad = plain.str.startswith("<unreadable: ").fillna(False).astype(bool)
+    if bad.any():
+        shown = values[bad].astype(str)
+        collect.add(pd.DataFrame({"index": shown.index, "value": shown.to_numpy(), "reason": "bad_number",
+                                  "message": ("'" + shown + f"' is not a number written as {fmt}").to_numpy()}),
+                    column)
+    return plain.mask(bad, pd.NA)
 
 
 _FATAL_HINTS = {

@@ -22,11 +22,13 @@ from ..sources import add_read_failures, read_source
 from ..workspace import CANONICAL_FILE, MAPPINGS_DIR, SourceEntry, Workspace
 from .apply import FATAL_REASONS, MappedSource, apply_mapping
 from .distribution import NumericFeed, compare_distributions, compare_linked, numeric_fields, range_findings
+from .drift import drift_findings
 from .factors import explanations_for
 from .findings import LEVELS, CheckReport, Finding, rows_text
 from .load import load_canonical, load_source_mapping, locate_in, position_of, read_yaml
 from .meanings import field_meanings, meaning_findings
-from .money import RatesTable, load_rates
+from .money import RatesTable
+from .rates_layout import load_workspace_rates
 from .redundancy import redundant_columns
 from .spec import CanonicalSchema
 
@@ -87,7 +89,7 @@ def _load(root: Path, report: CheckReport) -> _Loaded | None:
     rates = None
     if canonical.rates:
         try:
-            rates = load_rates(root / canonical.rates)
+            rates = load_workspace_rates(canonical, root / canonical.rates, canonical.rates)
         except InputError as exc:
             exc.file = canonical.rates
             report.add([Finding.from_error(exc)])
@@ -200,6 +202,7 @@ def check_workspace(root: str | Path = ".", *, crosswalk: pd.DataFrame | None = 
     report.meanings = field_meanings(canonical, [e.mapping for e in ws.sources])
     report.add(meaning_findings(canonical, [e.mapping for e in ws.sources], locate))
     frames: list[pd.DataFrame] = []
+    raws: dict[str, pd.DataFrame] = {}  # as read, for the comparison with last month's profiles (drift.py)
     data_files: dict[str, str] = {}
     for entry in ws.sources:
         mapping = entry.mapping
@@ -219,6 +222,7 @@ def check_workspace(root: str | Path = ".", *, crosswalk: pd.DataFrame | None = 
         if mapped.frame.empty:
             report.add([Finding("warning", "no_records", no_records_text(mapping.source), data_file,
                                 source=mapping.source, hint=NO_RECORDS_HINT)])
+        raws[mapping.source] = raw
         report.add(Finding.from_error(e, mapping.source) for e in mapped.problems)
         if mapped.unmapped_columns:
             file, line, col = locate(mapping.source, "")
@@ -244,6 +248,7 @@ def check_workspace(root: str | Path = ".", *, crosswalk: pd.DataFrame | None = 
         if crosswalk is not None:
             report.linked_from = report.linked_from or "the given crosswalk"
             report.add(compare_linked(records, _entity_ids(records, crosswalk), canonical, feeds, locate))
+    report.add(drift_findings(ws, raws, loaded.rates))
     report.findings.sort(key=lambda f: LEVELS.index(f.level))
     return report
 
@@ -265,7 +270,7 @@ def run_value_findings(records: pd.DataFrame, ws: Workspace, crosswalk: pd.DataF
     """
     rates = None
     if ws.canonical.rates and (ws.root / ws.canonical.rates).is_file():
-        rates = load_rates(ws.root / ws.canonical.rates)
+        rates = load_workspace_rates(ws.canonical, ws.root / ws.canonical.rates)
     loaded = _Loaded(ws, rates)
     locate = _Locator(ws)
     present = set(records[SOURCE].unique()) if SOURCE in records else set()

@@ -92,6 +92,8 @@ def _key(text: str) -> str:
 
 
 def _value(value: object) -> str:
+    if isinstance(value, (dict, list, tuple)):
+        return json.dumps(value, ensure_ascii=False)  # a JSON flow collection is YAML too
     if isinstance(value, (int, float)):
         return str(value)
     text = str(value)
@@ -140,6 +142,12 @@ def render_mapping(source: str, spec: ReadSpec, as_of: dt.date, columns: list[Co
         out += _comment("".join(f"TODO: {t}\n" for t in s.todos), "  ")
         if s.role == "split":
             out += [f"  {_key(s.column)}:", f"    split: {json.dumps(s.options['split'])}"]
+        elif s.role == "address":
+            out += [f"  {_key(s.column)}:"] + [f"    {k}: {_value(v)}" for k, v in s.options.items()]
+        elif s.role == "names":
+            out += [f"  {_key(s.column)}:", "    name_format: auto"]
+            if "name_fields" in s.options:
+                out.append(f"    name_fields: [{', '.join(map(str, s.options['name_fields']))}]")
         elif s.options:
             out += [f"  {_key(s.column)}:", f"    field: {s.field}"]
             out += [f"    {k}: {_value(v)}" for k, v in s.options.items()]

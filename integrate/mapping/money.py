@@ -331,7 +331,8 @@ def _missing_rate_message(
     listed = ", ".join(distinct[:_SHOWN_DATES].strftime("%Y-%m-%d"))
     if len(distinct) > _SHOWN_DATES:
         listed += f" ... and {len(distinct) - _SHOWN_DATES} more"
-    limit = "no rates table is set" if rates is None else f"none at most {max_age_days} days old"
+    limit = ("no rates table is set" if rates is None else
+             f"none at most {max_age_days} days old; 'rate_max_age_days' in canonical.yaml allows older ones")
     return f"has no rate for {currency}->{base} ({limit}) on {listed}"
 
 

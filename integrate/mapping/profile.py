@@ -14,6 +14,7 @@ import pandas as pd
 from ..columns import ROW
 from .dates import parse_dates
 from .money import parse_amounts
+from .numbers import DEFAULT, detect_number_format, to_plain_numbers
 
 # Patterns of values found in exports (common practice; deliberately loose: they rank guesses).
 _EMAIL = r"[^@\s]+@[^@\s]+\.[A-Za-z]{2,}"
@@ -48,6 +49,9 @@ class ColumnProfile:
     numbers: tuple[float, float, float] | None = None  # min, median, max of the values read as numbers
     date_formats: dict[str, float] = field(default_factory=dict)  # layout -> share of values it reads
     symbols: str = ""  # currency symbols seen in the values
+    number_format: str | None = None  # a local number format the values are written in ('1.234,56')
+    codes: list[str] = field(default_factory=list)  # every distinct value, when there are at most 12
+    samples: list[str] = field(default_factory=list)  # up to 50 distinct values, most frequent first
 
     @property
     def empty_rate(self) -> float:
@@ -81,6 +85,8 @@ class ColumnProfile:
         text = f"{self.kind()}, {self.empty_rate:.0%} empty, {self.distinct} distinct"
         if self.numbers and self.kind() == "number":
             text += f", {self.numbers[0]:g} to {self.numbers[2]:g} (median {self.numbers[1]:g})"
+            if self.number_format:
+                text += f" written {self.number_format}"
         if self.examples:
             text += ", e.g. " + ", ".join(repr(e) for e in self.examples[:3])
         return text
@@ -102,6 +108,9 @@ def profile_column(values: pd.Series) -> ColumnProfile:
                             list(present.drop_duplicates().head(3)))
     if distinct.empty:
         return profile
+    if len(counts) <= 12:
+        profile.codes = [str(v) for v in counts.sort_values(ascending=False, kind="mergesort").index]
+    profile.samples = [str(v) for v in counts.sort_values(ascending=False, kind="mergesort").index[:50]]
     s = distinct.str
     digits = s.replace(r"\D", "", regex=True).str.len()
     profile.shares = {
@@ -114,8 +123,15 @@ def profile_column(values: pd.Series) -> ColumnProfile:
         "code": _share(distinct, weights, s.fullmatch(_CODE)),
     }
     amounts, _ = parse_amounts(distinct)
+    if amounts.notna().mean() < 0.9 and s.contains(r"\d[,. '’\u00a0\u202f]\d").any():
+        fmt, share = detect_number_format(distinct)
+        if fmt != DEFAULT and share >= 0.9:  # decimal commas and the like: read the values in that format
+            local, _ = parse_amounts(to_plain_numbers(distinct, fmt).astype(object))
+            if local.notna().sum() > amounts.notna().sum():
+                amounts, profile.number_format = local, fmt
     # digits split by spaces are a phone number or a code, not an amount
-    profile.shares["number"] = _share(distinct, weights, amounts.notna() & ~s.contains(r"\d\s+\d"))
+    spaced = s.contains(r"\d\s+\d") & (not (profile.number_format or "").startswith("1 "))
+    profile.shares["number"] = _share(distinct, weights, amounts.notna() & ~spaced)
     if amounts.notna().any():
         numbers = amounts.repeat(weights.astype(int).to_numpy()).dropna()
         profile.numbers = (float(numbers.min()), float(numbers.median()), float(numbers.max()))

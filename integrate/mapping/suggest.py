@@ -22,6 +22,7 @@ from rapidfuzz import fuzz
 from ..errors import InputError, InputErrors
 from ..sources import read_source
 from ..workspace import CANONICAL_FILE, MAPPINGS_DIR, Workspace
+from .addresses import split_address
 from .draft import draft_read_spec, render_mapping, source_name
 from .factors import unit_label
 from .load import load_canonical, load_source_mapping
@@ -29,6 +30,7 @@ from .meanings import header_currency, header_unit
 from .money import is_currency
 from .profile import TWO_DIGIT_PIVOT, ColumnProfile, profile_frame
 from .spec import CanonicalField, CanonicalSchema, SourceMapping
+from .suggest_rules import code_values, pricing_date, vetoed
 from .suggest_words import CONCEPTS, ID_WORDS, NAME_PHRASES, normalise_header
 from .units import resolve_unit, unit_registry
 
@@ -100,6 +102,8 @@ def _value_fit(profile: ColumnProfile, spec: CanonicalField) -> float:
             return 0.0
         return 1.0 if t == "money" or _unit_from_values(profile, spec) else 0.6
     if t == "category":
+        if code_values(profile, profile.codes) is not None:
+            return 1.0
         return 1.0 if profile.distinct <= 50 else 0.3
     if t == "identifier":
         return 1.0 if profile.is_unique else 0.5
@@ -124,7 +128,9 @@ def _unit_from_values(profile: ColumnProfile, spec: CanonicalField) -> tuple[str
             fits.append((abs(math.log(converted / middle)) if middle > 0 else 0.0, unit, converted))
     if not fits:
         return None
-    _, unit, converted = min(fits)
+    # the field's own unit when the values fit it: exports of a schema's users are mostly in its units
+    own = [f for f in fits if f[1] == target]
+    _, unit, converted = own[0] if own else min(fits)
     lo, hi = profile.numbers[0] * converted / profile.numbers[1], profile.numbers[2] * converted / profile.numbers[1]
     return unit, (f"as {unit_label(unit)} the values ({profile.numbers[0]:g} to {profile.numbers[2]:g}) give "
                   f"{lo:.4g} to {hi:.4g} {spec.unit}, inside the plausible range [{low:g}, {high:g}]")
@@ -134,8 +140,11 @@ def _score(profile: ColumnProfile, name: str, spec: CanonicalField, phrases: set
     header = normalise_header(profile.name)
     best_phrase = max(phrases, key=lambda p: _similarity(header, p), default="")
     h = _similarity(header, best_phrase)
-    v = _value_fit(profile, spec)
+    v = 0.0 if vetoed(profile, spec) else _value_fit(profile, spec)
     if v == 0.0:
+        return 0.0, []
+    if spec.type in ("quantity", "money", "date") and h < 0.5 and not (spec.type == "money" and profile.symbols):
+        # numbers and dates look alike across many fields: without a word of the header for it, do not guess
         return 0.0, []
     confidence = 0.6 * h + 0.4 * v
     if spec.type in ("email", "postcode") and v >= 0.9:
@@ -163,7 +172,7 @@ def _record_id(profiles: list[ColumnProfile]) -> tuple[ColumnProfile, list[str]]
 
 
 def _options(s: ColumnSuggestion, spec: CanonicalField, canonical: CanonicalSchema,
-             profiles: list[ColumnProfile]) -> None:
+             profiles: list[ColumnProfile], taken: frozenset[str] = frozenset()) -> None:
     p = s.profile
     if spec.type == "date":
         fmt, share, tied = p.best_date_format()
@@ -176,7 +185,10 @@ def _options(s: ColumnSuggestion, spec: CanonicalField, canonical: CanonicalSche
         if tied:
             s.todos.append(f"the values read as {fmt} and as {', '.join(tied)} alike (no day above 12): "
                            "confirm which the export uses")
-    elif spec.type == "quantity":
+    if spec.type in ("quantity", "money") and p.number_format:
+        s.options["number_format"] = p.number_format
+        s.reasons.append(f"numbers written {p.number_format}")
+    if spec.type == "quantity":
         said = header_unit(p.name)
         guessed = _unit_from_values(p, spec)
         if said:
@@ -191,6 +203,12 @@ def _options(s: ColumnSuggestion, spec: CanonicalField, canonical: CanonicalSche
         else:
             s.options["unit"] = spec.unit
             s.todos.append(f"unit not known: set the unit the values are in (canonical: {spec.unit})")
+    elif spec.type == "category":
+        mapped = code_values(p, p.codes)
+        if mapped is not None:
+            s.options["values"] = mapped
+            s.reasons.append("codes drafted onto F / M / X")
+            s.todos.append("check the value map (codes mapped to null are dropped)")
     elif spec.type == "money":
         said = header_currency(p.name) or (_SYMBOLS.get(p.symbols) if len(p.symbols) == 1 else None)
         codes = [q for q in profiles if q.share("code") >= 0.9 and q.distinct <= 50
@@ -204,6 +222,13 @@ def _options(s: ColumnSuggestion, spec: CanonicalField, canonical: CanonicalSche
         else:
             s.options["currency"] = canonical.base_currency
             s.todos.append(f"currency not known: set the ISO 4217 code (base currency {canonical.base_currency})")
+        foreign = s.options.get("currency", canonical.base_currency) != canonical.base_currency
+        if foreign or "currency_column" in s.options:
+            dated = pricing_date(profiles, p, taken)
+            if dated:
+                s.options["priced_on"] = dated
+                s.reasons.append(f"'{dated}' beside it dates each amount (its pricing date)")
+                s.todos.append(f"confirm that '{dated}' is the date each amount was paid")
 
 
 def _short_unit(unit: str) -> str:
@@ -238,8 +263,10 @@ def match_columns(profiles: list[ColumnProfile], canonical: CanonicalSchema,
             continue
         s.role, s.field, s.confidence, s.reasons = "field", name, confidence, list(reasons)
         taken.add(name)
-        _options(s, canonical.fields[name], canonical, profiles)
+        _options(s, canonical.fields[name], canonical, profiles,
+                 frozenset(c for c, x in suggestions.items() if x.field and "birth" in x.field))
     _name_split(suggestions, canonical, taken)
+    _address_split(suggestions, canonical, taken)
     for s in suggestions.values():
         s.alternatives = [a for a in s.alternatives if a[0] != s.field][:2]
         if s.role == "ignore" and not s.todos:
@@ -256,16 +283,42 @@ def _name_split(suggestions: dict[str, ColumnSuggestion], canonical: CanonicalSc
         return
     for s in suggestions.values():
         if s.role == "ignore" and normalise_header(s.column) in NAME_PHRASES and s.profile.share("name") >= 0.5:
-            comma = s.profile.examples and all("," in e for e in s.profile.examples)
-            s.role, s.confidence = "split", 0.6
-            if comma:
-                s.options["split"] = rf"^(?P<{family}>[^,]*),\s*(?P<{given}>.*)$"
-                s.reasons = ["whole names written 'Family, Given'"]
-            else:
-                s.options["split"] = rf"^(?P<{given}>.*?)\s+(?P<{family}>\S+)$"
-                s.reasons = ["whole names; the last word taken as the family name"]
-                s.todos.append("check names with particles ('van der ...') and several family names")
+            s.role, s.confidence = "names", 0.6
+            s.options["name_format"] = "auto"
+            if (given, family) != ("given_name", "family_name"):
+                s.options["name_fields"] = [given, family]
+            s.reasons = ["whole names: name_format 'auto' reads 'Family, Given', 'Given M. Family', particles "
+                         "and single words"]
+            s.todos.append("check `integrate check` for names it could not split")
             return
+
+
+def _address_split(suggestions: dict[str, ColumnSuggestion], canonical: CanonicalSchema, taken: set[str]) -> None:
+    """A free-text address cell (commas and a postcode) is proposed for splitting into the address fields."""
+    fields = {part: next((n for n, f in canonical.fields.items() if part in n and n not in taken
+                          and f.type == ("postcode" if part == "postcode" else "text")), None)
+              for part in ("street", "town", "postcode")}
+    for s in suggestions.values():
+        if s.role not in ("ignore", "field") or (s.role == "field" and canonical.fields[str(s.field)].type != "text"):
+            continue
+        sample = s.profile.examples
+        if not sample or s.profile.share("name") > 0.5:
+            continue
+        read = [split_address(v) for v in s.profile.samples]
+        share = sum(1 for r in read if r and "street" in r and "postcode" in r) / max(len(read), 1)
+        if share < 0.8 or not any("," in v for v in s.profile.samples):
+            continue
+        if s.role == "field":
+            fields["street"] = s.field
+        wanted = {part: name for part, name in fields.items() if name}
+        if "street" not in wanted:
+            continue
+        s.role, s.field, s.confidence = "address", None, 0.7
+        s.options = {"address_format": "auto", "address_fields": wanted}
+        s.reasons = [f"{share:.0%} of values are whole addresses with a postcode"]
+        s.todos = ["check the split: street before the first comma, town last, postcode by its shape"]
+        taken.update(wanted.values())
+        return
 
 
 def suggest_mapping(source_file: str | Path, *, workspace: str | Path = ".", name: str | None = None,

@@ -17,6 +17,8 @@ import pandas as pd
 from ..compare import GRADE_NAMES
 from ..mapping.spec import Thresholds
 from .charts import Marker, category_chart, histogram_chart
+from .mapping_section import mapping_changes_section
+from .missing import missing_section
 from .tables import write_text_atomic
 
 if TYPE_CHECKING:
@@ -388,6 +390,7 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
     conflict_table = conflict_table.sort_values(["entities with conflicting values", "field"],
                                                 ascending=[False, True], kind="mergesort")
     add("<h3>Conflicts per field</h3>" + _table(conflict_table, ("entities with conflicting values",)))
+    add(missing_section(result))  # outputs/missing.py
     add(_source_pair_section(result))
     add(_clusters_section(result))
     add(_changes_section(result))
@@ -399,6 +402,7 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
     add("<h2>Mapping files used</h2>")
     hashes = pd.DataFrame({"file": list(result.mapping_hashes), "sha256": list(result.mapping_hashes.values())})
     add(_table(hashes))
+    add(mapping_changes_section(result, ws))
     if ws is not None:
         fields = pd.DataFrame([{"field": n, "type": f.type, "meaning": f.meaning, "resolution rule": f.resolve}
                                for n, f in ws.canonical.fields.items()])

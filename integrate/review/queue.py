@@ -164,9 +164,10 @@ def queue_items(data: ReviewData, store: DecisionStore, kind: str = POSSIBLE, *,
 
 
 def next_key(data: ReviewData, store: DecisionStore, reviewer: str, kind: str = POSSIBLE, *,
-             source: str | None = None, field: str | None = None, skip: Key | None = None
+             source: str | None = None, field: str | None = None, skip: Key | None = None, claim: bool = True
              ) -> tuple[Key | None, dict[str, int]]:
-    """The next pair for this reviewer (claimed for them) and the queue's progress."""
+    """The next pair for this reviewer and the queue's progress; ``claim`` holds it for them (a write:
+    only on a POST), without it the pair is only looked up."""
     items = queue_items(data, store, kind, source=source, field=field)
     progress = {"total": len(items), "decided": int((items["state"] == "decided").sum()),
                 "deferred": int((items["state"] == "deferred").sum())}
@@ -178,7 +179,8 @@ def next_key(data: ReviewData, store: DecisionStore, reviewer: str, kind: str = 
     for wanted in ("open", "deferred"):
         candidates = [k for k, s in zip(keys, state) if s == wanted and k != skip]
         # first a pair nobody else holds (claiming is atomic, so two reviewers never get the same one)
-        chosen = next((k for k in candidates if pair_text(k) not in others and store.claim(k, reviewer)), None)
+        chosen = next((k for k in candidates if pair_text(k) not in others
+                       and (not claim or store.claim(k, reviewer))), None)
         if chosen is None and candidates:
             chosen = candidates[0]  # all held by others: show one anyway; the store settles any race
         if chosen is not None:

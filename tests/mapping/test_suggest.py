@@ -138,8 +138,8 @@ def test_unit_guessed_from_values_when_header_is_silent(workspace: Path) -> None
 
 def test_whole_name_column_is_split(workspace: Path) -> None:
     ws = load_workspace(workspace)
-    names = pd.Series(["Eskdale, Kit", "Merrow, Sorley", "Juniper, Ailsa"], name="Name")
+    names = pd.Series(["Eskdale, Kit", "Sorley Merrow", "Juniper, Ailsa"], name="Name")  # mixed layouts
     ids = pd.Series(["1", "2", "3"], name="id")
     found = {s.column: s for s in match_columns([profile_column(ids), profile_column(names)], ws.canonical)}
-    assert found["Name"].role == "split"
-    assert found["Name"].options["split"] == r"^(?P<family_name>[^,]*),\s*(?P<given_name>.*)$"
+    assert found["Name"].role == "names"
+    assert found["Name"].options == {"name_format": "auto"}

@@ -1,4 +1,5 @@
-"""The decision store on a real SQLite file: conflicts, replacing, undo, history, load_decisions."""
+"""The decision store on a real SQLite file and a real PostgreSQL server (every test runs on both):
+conflicts, replacing, undo, history, load_decisions."""
 
 from __future__ import annotations
 
@@ -17,17 +18,19 @@ from integrate.review.store import (
     state_database,
 )
 
+pytestmark = pytest.mark.usefixtures("state_backend")
+
 
 def _decision(decision: str, reviewer: str, a: str = "1", b: str = "2", **extra: object) -> NewDecision:
     return NewDecision(source_a="shop", record_id_a=a, source_b="club", record_id_b=b, decision=decision,
                        reviewer=reviewer, **extra)
 
 
-def test_a_decision_is_stored_with_its_scores_and_note(tmp_path: Path) -> None:
+def test_a_decision_is_stored_with_its_scores_and_note(tmp_path: Path, state_backend: str) -> None:
     store = DecisionStore.for_workspace(tmp_path)
     row = store.record(_decision("same", "ana", note="same birthday and e-mail", probability=0.51, weight=3.2,
                                  run_decision="possible link", scores={"grade_email": "exact"}))
-    assert state_database(tmp_path).exists()
+    assert state_database(tmp_path).exists() == (state_backend == "sqlite")
     frame = load_decisions(tmp_path)
     assert list(frame.columns) == DECISION_COLUMNS
     assert frame.iloc[0].to_dict() | {"decided_at": None} == {

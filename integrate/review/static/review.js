@@ -23,23 +23,44 @@ function pairName(key) {
   return `${key.source_a} ${key.record_id_a} and ${key.source_b} ${key.record_id_b}`;
 }
 
+// The page speaks to the service's review routes with the session's bearer token, which arrives in
+// the address's fragment (#token=...), is kept in this tab's sessionStorage and removed from the address.
+const ws = decodeURIComponent(location.pathname.split("/")[2] || "");
+const base = `/api/v1/workspaces/${encodeURIComponent(ws)}`;
+const queue = new URLSearchParams(location.search).get("queue") === "audit" ? "audit" : "possible";
+(function takeToken() {
+  const found = /(?:^#|&)token=([^&]+)/.exec(location.hash);
+  if (found) {
+    sessionStorage.setItem("integrate-token", decodeURIComponent(found[1]));
+    history.replaceState(null, "", location.pathname + location.search);
+  }
+})();
+
 async function api(method, path, body) {
   const options = { method, headers: { "Accept": "application/json" } };
+  const token = sessionStorage.getItem("integrate-token");
+  if (token) options.headers["Authorization"] = `Bearer ${token}`;
   if (body !== undefined) {
     options.headers["Content-Type"] = "application/json";
     options.body = JSON.stringify(body);
   }
-  const response = await fetch(path, options);
+  const response = await fetch(base + path, options);
   let payload = null;
   try { payload = await response.json(); } catch (e) { payload = null; }
   return { status: response.status, body: payload };
 }
 
 function filters() {
-  const params = new URLSearchParams({ reviewer: state.reviewer });
+  const params = new URLSearchParams({ queue });
   if ($("source-filter").value) params.set("source", $("source-filter").value);
   if ($("field-filter").value) params.set("field", $("field-filter").value);
   return params;
+}
+
+function nextBody(skip) {
+  const body = { queue, source: $("source-filter").value || null, field: $("field-filter").value || null };
+  if (skip) body.skip = skip;
+  return body;
 }
 
 function showProgress(progress) {
@@ -64,14 +85,49 @@ function valueCell(parts, text) {
 
 function recordHeading(cell, letter, record) {
   cell.textContent = "";
-  cell.appendChild(document.createTextNode(`Record ${letter}: ${record.source} ${record.record_id}`));
+  cell.appendChild(el("span", `Record ${letter}:`, "which"));
+  cell.appendChild(el("span", `${record.source} ${record.record_id}`, "record-name"));
   const trust = record.trust === null || record.trust === undefined ? "" : `, trust rank ${record.trust}`;
   cell.appendChild(el("span", `as of ${record.as_of}${trust}`, "note"));
+  if (record.entity_id) {
+    const link = el("button", `entity ${record.entity_id}`, "link");
+    link.type = "button";
+    link.dataset.entity = record.entity_id;
+    link.addEventListener("click", () => showEntity(record.entity_id));
+    cell.appendChild(link);
+  }
+}
+
+async function showEntity(entityId) {
+  const result = await api("GET", `/entities/${encodeURIComponent(entityId)}`);
+  const panel = $("entity");
+  panel.textContent = "";
+  panel.hidden = false;
+  if (result.status !== 200) { panel.appendChild(el("p", `Could not load entity ${entityId} (HTTP ${result.status}).`)); return; }
+  const story = result.body;
+  panel.appendChild(el("h2", `Entity ${story.entity_id}: ${story.members.length} records`));
+  const table = el("table");
+  const head = el("tr");
+  for (const name of ["field", "merged value", "from", "rule", "why"]) head.appendChild(el("th", name));
+  table.appendChild(head);
+  for (const p of story.provenance) {
+    const row = el("tr");
+    row.appendChild(el("th", p.field));
+    row.appendChild(el("td", p.value, "value"));
+    row.appendChild(el("td", p.source ? `${p.source} ${p.record_id}` : ""));
+    row.appendChild(el("td", p.rule));
+    row.appendChild(el("td", p.why + (p.conflict ? "; the values conflict" : "")));
+    table.appendChild(row);
+  }
+  panel.appendChild(table);
+  panel.appendChild(el("p", `The same as: integrate show ${story.entity_id}`, "note"));
+  panel.focus();
 }
 
 function render(item) {
   state.item = item;
   $("pair").dataset.item = item ? item.id : "";
+  $("entity").hidden = true;
   const body = $("fields").tBodies[0];
   body.textContent = "";
   const summary = $("summary");
@@ -86,6 +142,9 @@ function render(item) {
   summary.appendChild(el("p", `Match probability ${percent} %`, "probability"));
   summary.appendChild(el("p", `Total weight ${item.weight.toFixed(2)} bits; the last run called this a ${item.run_decision}.`));
   if (item.blocking_rules) summary.appendChild(el("p", `Found as a candidate pair by: ${item.blocking_rules.split(",").join(", ")}`));
+  const why = el("p", `Explanation: the table below gives each field's agreement and the weight it adds; the same as: integrate explain ${item.key.source_a}:${item.key.record_id_a} ${item.key.source_b}:${item.key.record_id_b}`, "note");
+  why.id = "explanation";
+  summary.appendChild(why);
   if (item.kind === "audit") summary.appendChild(el("p", "Audit: a randomly drawn automatic link. Is it right?"));
   else if (item.reason && item.reason !== "possible link") summary.appendChild(el("p", `In the queue as the ${item.reason}.`));
   recordHeading($("head-a"), "A", item.records[0]);
@@ -113,9 +172,7 @@ function render(item) {
 }
 
 async function loadNext(skip) {
-  const params = filters();
-  if (skip) params.set("skip", skip);
-  const result = await api("GET", `/api/next?${params}`);
+  const result = await api("POST", "/review/next", nextBody(skip));
   if (result.status !== 200) { say(`Could not load the next pair (HTTP ${result.status}).`, true); return; }
   showProgress(result.body.progress);
   render(result.body.item);
@@ -123,20 +180,19 @@ async function loadNext(skip) {
 
 async function decide(decision) {
   if (state.busy || !state.item) return;
-  if (!state.reviewer) { say("Type your name in Reviewer first.", true); $("reviewer").focus(); return; }
   state.busy = true;
   const item = state.item;
-  const body = { ...item.key, decision, reviewer: state.reviewer, note: $("note").value || null };
+  const body = { ...item.key, decision, note: $("note").value || null, queue };
   try {
-    const result = await api("POST", "/api/decisions", body);
+    const result = await api("POST", "/review/decisions", body);
     if (result.status === 201) {
       state.undo.push(result.body.decision.id);
-      await loadNext(decision === "defer" ? item.id : "");
+      await loadNext(decision === "defer" ? item.key : null);
       say(`Saved: ${LABELS[decision]} for ${pairName(item.key)}.`);
     } else if (result.status === 409) {
       const e = result.body.existing;
       const note = e.note ? ` Their note: ${e.note}` : "";
-      await loadNext("");
+      await loadNext(null);
       say(`Not saved: ${e.reviewer} already decided ${LABELS[e.decision]} for ${pairName(item.key)}.${note}`, true);
     } else {
       say(`Not saved (HTTP ${result.status}). Try again.`, true);
@@ -152,15 +208,15 @@ async function undo() {
   if (id === undefined) { say("Nothing to undo in this session.", true); return; }
   state.busy = true;
   try {
-    const result = await api("POST", "/api/undo", { decision_id: id, reviewer: state.reviewer });
+    const result = await api("POST", "/review/undo", { decision_id: id, queue });
     if (result.status === 200) {
       const row = result.body.undone;
       if (result.body.item) render(result.body.item);
-      const progress = await api("GET", `/api/next?${filters()}`);
+      const progress = await api("GET", `/review/next?${filters()}`);
       if (progress.status === 200) showProgress(progress.body.progress);
       say(`Undone: ${LABELS[row.decision]} for ${pairName(row)}. Decide again.`);
     } else {
-      say(`Could not undo: ${result.body && result.body.detail ? result.body.detail : "HTTP " + result.status}.`, true);
+      say(`Could not undo: ${result.body && result.body.error ? result.body.error.message : "HTTP " + result.status}.`, true);
     }
   } finally {
     state.busy = false;
@@ -181,13 +237,20 @@ function onKey(event) {
 }
 
 async function start() {
-  const session = await api("GET", "/api/session");
-  if (session.status !== 200) { say("Could not reach the review server.", true); return; }
+  const session = await api("GET", `/review/session?queue=${queue}`);
+  if (session.status !== 200) {
+    const why = session.status === 401 ? " Open the address the server printed (it holds this session's token)." : "";
+    say(`Could not reach the review server (HTTP ${session.status}).${why}`, true);
+    return;
+  }
   const info = session.body;
-  state.kind = info.kind;
-  state.reviewer = localStorage.getItem("integrate-reviewer") || info.reviewer;
-  $("reviewer").value = state.reviewer;
-  $("queue-name").textContent = info.kind === "audit" ? "Audit of automatic links" : "Possible links";
+  state.kind = info.queue;
+  state.reviewer = info.reviewer;
+  $("reviewer").textContent = info.reviewer;
+  $("queue-name").textContent = info.queue === "audit" ? "Audit of automatic links" : "Possible links";
+  $("note-trust").textContent = info.notes.trust;
+  $("note-queue").textContent = info.notes.queue;
+  $("note-weights").textContent = info.notes.weights;
   for (const source of info.sources) $("source-filter").appendChild(el("option", source));
   for (const field of info.fields) $("field-filter").appendChild(el("option", field));
   for (const s of info.shortcuts) {
@@ -196,21 +259,15 @@ async function start() {
     li.appendChild(document.createTextNode(` ${s.action}`));
     $("keys").appendChild(li);
   }
-  $("reviewer").addEventListener("change", () => {
-    state.reviewer = $("reviewer").value.trim();
-    localStorage.setItem("integrate-reviewer", state.reviewer);
-    state.undo = [];
-    loadNext("");
-  });
   $("filters").addEventListener("submit", (e) => e.preventDefault());
-  $("source-filter").addEventListener("change", () => loadNext(""));
-  $("field-filter").addEventListener("change", () => loadNext(""));
+  $("source-filter").addEventListener("change", () => loadNext(null));
+  $("field-filter").addEventListener("change", () => loadNext(null));
   for (const button of document.querySelectorAll("button[data-decision]")) {
     button.addEventListener("click", () => decide(button.dataset.decision));
   }
   $("btn-undo").addEventListener("click", undo);
   document.addEventListener("keydown", onKey);
-  await loadNext("");
+  await loadNext(null);
   document.body.dataset.ready = "yes";
 }
 

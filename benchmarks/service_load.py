@@ -1,0 +1,142 @@
+"""Load on ``integrate serve``: concurrent clients on loopback doing a realistic mix while a run is in progress.
+
+    python benchmarks/service_load.py [--clients 50] [--seconds 60]
+
+Copies the demo workspace (and runs it once) into a temporary folder, starts ``integrate serve``
+on a free 127.0.0.1 port, starts a run job, and has each client loop (bounded by time) over a mix:
+entity look-ups 40 %, crosswalk look-ups 30 %, queue reads 20 %, decisions 10 %. Prints requests
+per second, p50/p95/p99 latency per kind and the errors (a decision answered 409 is a conflict,
+not an error). Targets on a 2-core machine: 0 errors, p95 <= 50 ms for look-ups, <= 100 ms for
+decisions. Loopback only; the loops stop by themselves.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import random
+import shutil
+import signal
+import socket
+import subprocess
+import sys
+import tempfile
+import threading
+import time
+from pathlib import Path
+
+import httpx
+import numpy as np
+import pandas as pd
+
+REPO = Path(__file__).resolve().parents[1]
+MIX = [("entity", 0.4), ("crosswalk", 0.3), ("queue", 0.2), ("decision", 0.1)]
+
+
+def free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return int(s.getsockname()[1])
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--clients", type=int, default=50)
+    parser.add_argument("--seconds", type=float, default=60.0)
+    args = parser.parse_args()
+    sys.path.insert(0, str(REPO))
+    from integrate.service.store import TokenStore
+
+    scratch = Path(tempfile.mkdtemp(prefix="integrate-load-"))
+    ws = scratch / "demo"
+    shutil.copytree(REPO / "mappings", ws / "mappings")
+    shutil.copytree(REPO / "demo_sources", ws / "demo_sources", ignore=shutil.ignore_patterns("generate.py"))
+    env = {**os.environ, "PYTHONPATH": str(REPO)}
+    say = lambda text: print(f"[{time.strftime('%H:%M:%S')}] {text}", file=sys.stderr, flush=True)  # noqa: E731
+    say("running the demo once")
+    subprocess.run([sys.executable, "-m", "integrate", "run", str(ws)], check=True, env=env, capture_output=True)
+    tokens = TokenStore.for_workspace(ws)
+    admin = str(tokens.create("load-admin", "admin").secret)
+    reviewers = [str(tokens.create(f"load-{k}", "reviewer").secret) for k in range(args.clients)]
+    crosswalk = pd.read_csv(ws / "out" / "crosswalk.csv", dtype=str)
+    records = list(zip(crosswalk["source"], crosswalk["record_id"]))
+    entities = sorted(set(crosswalk["entity_id"]))
+    port = free_port()
+    server = subprocess.Popen([sys.executable, "-m", "integrate", "serve", str(ws), "--port", str(port)], env=env,
+                              stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, start_new_session=True)
+    base = f"http://127.0.0.1:{port}/api/v1/workspaces/demo"
+    try:
+        server.stdout.readline()
+        with httpx.Client(headers={"Authorization": f"Bearer {admin}"}, timeout=30) as c:
+            queue = c.get(base + "/review/queue", params={"limit": 1000}).json()["items"]
+            job = c.post(base + "/runs").json()
+        pairs = [{k: q[k] for k in ("source_a", "record_id_a", "source_b", "record_id_b")} for q in queue]
+        times: dict[str, list[float]] = {k: [] for k, _ in MIX}
+        errors: list[str] = []
+        conflicts = [0]
+        lock = threading.Lock()
+        deadline = time.monotonic() + args.seconds
+        kinds, weights = [k for k, _ in MIX], [w for _, w in MIX]
+
+        def client(index: int) -> None:
+            rng = random.Random(index)
+            with httpx.Client(base_url=base, headers={"Authorization": f"Bearer {reviewers[index]}"},
+                              timeout=30) as c:
+                while time.monotonic() < deadline:
+                    kind = rng.choices(kinds, weights)[0]
+                    started = time.perf_counter()
+                    try:
+                        if kind == "entity":
+                            r = c.get(f"/entities/{rng.choice(entities)}")
+                        elif kind == "crosswalk":
+                            source, record_id = rng.choice(records)
+                            r = c.get(f"/records/{source}/{record_id}")
+                        elif kind == "queue":
+                            r = c.get("/review/queue", params={"limit": 20})
+                        else:
+                            r = c.post("/review/decisions", json={**rng.choice(pairs),
+                                                                  "decision": rng.choice(["same", "different"])})
+                    except httpx.HTTPError as exc:
+                        with lock:
+                            errors.append(f"{kind}: {type(exc).__name__}")
+                        continue
+                    elapsed = time.perf_counter() - started
+                    with lock:
+                        times[kind].append(elapsed)
+                        if r.status_code == 409 and kind == "decision":
+                            conflicts[0] += 1
+                        elif r.status_code >= 400:
+                            errors.append(f"{kind}: HTTP {r.status_code}")
+
+        say(f"server up, run job {job.get('job_id')} started; {args.clients} clients for {args.seconds:.0f} s")
+        threads = [threading.Thread(target=client, args=(i,)) for i in range(args.clients)]
+        t0 = time.monotonic()
+        for t in threads:
+            t.start()
+        for t in threads:
+            t.join()
+        wall = time.monotonic() - t0
+        with httpx.Client(headers={"Authorization": f"Bearer {admin}"}, timeout=30) as c:
+            state = c.get(f"{base}/jobs/{job['job_id']}").json()
+    finally:
+        os.killpg(server.pid, signal.SIGTERM)
+        server.wait(timeout=60)
+        shutil.rmtree(scratch, ignore_errors=True)
+    total = sum(len(v) for v in times.values())
+    print(f"{args.clients} clients, {wall:.1f} s, {total} requests, {total / wall:.1f} requests/s; "
+          f"errors {len(errors)}; decision conflicts (409) {conflicts[0]}; run during the load: {state['state']} "
+          f"(stage {state['stage']})")
+    print(f"{'kind':<10} {'count':>7} {'p50 ms':>8} {'p95 ms':>8} {'p99 ms':>8}  target p95")
+    for kind, _ in MIX:
+        ms = np.array(times[kind]) * 1000
+        target = "100" if kind == "decision" else "50"
+        if len(ms):
+            p50, p95, p99 = np.percentile(ms, [50, 95, 99])
+            print(f"{kind:<10} {len(ms):>7} {p50:>8.1f} {p95:>8.1f} {p99:>8.1f}  {target}")
+    for e in sorted(set(errors))[:10]:
+        print("  error:", e, errors.count(e))
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,70 @@
+"""One served workspace: its name, its stores, its run jobs and its cached outputs."""
+
+from __future__ import annotations
+
+import re
+import threading
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from ..review.queue import ReviewData, load_review_data
+from ..review.store import DecisionStore
+from ..state import StateStore, state_engine
+from ..workspace import Workspace, load_workspace
+from .jobs import JobRunner
+from .results import ResultsCache
+from .store import TokenStore, full_sync
+
+
+@dataclass
+class WorkspaceContext:
+    name: str
+    root: Path
+    tokens: TokenStore
+    decisions: DecisionStore
+    runs: StateStore
+    jobs: JobRunner
+    results: ResultsCache
+    _review: tuple[object, ReviewData] | None = None
+    _lock: threading.Lock = field(default_factory=threading.Lock)
+
+    @classmethod
+    def open(cls, name: str, root: Path) -> WorkspaceContext:
+        load_workspace(root)  # a clear error now if this is not a workspace
+        full_sync(state_engine(root))  # every acknowledged write survives a crash (see store.full_sync)
+        return cls(name, root, TokenStore.for_workspace(root), DecisionStore.for_workspace(root),
+                   StateStore.for_workspace(root), JobRunner(root), ResultsCache(root))
+
+    def workspace(self) -> Workspace:
+        return load_workspace(self.root)
+
+    def warm(self) -> None:
+        """Load the current outputs and review data now (a workspace without outputs yet is fine)."""
+        try:
+            self.results.get()
+            self.review_data()
+        except Exception:  # noqa: BLE001 - a request will report the problem when it asks
+            return
+
+    def review_data(self) -> ReviewData:
+        """The last run's pairs for reviewing, reloaded when a new output set appears."""
+        _, stamp = self.results.stamp()
+        cached = self._review
+        if cached is not None and cached[0] == stamp:
+            return cached[1]
+        with self._lock:
+            if self._review is None or self._review[0] != stamp:
+                self._review = (stamp, load_review_data(self.root))
+            return self._review[1]
+
+
+def workspace_names(roots: list[Path]) -> list[str]:
+    """A URL-safe name per workspace folder (its folder name; repeated names get -2, -3...)."""
+    names: list[str] = []
+    for root in roots:
+        base = re.sub(r"[^A-Za-z0-9_.-]+", "-", root.resolve().name).strip("-.") or "workspace"
+        name, n = base, 2
+        while name in names:
+            name, n = f"{base}-{n}", n + 1
+        names.append(name)
+    return names

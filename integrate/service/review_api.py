@@ -1,0 +1,256 @@
+"""Review over HTTP: the queue, a pair with its explanation, decisions, undo, export and import.
+
+The same queue (``review.queue``) and decision store (``review.store``) as the terminal review
+and ``integrate review --export/--import``; the review page is a client of these routes. State
+changes only in POST: ``GET .../review/next`` looks the next pair up, ``POST .../review/next``
+also holds it for the caller for a while so that other reviewers are given other pairs. The
+reviewer of a decision is the token's holder.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import csv
+import io
+import tempfile
+from importlib import resources
+from pathlib import Path
+from typing import Annotated, Any
+
+import pandas as pd
+from fastapi import FastAPI, Query, Request
+from fastapi.responses import HTMLResponse, JSONResponse, Response
+
+from ..review.app import SHORTCUTS
+from ..review.queue import AUDIT, item_payload, next_key, queue_items, scores_snapshot
+from ..review.store import KEY_COLUMNS, DecisionConflict, NewDecision, NothingToUndo, ordered_pair
+from ..review.transfer import EXPORT_COLUMNS, import_decisions
+from .models import (
+    DecisionList,
+    DecisionRequest,
+    DecisionResponse,
+    ErrorBody,
+    ImportResult,
+    NextRequest,
+    NextResponse,
+    PairItem,
+    QueueResponse,
+    ReviewSession,
+    UndoRequest,
+    UndoResponse,
+)
+from .results import plain
+
+NOTES = {
+    "trust": "Trust rank: how far each source is believed when records disagree (1 = trusted most). It is set in "
+             "each source's mapping file ('trust:') and decides which value the merged row keeps; it does not change "
+             "the match probability.",
+    "queue": "The queue can be longer than the number of possible links: besides the pairs between the two "
+             "thresholds it holds, for every suspicious cluster (cut by a constraint or the chaining guard, two "
+             "records compared as clearly different, or three or more records held by a weak link), the weakest "
+             "link holding that cluster together. Judging it decides whether the cluster stays whole.",
+    "weights": "Weight (bits): the evidence each field adds for (+) or against (-) the two records being one "
+               "person; the total decides the match probability.",
+}
+ERRORS: dict[int | str, dict[str, Any]] = {c: {"model": ErrorBody} for c in (400, 401, 403, 404, 409, 413, 422)}
+
+
+def _row(row: dict[str, Any]) -> dict[str, Any]:
+    return {k: plain(v) for k, v in row.items()}
+
+
+def add_review_routes(app: FastAPI, contexts: dict[str, Any], auth: Any, ctx_of: Any, api_error: Any) -> None:
+    base = "/api/v1/workspaces/{ws}/review"
+    static = resources.files("integrate.review") / "static"
+
+    def item(ctx: Any, key: tuple[str, str, str, str], queue: str) -> dict[str, Any]:
+        data = ctx.review_data()
+        payload = item_payload(data, key, queue)
+        try:
+            outputs = ctx.results.get()
+        except Exception:  # noqa: BLE001 - the links to entities are extra; the pair shows without them
+            outputs = None
+        for end in payload["records"]:
+            hit = outputs.entity_of_record(end["source"], end["record_id"]) if outputs is not None else None
+            end["entity_id"] = hit["entity_id"] if hit else None
+        standing = ctx.decisions.get(key)
+        payload["decision"] = _row(standing) if standing else None
+        return payload
+
+    def known(ctx: Any, key: tuple[str, str, str, str]) -> None:
+        if key not in ctx.review_data().pairs.index:
+            raise api_error(404, "unknown_pair", "no such candidate pair in the last run")
+
+    # -- the page ---------------------------------------------------------------------------
+    @app.get("/review/{ws}", include_in_schema=False)
+    def page(ws: str) -> HTMLResponse:
+        ctx_of(ws)
+        return HTMLResponse((static / "page.html").read_text(encoding="utf-8"))
+
+    @app.get("/static/{name}", include_in_schema=False)
+    def asset(name: str) -> Response:
+        allowed = {"review.css": "text/css", "review.js": "text/javascript"}
+        if name not in allowed:
+            raise api_error(404, "not_found", f"no file '{name}'")
+        return Response((static / name).read_bytes(), media_type=allowed[name])
+
+    @app.get("/favicon.ico", include_in_schema=False)
+    def no_icon() -> Response:
+        return Response(status_code=204)
+
+    # -- reading ----------------------------------------------------------------------------
+    @app.get(f"{base}/session", response_model=ReviewSession, responses=ERRORS, tags=["review"])
+    def session(ws: str, request: Request, queue: Annotated[str, Query(pattern="^(possible|audit)$")] = "possible"
+                ) -> ReviewSession:
+        """Who reviews, the filters (sources, fields), the keys, and the page's explanations."""
+        ctx = ctx_of(ws)
+        who = auth.check(request, ctx, "reader")
+        data = ctx.review_data()
+        return ReviewSession(workspace=ctx.name, reviewer=who.name, role=who.role, queue=queue,  # type: ignore[arg-type]
+                             sources=data.sources, fields=list(data.fields), trust=data.trust, as_of=data.as_of,
+                             shortcuts=[{"key": k, "action": a} for k, a in SHORTCUTS], notes=NOTES)
+
+    @app.get(f"{base}/queue", response_model=QueueResponse, responses=ERRORS, tags=["review"])
+    def queue(ws: str, request: Request, queue: Annotated[str, Query(pattern="^(possible|audit)$")] = "possible",
+              source: Annotated[str | None, Query(max_length=200)] = None,
+              field: Annotated[str | None, Query(max_length=200)] = None,
+              offset: Annotated[int, Query(ge=0, le=10**9)] = 0,
+              limit: Annotated[int, Query(ge=1, le=1000)] = 100) -> QueueResponse:
+        """The queue in review order with each pair's state (open / deferred / decided)."""
+        ctx = ctx_of(ws)
+        auth.check(request, ctx, "reader")
+        data = ctx.review_data()
+        items = queue_items(data, ctx.decisions, queue, source=source or None, field=field or None)
+        decided = int((items["state"] == "decided").sum())
+        deferred = int((items["state"] == "deferred").sum())
+        reasons = data.queue["reason"] if queue != AUDIT else None
+        possible = int((reasons == "possible link").sum()) if reasons is not None else 0
+        page_rows = items.iloc[offset:offset + limit]
+        return QueueResponse(queue=queue, progress={"total": len(items), "decided": decided, "deferred": deferred,  # type: ignore[arg-type]
+                                                    "remaining": len(items) - decided},
+                             possible_links=possible, weakest_links=(len(reasons) - possible) if reasons is not None
+                             else 0, items=[_row(r) for r in page_rows.to_dict("records")])
+
+    def _next(ctx: Any, reviewer: str, queue: str, source: str | None, field: str | None,
+              skip: tuple[str, str, str, str] | None, claim: bool) -> dict[str, Any]:
+        data = ctx.review_data()
+        if source and source not in data.sources:
+            raise api_error(422, "unknown_source", f"no source named '{source}'", "sources: " + ", ".join(data.sources))
+        if field and field not in data.fields:
+            raise api_error(422, "unknown_field", f"no field named '{field}'", "fields: " + ", ".join(data.fields))
+        key, progress = next_key(data, ctx.decisions, reviewer, queue, source=source, field=field, skip=skip,
+                                 claim=claim)
+        return {"item": item(ctx, key, queue) if key else None, "progress": progress}
+
+    @app.get(f"{base}/next", response_model=NextResponse, responses=ERRORS, tags=["review"])
+    def peek_next(ws: str, request: Request, queue: Annotated[str, Query(pattern="^(possible|audit)$")] = "possible",
+                  source: Annotated[str | None, Query(max_length=200)] = None,
+                  field: Annotated[str | None, Query(max_length=200)] = None) -> Any:
+        """The pair the caller would be given next (read only: nothing is held)."""
+        ctx = ctx_of(ws)
+        who = auth.check(request, ctx, "reader")
+        return _next(ctx, who.name, queue, source, field, None, claim=False)
+
+    @app.post(f"{base}/next", response_model=NextResponse, responses=ERRORS, tags=["review"])
+    def take_next(ws: str, body: NextRequest, request: Request) -> Any:
+        """The next pair for the caller, held for them for a few minutes so others get other pairs."""
+        ctx = ctx_of(ws)
+        who = auth.check(request, ctx, "reviewer")
+        skip = ordered_pair(*[getattr(body.skip, c) for c in KEY_COLUMNS]) if body.skip else None
+        return _next(ctx, who.name, body.queue, body.source, body.field, skip, claim=True)
+
+    @app.get(f"{base}/pair", response_model=PairItem, responses=ERRORS, tags=["review"])
+    def pair(ws: str, request: Request, source_a: Annotated[str, Query(max_length=200)],
+             record_id_a: Annotated[str, Query(max_length=200)], source_b: Annotated[str, Query(max_length=200)],
+             record_id_b: Annotated[str, Query(max_length=200)],
+             queue: Annotated[str, Query(pattern="^(possible|audit)$")] = "possible") -> Any:
+        """One pair with its explanation: both records, each field's agreement grade and weight."""
+        ctx = ctx_of(ws)
+        auth.check(request, ctx, "reader")
+        key = ordered_pair(source_a, record_id_a, source_b, record_id_b)
+        known(ctx, key)
+        return item(ctx, key, queue)
+
+    @app.get(f"{base}/decisions", response_model=DecisionList, responses=ERRORS, tags=["review"])
+    def decisions(ws: str, request: Request) -> Any:
+        """Every standing decision, oldest first."""
+        ctx = ctx_of(ws)
+        auth.check(request, ctx, "reader")
+        frame = ctx.decisions.decisions()
+        return {"decisions": [_row(r) for r in frame.to_dict("records")]}
+
+    @app.get(f"{base}/export", responses={**ERRORS, 200: {"content": {"text/csv": {}},
+                                                         "description": "every decision, as review --export"}},
+             tags=["review"])
+    def export(ws: str, request: Request) -> Response:
+        """Every standing decision as CSV (the file `integrate review --export` writes)."""
+        ctx = ctx_of(ws)
+        auth.check(request, ctx, "reader")
+        buffer = io.StringIO()
+        ctx.decisions.decisions().reindex(columns=EXPORT_COLUMNS).to_csv(buffer, index=False,
+                                                                        quoting=csv.QUOTE_MINIMAL)
+        return Response(buffer.getvalue(), media_type="text/csv",
+                        headers={"Content-Disposition": 'attachment; filename="decisions.csv"'})
+
+    # -- writing ----------------------------------------------------------------------------
+    @app.post(f"{base}/decisions", response_model=DecisionResponse, status_code=201, responses=ERRORS,
+              tags=["review"])
+    def decide(ws: str, body: DecisionRequest, request: Request) -> Any:
+        """Record the caller's decision: 201, or 409 with the decision another reviewer made."""
+        ctx = ctx_of(ws)
+        who = auth.check(request, ctx, "reviewer")
+        key = ordered_pair(body.source_a, body.record_id_a, body.source_b, body.record_id_b)
+        known(ctx, key)
+        new = NewDecision(**dict(zip(KEY_COLUMNS, key)), decision=body.decision, reviewer=who.name,
+                          note=body.note, origin=body.queue, **scores_snapshot(ctx.review_data(), key))
+        try:
+            row = ctx.decisions.record(new)
+        except DecisionConflict as conflict:
+            raise api_error(409, "already_decided", str(conflict), "the decision that stands is in 'existing'",
+                            existing=_row(conflict.existing)) from None
+        return JSONResponse(status_code=201, content={"decision": _row(row)})
+
+    @app.post(f"{base}/undo", response_model=UndoResponse, responses=ERRORS, tags=["review"])
+    def undo(ws: str, body: UndoRequest, request: Request) -> Any:
+        """Remove one of the caller's own decisions (by default their most recent one)."""
+        ctx = ctx_of(ws)
+        who = auth.check(request, ctx, "reviewer")
+        decision_id = body.decision_id
+        if decision_id is None:
+            last = ctx.decisions.last_decision_of(who.name)
+            if last is None:
+                raise api_error(404, "nothing_to_undo", f"{who.name} has no decision to undo")
+            decision_id = int(last["id"])
+        try:
+            row = ctx.decisions.undo(decision_id, who.name)
+        except NothingToUndo as gone:
+            raise api_error(404, "nothing_to_undo", str(gone)) from None
+        except DecisionConflict as conflict:
+            raise api_error(409, "not_yours", "the decision is not yours to undo",
+                            existing=_row(conflict.existing)) from None
+        key = ordered_pair(row["source_a"], row["record_id_a"], row["source_b"], row["record_id_b"])
+        shown = item(ctx, key, body.queue) if key in ctx.review_data().pairs.index else None
+        return {"undone": _row(row), "item": shown}
+
+    @app.post(f"{base}/import", response_model=ImportResult, responses=ERRORS, tags=["review"])
+    async def import_file(ws: str, request: Request) -> Any:
+        """Add the decisions of a CSV file (as `review --export` writes; the request body); nothing is overwritten."""
+        ctx = ctx_of(ws)
+        auth.check(request, ctx, "admin")
+        data = bytearray()
+        async for chunk in request.stream():
+            data.extend(chunk)
+        with tempfile.TemporaryDirectory(prefix="integrate-import-") as scratch:
+            path = Path(scratch) / "decisions.csv"
+            path.write_bytes(bytes(data))
+            try:
+                summary = await asyncio.to_thread(import_decisions, ctx.decisions, path)
+            except UnicodeDecodeError as exc:
+                raise api_error(422, "not_utf8", f"the decisions file is not UTF-8 text ({exc.reason} at byte "
+                                f"{exc.start})", "save it as UTF-8 CSV") from None
+            except (pd.errors.EmptyDataError, pd.errors.ParserError) as exc:
+                raise api_error(422, "bad_csv", f"the decisions file is not a readable CSV file: {exc}",
+                                "send the file 'integrate review --export' writes") from None
+        return {"added": summary.added, "unchanged": summary.unchanged,
+                "conflicts": [{"existing": _row(c["existing"]), "imported": _row(c["imported"])}
+                              for c in summary.conflicts]}
