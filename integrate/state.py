@@ -61,7 +61,7 @@ from sqlalchemy.engine import make_url
 from sqlalchemy.exc import ArgumentError, SQLAlchemyError
 
 from . import migrations
-from .errors import ConfigError, IntegrateError
+from .errors import ConfigError, IntegrateError, missing_driver_error
 from .killpoints import reached
 from .mapping.load import file_hash
 from .workspace import Workspace
@@ -182,6 +182,8 @@ def state_engine(workspace: str | Path) -> Engine:
                 cursor.close()
         else:  # a server: a pooled connection it closed meanwhile (restart, idle timeout) is replaced, not used
             engine = create_engine(url, pool_pre_ping=True)
+    except ImportError as exc:  # the dialect exists but its driver package is not installed
+        raise missing_driver_error(shown_url(url), exc) from exc
     except ArgumentError as exc:  # also a missing driver (NoSuchModuleError)
         raise ConfigError(f"{STATE_URL_ENV}={shown_url(url)!r} is not a usable SQLAlchemy URL: {exc} "
                           "(e.g. sqlite:///path/state.sqlite or postgresql+psycopg://user@host/db; "
