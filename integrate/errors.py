@@ -95,6 +95,26 @@ class ConfigError(IntegrateError):
 
 
 
+# pip package that provides a database driver module SQLAlchemy asks for (the packages' own names)
+DRIVER_PACKAGES = {
+    "psycopg": "psycopg[binary]", "psycopg2": "psycopg2-binary", "pymysql": "PyMySQL", "MySQLdb": "mysqlclient",
+    "pyodbc": "pyodbc", "oracledb": "oracledb", "pymssql": "pymssql", "asyncpg": "asyncpg", "pg8000": "pg8000",
+}
+
+
+def missing_driver_error(url_shown: str, exc: ImportError, setting: str = "INTEGRATE_STATE_URL") -> InputError:
+    """The database URL needs a driver package that is not installed: name the package to install."""
+    module = (getattr(exc, "name", None) or str(exc).rsplit(" ", 1)[-1].strip("'\"")).split(".")[0]
+    package = DRIVER_PACKAGES.get(module, module)
+    return InputError(
+        f"the database driver '{module}' for {url_shown} is not installed",
+        file=setting,
+        value=module,
+        reason="missing_driver",
+        hint=f"install it with: python -m pip install '{package}'",
+    )
+
+
 class InputErrors(IntegrateError):
     """Many input errors collected in one pass; shows the first few, then a count."""
 

@@ -48,7 +48,10 @@ def explain_pair(records: pd.DataFrame, match: MatchResult, canonical: Canonical
                  reference_a: str, reference_b: str) -> Explanation:
     """Compare two records exactly as the run did and say what each field contributed."""
     a, b = find_record(records, reference_a), find_record(records, reference_b)
-    i, j = min(a, b), max(a, b)
+    if a == b:
+        raise InputError(f"'{reference_a}' is compared with itself", value=reference_a, reason="same_record",
+                         hint="name two different records: explain SOURCE:ID SOURCE:ID")
+    i, j = min(a, b), max(a, b)  # the pair as blocking and scoring see it; values are shown as given
     pair = pd.DataFrame({"i": [i], "j": [j], "rules": [0]})
     grades = compare(match.prepared, pair, canonical)
     field_types = {f: canonical.fields[f].type for f in grades.columns}
@@ -57,7 +60,7 @@ def explain_pair(records: pd.DataFrame, match: MatchResult, canonical: Canonical
     for field, ftype in field_types.items():
         g = int(grades[field].iloc[0])
         weight = scored.get("w_" + field, np.nan)
-        rows.append({"field": field, "value_a": records[field].iloc[i], "value_b": records[field].iloc[j],
+        rows.append({"field": field, "value_a": records[field].iloc[a], "value_b": records[field].iloc[b],
                      "grade": grade_name(ftype, g), "weight": float(weight) if pd.notna(weight) else np.nan})
         if "tf_" + field in scored and scored["tf_" + field] != 0:
             rows.append({"field": f"{field} (value frequency)", "value_a": "", "value_b": "",

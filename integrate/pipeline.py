@@ -26,13 +26,14 @@ from .evaluate import Evaluation, evaluate, hard_negatives, read_crosswalk_file
 from .ids import ChangeSummary, assign_stable_ids, canonical_order, record_hashes
 from .killpoints import reached
 from .mapping.apply import FAILURE_COLUMNS, MappedSource, apply_mapping
+from .mapping.checks import no_records_text
 from .mapping.money import RatesTable
 from .mapping.rates_layout import load_workspace_rates
 from .matching import MatchResult, match_records
 from .outputs.missing import run_missing_values
 from .resolve import check_orders, resolve, source_pair_conflicts
 from .score import ScoreModel
-from .sources import read_source
+from .sources import add_read_failures, read_source
 from .state import NewRun, RunHistory, RunLock, StateStore, input_hashes
 from .workspace import Workspace, load_workspace
 
@@ -128,9 +129,9 @@ def read_and_map(ws: Workspace, progress: Progress = _quiet) -> tuple[pd.DataFra
         data_file = ws.display(data_path) if data_path else str(mapping.read.url)
         try:
             raw = read_source(mapping.read, ws.root, name=mapping.source)
-            mapped.append(apply_mapping(raw, mapping, ws.canonical, rates, data_file=data_file,
-                                        mapping_file=ws.display(entry.mapping_file),
-                                        mapping_path=entry.mapping_file))
+            mapped.append(add_read_failures(apply_mapping(raw, mapping, ws.canonical, rates, data_file=data_file,
+                                                          mapping_file=ws.display(entry.mapping_file),
+                                                          mapping_path=entry.mapping_file), raw, data_file))
         except InputErrors as many:
             problems.extend(many.errors)
         except InputError as one:
@@ -140,6 +141,10 @@ def read_and_map(ws: Workspace, progress: Progress = _quiet) -> tuple[pd.DataFra
     if problems:
         raise problems[0] if len(problems) == 1 else InputErrors(problems)
     progress("map")
+    if mapped and all(m.frame.empty for m in mapped):
+        raise InputError("no source has any records (each file holds a header row only)",
+                         file=ws.display(ws.root / "mappings"), reason="no_records",
+                         hint="check that the exports are complete")
     records = pd.concat([m.frame for m in mapped], ignore_index=True)
     return records, mapped
 
@@ -282,6 +287,7 @@ def _run(ws: Workspace, progress: Progress, *, write: bool, output_dir: Path | N
         clusters=cluster_table(match.entities, records), changes=changes, entity_changes=entity_changes,
         conflict_pairs=conflict_pairs, quality=judge_against_truth(ws, records, match, crosswalk),
     )
+    result.warnings += [no_records_text(m.name) for m in mapped if m.frame.empty]
     result.missing = run_missing_values(result, list(ws.canonical.fields))
     for name, columns in result.unmapped.items():
         result.warnings.append(f"source '{name}': columns not mentioned in its mapping: {', '.join(columns)}")

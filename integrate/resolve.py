@@ -240,6 +240,12 @@ def resolve(records: pd.DataFrame, entity_ids: pd.Series, canonical: CanonicalSc
         numeric = spec.type in NUMERIC_TYPES and spec.resolve != "all"  # 'all' lists values as text
         merged[name] = merged[name].astype("float64" if numeric else "string")
     merged = _with_counts(merged, records, ids, canonical)
+    # Written files show money with its currency's minor units ('20.00') and quantities with the
+    # field's decimals; the numbers themselves stay floats for analysis (see outputs.tables).
+    merged.attrs["decimals"] = {
+        name: minor_units(canonical.base_currency) if spec.type == "money"
+        else (DEFAULT_DECIMALS if spec.decimals is None else spec.decimals)
+        for name, spec in canonical.fields.items() if spec.type in NUMERIC_TYPES and spec.resolve != "all"}
     provenance = pd.concat(prov_parts, ignore_index=True) if prov_parts else pd.DataFrame(
         columns=PROVENANCE_COLUMNS)
     return merged, provenance

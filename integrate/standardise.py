@@ -5,6 +5,8 @@ Every normaliser runs once per distinct value (``map_distinct``), never once per
 
 from __future__ import annotations
 
+import re
+
 import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
@@ -30,6 +32,48 @@ OTHER_ROOT = "__root2"  # a second formal name for a short form shared by two ('
 FIRST_WORD = "__first"  # first word of a name ('anna' of 'anna marie')
 YEAR, MONTH, DAY = "__y", "__m", "__d"
 RECORD_DAY = "__record_day"  # the record's date as days since 1970-01-01 (NaN where unknown)
+
+
+# An address as RFC 5321 / 5322 write it in practice: a dot-atom local part (letters, digits and
+# ! # $ % & ' * + / = ? ^ _ ` { | } ~ -, dots only between them), '@', and a domain of at least two
+# labels (letters, digits, inner hyphens, at most 63 characters each) ending in a top-level label
+# of letters or an IDNA 'xn--' label. Non-ASCII letters are allowed as RFC 6531 does. Quoted local
+# parts and address literals ("a b"@x, a@[192.0.2.1]) are legal but not accepted: exports of
+# people's contact details do not hold them. Total length at most 254 (RFC 3696 errata 1690).
+_ATOM = r"[A-Za-z0-9!#$%&'*+/=?^_`{|}~\u00a0-\U0010ffff-]+"
+_LABEL = r"[A-Za-z0-9\u00a0-\U0010ffff](?:[A-Za-z0-9\u00a0-\U0010ffff-]{0,61}[A-Za-z0-9\u00a0-\U0010ffff])?"
+_EMAIL = re.compile(
+    rf"{_ATOM}(?:\.{_ATOM})*@(?:{_LABEL}\.)+(?:[A-Za-z\u00a0-\U0010ffff]{{2,63}}|xn--[A-Za-z0-9-]{{1,59}})")
+_EMAIL_SPACE = re.compile(r"[\s\x00-\x1f\x7f]")
+
+
+def is_email(text: str) -> bool:
+    """Whether ``text`` (already stripped) is an e-mail address.
+
+    Example:
+        >>> [is_email(t) for t in ("ana.lee@post.example.org", "=1+2", "<script>x</script>", "a@b", "a..b@x.org")]
+        [True, False, False, False, False]
+    """
+    return len(text) <= 254 and not _EMAIL_SPACE.search(text) and _EMAIL.fullmatch(text) is not None
+
+
+def check_emails(values: pd.Series) -> tuple[pd.Series, pd.DataFrame]:
+    """E-mail values with non-addresses left empty, and a failures frame for them (once per distinct value).
+
+    Returns:
+        The stripped values (``<NA>`` where not an address) and failures with ``index, value, reason,
+        message`` (reason ``bad_email``), as the mapping stage's converters return them.
+    """
+    text = values.astype("string").str.strip().replace("", pd.NA)
+    valid = map_distinct(text, is_email, dtype="boolean").fillna(True).to_numpy(dtype=bool)
+    bad = text[~valid]
+    failures = pd.DataFrame({
+        "index": bad.index,
+        "value": bad.to_numpy(dtype=object),
+        "reason": "bad_email",
+        "message": [f"{str(v)[:60]!r} is not an e-mail address" for v in bad.to_numpy(dtype=object)],
+    })
+    return text.mask(pd.Series(~valid, index=text.index)).astype("string"), failures
 
 
 def to_e164(text: str, region: str | None, custom: dict[str, CallingCode] | None = None) -> str | None:

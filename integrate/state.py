@@ -54,13 +54,14 @@ from sqlalchemy import (
     func,
     insert,
     select,
+    text,
     update,
 )
 from sqlalchemy.engine import make_url
 from sqlalchemy.exc import ArgumentError, SQLAlchemyError
 
 from . import migrations
-from .errors import ConfigError, IntegrateError
+from .errors import ConfigError, IntegrateError, missing_driver_error
 from .killpoints import reached
 from .mapping.load import file_hash
 from .workspace import Workspace
@@ -181,6 +182,8 @@ def state_engine(workspace: str | Path) -> Engine:
                 cursor.close()
         else:  # a server: a pooled connection it closed meanwhile (restart, idle timeout) is replaced, not used
             engine = create_engine(url, pool_pre_ping=True)
+    except ImportError as exc:  # the dialect exists but its driver package is not installed
+        raise missing_driver_error(shown_url(url), exc) from exc
     except ArgumentError as exc:  # also a missing driver (NoSuchModuleError)
         raise ConfigError(f"{STATE_URL_ENV}={shown_url(url)!r} is not a usable SQLAlchemy URL: {exc} "
                           "(e.g. sqlite:///path/state.sqlite or postgresql+psycopg://user@host/db; "
@@ -256,6 +259,11 @@ class StateStore:
                     entities=int(run.crosswalk["entity_id"].nunique()), output_dir=run.output_dir,
                     report=run.report, summary=json.dumps(run.summary, sort_keys=True),
                 )).inserted_primary_key[0])
+                if numbered and conn.dialect.name == "postgresql":
+                    # An explicit number does not advance PostgreSQL's serial counter; move it on so a
+                    # later run recorded without a reserved number does not collide with this one.
+                    conn.execute(text("SELECT setval(pg_get_serial_sequence('run', 'run_id'), "
+                                      "(SELECT MAX(run_id) FROM run))"))
                 files = [{"run_id": run_id, "kind": "mapping", "path": p, "sha256": h}
                          for p, h in sorted(run.mapping_hashes.items())]
                 files += [{"run_id": run_id, "kind": "input", "path": p, "sha256": h}

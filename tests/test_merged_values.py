@@ -114,3 +114,20 @@ def test_empty_sum_zero() -> None:
     assert merged.loc["E2", "fee"] == 0.0 and np.isnan(merged.loc["E2", "gift"])
     row = prov[(prov["entity_id"] == "E2") & (prov["field"] == "fee")].iloc[0]
     assert row["value"] == "0.00" and "empty_sum" in row["why"]
+
+
+def test_written_csv_shows_minor_units_and_stated_decimals(tmp_path) -> None:  # noqa: ANN001
+    # ISO 4217: the pound sterling (GBP) has 2 minor-unit digits, the yen (JPY) none
+    from integrate.outputs.tables import write_csv
+
+    fields = {"fee": {"type": "money", "meaning": MEANING, "resolve": "sum"},
+              "height_cm": {"type": "quantity", "unit": "cm", "meaning": MEANING, "resolve": "max", "decimals": 1}}
+    frame = _frame({"fee": [20.0, None, -7.5], "height_cm": [164.08399999999997, None, None]}, ["a", "b", "a"])
+    for currency, fee in (("GBP", ["20.00", "", "-7.50"]), ("JPY", ["20", "", "-8"])):
+        merged, _ = resolve(frame, pd.Series(["E1", "E2", "E3"]), CanonicalSchema(base_currency=currency,
+                                                                                  fields=fields))
+        assert merged["fee"].dtype == "float64"  # the table itself keeps numbers
+        write_csv(merged, tmp_path / "merged.csv")
+        written = pd.read_csv(tmp_path / "merged.csv", dtype=str, keep_default_na=False).set_index("entity_id")
+        assert written["fee"].tolist() == fee
+        assert written["height_cm"].tolist() == ["164.1", "", ""]

@@ -67,6 +67,17 @@ def test_runs_round_trip(tmp_path: Path, state_backend: str) -> None:
     assert store.entity_history("E1").values.tolist() == [[first, 2]]
 
 
+def test_a_reserved_run_number_is_followed_by_the_next_one(tmp_path: Path, state_backend: str) -> None:
+    # A run recorded under the run lock carries its reserved number; one recorded without must not
+    # collide with it (PostgreSQL's serial counter does not move for explicit values by itself).
+    store = StateStore.for_workspace(tmp_path)
+    reserved = store.next_run_id()
+    assert store.record_run(NewRun(started_at="2026-01-01T10:00:00Z", crosswalk=crosswalk([("a", "1", "E1")]),
+                                   run_id=reserved)) == reserved
+    assert store.record_run(NewRun(started_at="2026-01-02T10:00:00Z",
+                                   crosswalk=crosswalk([("a", "1", "E1")]))) == reserved + 1
+
+
 def test_a_failed_write_leaves_no_partial_run(tmp_path: Path, state_backend: str) -> None:
     store = StateStore.for_workspace(tmp_path)
     store.record_run(NewRun(started_at="2026-01-01T00:00:00Z", crosswalk=crosswalk([("a", "1", "E1")])))

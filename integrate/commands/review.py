@@ -83,6 +83,7 @@ def main(args: argparse.Namespace) -> int:
               f"{len(store.audit_sample())} in the audit sample in all")
         kind = AUDIT
     reviewer = args.reviewer or _default_reviewer()
+    _check_filters(ws, args.source, args.field)
     if args.terminal:
         from ..review.queue import load_review_data
         from ..review.terminal import review_in_terminal
@@ -96,3 +97,15 @@ def main(args: argparse.Namespace) -> int:
 
     serve(Path(ws.root), host=args.host, port=args.port, reviewer=reviewer, kind=kind)
     return 0
+
+
+def _check_filters(ws: object, source: str | None, field: str | None) -> None:
+    """An unknown --source or --field is an error naming the choices, not an empty queue."""
+    sources = [e.mapping.source for e in ws.sources]  # type: ignore[attr-defined]
+    fields = list(ws.canonical.fields)  # type: ignore[attr-defined]
+    if source is not None and source not in sources:
+        raise InputError(f"--source '{source}' is not a source of this workspace", value=source,
+                         reason="unknown_source", hint="sources: " + ", ".join(sources))
+    if field is not None and field not in fields:
+        raise InputError(f"--field '{field}' is not a canonical field", value=field, reason="unknown_field",
+                         hint="fields: " + ", ".join(fields))

@@ -25,6 +25,8 @@ def register(sub: argparse._SubParsersAction) -> None:
 def main(args: argparse.Namespace) -> int:
     from ..pipeline import STAGES, run_pipeline
 
+    if args.out:
+        check_output_dir(args.out)  # before hours of work, not after
     with stage_progress(STAGES) as progress:
         result = run_pipeline(args.workspace, progress=progress, output_dir=args.out,
                               keep_runs=args.keep_runs, engine=args.engine, scheduler=args.scheduler)
@@ -48,3 +50,26 @@ def main(args: argparse.Namespace) -> int:
     print(f"report:  {result.report_path}")
     print("Review merges before acting on them; these files hold personal data.")
     return 0
+
+
+def check_output_dir(folder: str) -> None:
+    """Create the output folder now and make sure files can be written in it.
+
+    Raises:
+        InputError: ``bad_output_dir`` naming the folder and why it cannot be used.
+    """
+    import tempfile
+    from pathlib import Path
+
+    from ..errors import InputError
+
+    path = Path(folder)
+    try:
+        path.mkdir(parents=True, exist_ok=True)
+        with tempfile.NamedTemporaryFile(dir=path, prefix=".write-test-"):
+            pass
+    except OSError as exc:
+        reason = "it is a file" if path.is_file() else (exc.strerror or str(exc))
+        raise InputError(f"output folder cannot be created or written: {reason}", file=folder,
+                         reason="bad_output_dir",
+                         hint="give --out a folder you can write to (it is created if missing)") from exc

@@ -204,7 +204,11 @@ def apply_mapping(
     problems.extend(missing)
     raw = raw.reset_index(drop=True)
     absent = [str(p.value) for p in missing]
-    raw = raw.assign(**{c: pd.Series(pd.NA, index=raw.index, dtype="string") for c in absent})
+    read_later = _columns_read(mapping)
+    absent = [c for c in absent if c in read_later]  # an ignored column is never read: no need to add it
+    if absent:  # one concat, not one insert per column (quadratic with thousands of absent columns)
+        blank = pd.DataFrame({c: pd.Series(pd.NA, index=raw.index, dtype="string") for c in absent})
+        raw = pd.concat([raw, blank], axis=1)
     rows = raw[ROW]
     collect = _Collector(mapping.source, data_file, rows)
     out = empty_canonical(canonical).reindex(range(len(raw)))
@@ -279,6 +283,16 @@ def apply_mapping(
             raise too_many[0] if len(too_many) == 1 else InputErrors(too_many)
         problems.extend(too_many)
     return MappedSource(mapping.source, out, failures, unmapped, problems)
+
+
+def _columns_read(mapping: SourceMapping) -> set[str]:
+    """Source columns apply_mapping reads: the record ID and date, and what non-ignored entries use."""
+    used = {mapping.record_id} | ({mapping.record_date} if mapping.record_date else set())
+    for column, entry in mapping.column_maps().items():
+        if not entry.ignore:
+            used.add(column)
+            used.update(c for c in (entry.unit_column, entry.currency_column, entry.priced_on) if c)
+    return used
 
 
 def _parse_date_column(raw: pd.DataFrame, column: str, mapping: SourceMapping, mapping_file: str,
@@ -399,8 +413,18 @@ def _convert(values: pd.Series, entry: ColumnMap, column: str, target: str, raw:
                 "missing_rates", "set 'rates:' in canonical.yaml to a dated rates CSV", line, col)
         converted, failures = convert_money(amounts, currencies, dates, canonical.base_currency, rates,
                                             max_age_days=canonical.rate_max_age_days)
+        if entry.currency_column and not failures.empty:  # name the column the code came from
+            unknown = failures["reason"] == "unknown_currency"
+            failures.loc[unknown, "message"] = (f"currency column '{entry.currency_column}': "
+                                                + failures.loc[unknown, "message"].astype(str))
         collect.add(failures, column)
         return converted
+    if spec.type == "email":
+        from ..standardise import check_emails
+
+        valid, failures = check_emails(values)  # '=1+2' or '<script>' are failures, not addresses
+        collect.add(failures, column)
+        return valid
     if spec.type == "phone" and entry.country:
         plans = canonical.calling_code_plans()
         if not is_country(entry.country, plans):
@@ -452,6 +476,12 @@ def _in_plain_numbers(values: pd.Series, fmt: str | None, collect: _Collector, c
     return plain.mask(bad, pd.NA)
 
 
+_FATAL_HINTS = {
+    "unknown_currency": "currency codes are the three letters of ISO 4217 (EUR, GBP, USD...); fix the value "
+                        "or map the column's codes with 'values'",
+}
+
+
 def _fatal_errors(fatal: pd.DataFrame) -> InputErrors:
     problems: list[InputError] = []
     for (reason, column), group in fatal.groupby(["reason", "column"], sort=False):
@@ -462,7 +492,7 @@ def _fatal_errors(fatal: pd.DataFrame) -> InputErrors:
             ConversionError(
                 f"{first['message']} ({len(group)} rows: {rows}{more})",
                 file=str(first["file"]), line=int(first["row"]), column=str(column),
-                value=first["value"], reason=str(reason),
+                value=first["value"], reason=str(reason), hint=_FATAL_HINTS.get(str(reason)),
             )
         )
     return InputErrors(problems)

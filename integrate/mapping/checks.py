@@ -10,21 +10,22 @@ entity are compared across sources too.
 
 from __future__ import annotations
 
+import datetime as dt
 from dataclasses import dataclass
 from pathlib import Path
 
 import pandas as pd
 
-from ..columns import RECORD_ID, SOURCE
+from ..columns import RECORD_ID, ROW, SOURCE
 from ..errors import InputError, InputErrors, MappingError
-from ..sources import read_source
+from ..sources import add_read_failures, read_source
 from ..workspace import CANONICAL_FILE, MAPPINGS_DIR, SourceEntry, Workspace
 from .apply import FATAL_REASONS, MappedSource, apply_mapping
 from .distribution import NumericFeed, compare_distributions, compare_linked, numeric_fields, range_findings
 from .drift import drift_findings
 from .factors import explanations_for
 from .findings import LEVELS, CheckReport, Finding, rows_text
-from .load import load_canonical, load_source_mapping, position_of
+from .load import load_canonical, load_source_mapping, locate_in, position_of, read_yaml
 from .meanings import field_meanings, meaning_findings
 from .money import RatesTable
 from .rates_layout import load_workspace_rates
@@ -32,6 +33,11 @@ from .redundancy import redundant_columns
 from .spec import CanonicalSchema
 
 CROSSWALK_FILE = "crosswalk.csv"
+NO_RECORDS_HINT = "check that the export is complete; a source with no records adds nothing to the run"
+
+
+def no_records_text(source: str) -> str:
+    return f"source '{source}' has no records (a header row only, or only blank rows)"
 
 
 @dataclass
@@ -96,17 +102,27 @@ class _Locator:
     def __init__(self, ws: Workspace) -> None:
         self.ws = ws
         self.files = {e.mapping.source: e.mapping_file for e in ws.sources}
+        self.roots: dict[Path, object] = {}  # each file parsed once, however many findings point into it
+
+    def _at(self, path: Path, *loc: str) -> tuple[int | None, int | None]:
+        if path not in self.roots:
+            try:
+                self.roots[path] = read_yaml(path)
+            except MappingError:
+                self.roots[path] = None
+        root = self.roots[path]
+        return (None, None) if root is None else locate_in(root, *loc)
 
     def __call__(self, source: str, column: str) -> tuple[str | None, int | None, int | None]:
         if not source:
             path = self.ws.canonical_file
-            return (self.ws.display(path), *position_of(path, "fields", column))
+            return (self.ws.display(path), *self._at(path, "fields", column))
         path = self.files.get(source)
         if path is None:
             return None, None, None
-        line, col = position_of(path, "columns", column)
+        line, col = self._at(path, "columns", column)
         if line is None:
-            line, col = position_of(path, "columns")
+            line, col = self._at(path, "columns")
         return self.ws.display(path), line, col
 
 
@@ -201,7 +217,11 @@ def check_workspace(root: str | Path = ".", *, crosswalk: pd.DataFrame | None = 
         mapped = apply_mapping(raw, mapping, canonical, loaded.rates, data_file=data_file,
                                mapping_file=ws.display(entry.mapping_file), mapping_path=entry.mapping_file,
                                on_error="collect")
+        mapped = add_read_failures(mapped, raw, data_file)
         report.records[mapping.source] = len(mapped.frame)
+        if mapped.frame.empty:
+            report.add([Finding("warning", "no_records", no_records_text(mapping.source), data_file,
+                                source=mapping.source, hint=NO_RECORDS_HINT)])
         raws[mapping.source] = raw
         report.add(Finding.from_error(e, mapping.source) for e in mapped.problems)
         if mapped.unmapped_columns:
@@ -219,6 +239,7 @@ def check_workspace(root: str | Path = ".", *, crosswalk: pd.DataFrame | None = 
         records = pd.concat(frames, ignore_index=True)
         feeds = [f for f in _numeric_feeds(loaded) if f.source in report.records]
         report.add(range_findings(records, canonical, feeds, data_files))
+        report.add(birth_date_findings(records, canonical, data_files, _Locator(ws)))
         report.add(compare_distributions(records, canonical, feeds, locate))
         from ..outputs.publish import current_output_folder  # the last run's folder, wherever --out put it
 
@@ -264,4 +285,37 @@ def run_value_findings(records: pd.DataFrame, ws: Workspace, crosswalk: pd.DataF
     found += compare_distributions(records, ws.canonical, feeds, locate)
     if crosswalk is not None:
         found += compare_linked(records, _entity_ids(records, crosswalk), ws.canonical, feeds, locate)
+    return found
+
+
+OLDEST_AGE = 130  # years: no one alive is older (the oldest verified age is 122, common practice)
+
+
+def birth_date_findings(records: pd.DataFrame, canonical: CanonicalSchema, data_files: dict[str, str],
+                        locate: _Locator, today: dt.date | None = None) -> list[Finding]:
+    """Birth dates in the future or more than 130 years back, per source and field, with their rows.
+
+    A field is a birth date when its name or meaning says 'birth'. Dates are ISO 8601 text after
+    mapping (``1987-03-04``, or a year alone).
+    """
+    today = today or dt.datetime.now(dt.UTC).date()
+    found: list[Finding] = []
+    for name, spec in canonical.fields.items():
+        if spec.type != "date" or "birth" not in f"{name} {spec.meaning}".lower() or name not in records:
+            continue
+        text = records[name].astype("string")
+        year = pd.to_numeric(text.str.slice(0, 4), errors="coerce")
+        full = pd.to_datetime(text.where(text.str.len() >= 10).str.slice(0, 10), errors="coerce", format="%Y-%m-%d")
+        future = (full > pd.Timestamp(today)) | (year > today.year)
+        old = year < today.year - OLDEST_AGE
+        for label, bad in (("in the future", future.fillna(False)), (f"more than {OLDEST_AGE} years ago",
+                                                                     old.fillna(False))):
+            for source, group in records[bad.to_numpy(dtype=bool)].groupby(SOURCE, sort=True):
+                shown = ", ".join(str(v) for v in group[name].head(3))
+                found.append(Finding(
+                    "warning", "implausible_birth_date",
+                    f"{len(group)} value(s) of '{name}' are {label} ({rows_text(group[ROW])}; e.g. {shown})",
+                    data_files.get(str(source)), int(group[ROW].iloc[0]), None, str(source),
+                    hint="check the values and the column's date format (a two-digit year read in the wrong "
+                    "century looks like this)"))
     return found

@@ -4,13 +4,16 @@ from __future__ import annotations
 
 import difflib
 import hashlib
+import os
+import re
 from pathlib import Path
 from typing import Any, TypeVar
 
+import numpy as np
 from pydantic import BaseModel, ValidationError
 from ruamel.yaml import YAML
 from ruamel.yaml.comments import CommentedMap, CommentedSeq
-from ruamel.yaml.error import MarkedYAMLError
+from ruamel.yaml.error import MarkedYAMLError, YAMLError
 
 from ..errors import InputErrors, MappingError
 from .spec import CanonicalSchema, SourceMapping
@@ -58,23 +61,87 @@ def _position(root: Any, loc: tuple[Any, ...]) -> tuple[int | None, int | None, 
     return line, column, ".".join(path)
 
 
+# Limits on a mapping file, so that a hostile or broken file fails fast with a clear message.
+MAX_MAPPING_BYTES = 20_000_000  # 100,000 column entries take about 3 MB
+MAX_NODES = 2_000_000  # values after aliases are expanded (a "billion laughs" file has ~10^9)
+MAX_DEPTH = 64  # nesting of mappings and lists; real mapping files use 4 or 5
+
+# Characters YAML 1.2 allows in a stream (section 5.1): tab, LF, CR, printable ASCII, NEL and the
+# printable Unicode planes. Anything else (NUL, BEL, DEL, U+FFFF...) is refused by the parser.
+_NOT_PRINTABLE = re.compile("[^\t\n\r\x20-\x7e\x85\xa0-\ud7ff\ue000-\ufffd\U00010000-\U0010ffff]")
+
+_CACHE: dict[tuple[str, str], Any] = {}  # (path, sha-256 of the bytes) -> parsed YAML
+_CACHE_SIZE = 16
+
+
+def _limit_from_env(name: str, default: int) -> int:
+    text = os.environ.get(name, "").strip()
+    return int(text) if text.isdigit() else default
+
+
 def read_yaml(path: Path, display: str | None = None) -> Any:
     """Parse one YAML file, raising MappingError with the position of a syntax error.
 
-    ``display`` is the file's name in messages (default: the path as given).
+    ``display`` is the file's name in messages (default: the path as given). The parsed result is
+    kept (keyed by the file's content), so that finding the line of many keys parses the file once.
+
+    Raises:
+        MappingError: ``missing_file``, ``not_a_file`` (a folder), ``unreadable_file``,
+            ``file_too_large``, ``bad_encoding``, ``control_character``, ``bad_yaml``,
+            ``too_deep`` or ``alias_bomb``; each names the file and, where known, line and column.
     """
     shown = display or str(path)
     if not path.exists():
         raise MappingError("mapping file not found", file=shown, reason="missing_file")
+    if not path.is_file():
+        raise MappingError("mapping file is a folder, not a file", file=shown, reason="not_a_file",
+                           hint="point at a .yaml file")
+    limit = _limit_from_env("INTEGRATE_MAX_MAPPING_BYTES", MAX_MAPPING_BYTES)
     try:
-        text = path.read_text(encoding="utf-8")
+        size = path.stat().st_size
+        if size > limit:
+            raise MappingError(f"mapping file is {size:,} bytes, more than the limit of {limit:,}", file=shown,
+                               reason="file_too_large",
+                               hint="a mapping file is a few kilobytes; raise INTEGRATE_MAX_MAPPING_BYTES if this "
+                               "one is meant to be so large")
+        data = path.read_bytes()
+    except OSError as exc:
+        raise MappingError(f"mapping file cannot be read: {exc.strerror or exc}", file=shown,
+                           reason="unreadable_file", hint="check the file's permissions") from exc
+    key = (str(path.resolve()), hashlib.sha256(data).hexdigest())
+    if key in _CACHE:
+        return _CACHE[key]
+    root = _parse(data, shown)
+    if len(_CACHE) >= _CACHE_SIZE:
+        _CACHE.pop(next(iter(_CACHE)))
+    _CACHE[key] = root
+    return root
+
+
+def _line_col(text: str, offset: int) -> tuple[int, int]:
+    line = text.count("\n", 0, offset) + 1
+    return line, offset - (text.rfind("\n", 0, offset) + 1) + 1
+
+
+def _parse(data: bytes, shown: str) -> Any:
+    try:
+        text = data.decode("utf-8")
     except UnicodeDecodeError as exc:
+        line = data.count(b"\n", 0, exc.start) + 1
         raise MappingError(
-            "mapping file is not UTF-8 text", file=shown, reason="bad_encoding"
-        ) from exc
+            f"mapping file is not UTF-8 text (byte {data[exc.start:exc.start + 1]!r} cannot be decoded)",
+            file=shown, line=line, reason="bad_encoding", hint="save the file as UTF-8") from exc
+    text = text.removeprefix("\ufeff")
+    bad = _NOT_PRINTABLE.search(text)
+    if bad:
+        line, column = _line_col(text, bad.start())
+        raise MappingError(f"mapping file holds the control character U+{ord(bad.group()):04X}", file=shown,
+                           line=line, column=column, value=repr(bad.group()), reason="control_character",
+                           hint="remove it; mapping files are plain text (tabs and line breaks only)")
+    _check_flow_depth(data, shown)
     yaml = YAML(typ="rt")
     try:
-        return yaml.load(text)
+        root = yaml.load(text)
     except MarkedYAMLError as exc:
         mark = exc.problem_mark
         raise MappingError(
@@ -83,7 +150,71 @@ def read_yaml(path: Path, display: str | None = None) -> Any:
             line=mark.line + 1 if mark else None,
             column=mark.column + 1 if mark else None,
             reason="bad_yaml",
+            hint="check the indentation and quoting on that line",
         ) from exc
+    except YAMLError as exc:  # reader and emitter errors carry no mark
+        raise MappingError(f"YAML cannot be read: {exc}", file=shown, reason="bad_yaml") from exc
+    except RecursionError as exc:
+        raise MappingError(f"mapping file is nested too deeply (more than {MAX_DEPTH} levels)", file=shown,
+                           reason="too_deep", hint="a mapping file needs only a few levels of nesting") from exc
+    _check_size(root, shown)
+    return root
+
+
+def _check_flow_depth(data: bytes, shown: str) -> None:
+    """Refuse ``[[[[...`` or ``{{{{...`` nested past MAX_DEPTH before the (recursive) parser sees it.
+
+    Brackets inside quoted text are counted too; a real mapping file never has dozens of them
+    open at once, so this only over-counts files that are refused anyway.
+    """
+    codes = np.frombuffer(data, dtype=np.uint8)
+    step = np.isin(codes, (ord("["), ord("{"))).astype(np.int32) - np.isin(codes, (ord("]"), ord("}")))
+    if not len(step):
+        return
+    depth = np.cumsum(step)
+    if int(depth.max()) > MAX_DEPTH:
+        offset = int(np.argmax(depth > MAX_DEPTH))
+        line = data.count(b"\n", 0, offset) + 1
+        raise MappingError(f"mapping file is nested more than {MAX_DEPTH} levels deep", file=shown, line=line,
+                           reason="too_deep", hint="a mapping file needs only a few levels of nesting")
+
+
+def _check_size(root: Any, shown: str) -> None:
+    """Refuse nesting deeper than MAX_DEPTH and aliases that expand past MAX_NODES values.
+
+    Aliases are shared objects after parsing, so the expanded size is counted once per object
+    (memoised), in time linear in the file, before anything walks the expanded tree.
+    """
+    sizes: dict[int, int] = {}
+    open_nodes: set[int] = set()
+    limit = _limit_from_env("INTEGRATE_MAX_MAPPING_NODES", MAX_NODES)
+
+    def size(node: Any, depth: int) -> int:
+        if not isinstance(node, (dict, list)):
+            return 1
+        known = sizes.get(id(node))
+        if known is not None:
+            return known
+        if depth > MAX_DEPTH:
+            line = getattr(getattr(node, "lc", None), "line", None)
+            raise MappingError(f"mapping file is nested more than {MAX_DEPTH} levels deep", file=shown,
+                               line=None if line is None else line + 1, reason="too_deep",
+                               hint="a mapping file needs only a few levels of nesting")
+        if id(node) in open_nodes:
+            raise MappingError("mapping file holds an alias inside its own anchor (a loop)", file=shown,
+                               reason="alias_loop", hint="an alias '*name' must refer to a value defined before it")
+        open_nodes.add(id(node))
+        children = list(node.keys()) + list(node.values()) if isinstance(node, dict) else node
+        total = 1 + sum(size(child, depth + 1) for child in children)
+        if total > limit:
+            raise MappingError(f"mapping file expands to more than {limit:,} values (aliases repeating aliases)",
+                               file=shown, reason="alias_bomb",
+                               hint="write the values out instead of nesting '*' aliases")
+        open_nodes.discard(id(node))
+        sizes[id(node)] = total
+        return total
+
+    size(root, 0)
 
 
 def _hint_for(loc: tuple[Any, ...], error_type: str, model: type[BaseModel]) -> str | None:

@@ -43,7 +43,11 @@ def _numbers(raw: pd.DataFrame) -> pd.DataFrame:
         parsed = pd.to_numeric(distinct.str.replace(",", "", regex=False), errors="coerce")
         if parsed.notna().mean() < NUMERIC_SHARE or parsed.nunique() < 3:
             continue
-        out[str(column)] = text.map(dict(zip(distinct, parsed))).astype("float64")
+        # through a float64 lookup, not .astype on the mapped text: a value that does not read as a
+        # number must become NaN, never a pandas NA that float() refuses
+        lookup = pd.Series(parsed.to_numpy(dtype="float64", na_value=np.nan), index=distinct.to_numpy(dtype=object))
+        values = lookup.reindex(text.to_numpy(dtype=object, na_value=None)).to_numpy(dtype="float64")
+        out[str(column)] = pd.Series(values, index=raw.index)
     return pd.DataFrame(out, index=raw.index)
 
 

@@ -12,6 +12,7 @@ import tempfile
 from collections.abc import Callable
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from ..killpoints import reached
@@ -78,13 +79,31 @@ def _has_carriage_return(frame: pd.DataFrame) -> bool:
     return any(bool(frame[c].astype("string").str.contains("\r", regex=False).fillna(False).any()) for c in text)
 
 
+def with_fixed_decimals(frame: pd.DataFrame) -> pd.DataFrame:
+    """Float columns named in ``frame.attrs["decimals"]`` as text with that many decimals.
+
+    A CSV otherwise shows 20 pounds as '20.0' and 164.084 cm as '164.08399999999997'; money
+    keeps its currency's minor units ('20.00', ISO 4217). Missing values stay empty.
+    """
+    places = frame.attrs.get("decimals") or {}
+    columns = [c for c in places if c in frame.columns and pd.api.types.is_float_dtype(frame[c])]
+    if not columns:
+        return frame
+    out = frame.copy()
+    for column in columns:
+        number = out[column].to_numpy(dtype=float)
+        text = np.char.mod(f"%.{int(places[column])}f", number).astype(object)
+        out[column] = pd.Series(np.where(np.isnan(number), None, text), index=out.index, dtype="string")
+    return out
+
+
 def write_csv(frame: pd.DataFrame, path: Path) -> None:
-    """A CSV with formula-like text cells quoted.
+    """A CSV with formula-like text cells quoted and fixed decimals where the frame names them.
 
     Python's CSV writer does not put a value holding a bare carriage return in quotes when lines
     end in ``\n``, so a reader would cut the row there; such a table gets every field quoted.
     """
-    safe = neutralise_frame(frame)
+    safe = neutralise_frame(with_fixed_decimals(frame))
     if _has_carriage_return(safe):
         safe.to_csv(path, index=False, quoting=csv.QUOTE_ALL)
     else:

@@ -51,7 +51,21 @@ def read_decisions_file(path: str | Path) -> pd.DataFrame:
     path = Path(path)
     if not path.exists():
         raise InputError("file not found", file=str(path), reason="missing_file")
-    frame = pd.read_csv(path, dtype=str, keep_default_na=False)
+    try:
+        frame = pd.read_csv(path, dtype=str, keep_default_na=False, encoding="utf-8")
+    except UnicodeDecodeError as exc:
+        data = path.read_bytes()
+        line = None
+        try:
+            data.decode("utf-8")
+        except UnicodeDecodeError as bad:  # pandas' error counts from its buffer, not the file
+            line = data.count(b"\n", 0, bad.start) + 1
+        raise InputError(f"decisions file is not UTF-8 text ({exc.reason})", file=str(path), line=line,
+                         reason="bad_encoding", hint="save the file as UTF-8 (the format 'review --export' writes)"
+                         ) from exc
+    except (pd.errors.ParserError, pd.errors.EmptyDataError) as exc:
+        raise InputError(f"decisions file cannot be read as CSV: {exc}", file=str(path), reason="bad_csv",
+                         hint="use the CSV layout 'review --export' writes") from exc
     missing = [c for c in REQUIRED if c not in frame.columns]
     if missing:
         raise InputError(f"missing columns {missing}", file=str(path), line=1, reason="missing_column",

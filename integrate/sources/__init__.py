@@ -21,15 +21,17 @@ import pandas as pd
 import sqlalchemy as sa
 
 from integrate.errors import SourceError
+from integrate.mapping.apply import FAILURE_COLUMNS, MappedSource
 from integrate.mapping.spec import ReadSpec
 from integrate.sources.columnar import read_parquet
 from integrate.sources.database import read_database, read_sqlite
 from integrate.sources.delimited import read_delimited
-from integrate.sources.frame import SourceFile
+from integrate.sources.frame import SourceFile, read_failures
 from integrate.sources.json_records import read_json_records
+from integrate.sources.limits import over, read_limits, time_limit
 from integrate.sources.workbook import read_workbook
 
-__all__ = ["read_source"]
+__all__ = ["read_source", "add_read_failures"]
 
 _FileReader = Callable[[Path, ReadSpec, SourceFile], pd.DataFrame]
 
@@ -81,7 +83,53 @@ def read_source(spec: ReadSpec, root: Path, *, name: str) -> pd.DataFrame:
             reason="missing_file",
             hint=f"check `path` in the mapping's read section; a relative path starts at {root}",
         )
-    return _FILE_READERS[spec.format](path, spec, SourceFile(path=str(path), shown=shown, name=name))
+    limits = read_limits()
+    try:
+        size = path.stat().st_size
+        with path.open("rb"):
+            pass  # unreadable (permissions) shows here, with a clear message
+    except OSError as exc:
+        raise SourceError(
+            f"file of source '{name}' cannot be opened: {exc.strerror or exc}",
+            file=shown,
+            reason="unreadable_file",
+            hint="check the file's permissions",
+        ) from exc
+    if size == 0:
+        raise SourceError(
+            f"file of source '{name}' is empty (0 bytes)",
+            file=shown,
+            reason="empty_file",
+            hint="export the source again; an export with no records still has a header row",
+        )
+    if over(size, limits.max_bytes):
+        raise SourceError(
+            f"file of source '{name}' is {size:,} bytes, more than the limit of {limits.max_bytes:,}",
+            file=shown,
+            reason="file_too_large",
+            hint="check the file; raise INTEGRATE_MAX_SOURCE_BYTES if the export really is this large",
+        )
+    with time_limit(limits, shown, name):
+        return _FILE_READERS[spec.format](path, spec, SourceFile(path=str(path), shown=shown, name=name))
+
+
+def add_read_failures(mapped: MappedSource, raw: pd.DataFrame, data_file: str) -> MappedSource:
+    """Put the cells the reader could not read among the mapped source's failures (``failures.csv``)."""
+    lost = read_failures(raw)
+    if not lost:
+        return mapped
+    part = pd.DataFrame({
+        "source": mapped.name,
+        "file": data_file,
+        "row": [f.row for f in lost],
+        "column": [f.column for f in lost],
+        "value": [f.value for f in lost],
+        "reason": [f.reason for f in lost],
+        "message": [f.message for f in lost],
+    }, columns=FAILURE_COLUMNS)
+    frames = [f for f in (part, mapped.failures) if not f.empty]
+    mapped.failures = pd.concat(frames, ignore_index=True) if len(frames) > 1 else part
+    return mapped
 
 
 def _shown_url(url: str) -> str:

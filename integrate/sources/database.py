@@ -58,9 +58,9 @@ def _read(engine: sa.Engine, spec: ReadSpec, src: SourceFile) -> pd.DataFrame:
                 statement = sa.select(sa.text("*")).select_from(sa.table(table))
             frame = pd.read_sql_query(statement, conn, coerce_float=False)
             conn.rollback()
-    except sa.exc.SQLAlchemyError as exc:
+    except (sa.exc.SQLAlchemyError, sqlite3.Error, UnicodeDecodeError) as exc:  # a damaged file decodes badly
         raise SourceError(
-            f"reading source '{src.name}' failed: {getattr(exc, 'orig', None) or exc}",
+            f"reading source '{src.name}' failed: {getattr(exc, 'orig', None) or exc}"[:400],
             file=src.shown,
             value=spec.query or spec.table,
             reason="bad_query" if spec.query else "bad_database",

@@ -14,6 +14,7 @@ import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
+from typing import NamedTuple
 
 import numpy as np
 import pandas as pd
@@ -29,6 +30,29 @@ class SourceFile:
     path: str  # resolved location (file path, or a database URL)
     shown: str  # the path or URL as the user wrote it
     name: str  # the source's short name
+
+
+class ReadFailure(NamedTuple):
+    """A cell the reader could not turn into a value (left empty, listed in ``failures.csv``)."""
+
+    row: int  # the record's ``_row``
+    column: str
+    value: str
+    reason: str
+    message: str
+
+
+_FAILURES = "read_failures"  # key in DataFrame.attrs; a tuple, so pandas can copy and compare it
+
+
+def attach_failures(frame: pd.DataFrame, failures: Sequence[ReadFailure]) -> None:
+    """Note the cells a reader could not read on the frame it returns."""
+    frame.attrs[_FAILURES] = tuple(frame.attrs.get(_FAILURES, ())) + tuple(failures)
+
+
+def read_failures(frame: pd.DataFrame) -> list[ReadFailure]:
+    """The cells the reader of ``frame`` could not read."""
+    return [ReadFailure(*f) for f in frame.attrs.get(_FAILURES, ())]
 
 
 def read_text(path: Path, encoding: str, src: SourceFile) -> str:
@@ -202,6 +226,9 @@ def text_frame(columns: pd.DataFrame, rows: Sequence[int] | np.ndarray, src: Sou
     Raises:
         SourceError: a source column is itself called ``_row``.
     """
+    from integrate.sources.limits import check_columns, read_limits
+
+    check_columns(columns.shape[1], read_limits(), src.shown, src.name)  # before converting each column
     names = [str(c) for c in columns.columns]
     if ROW in names:
         raise SourceError(

@@ -2,54 +2,55 @@
 
 from __future__ import annotations
 
+import re
 import warnings
 import zipfile
+import zlib
 from pathlib import Path
+from typing import BinaryIO
 
 import pandas as pd
 from openpyxl import load_workbook
 from openpyxl.utils import get_column_letter
-from openpyxl.utils.exceptions import InvalidFileException
 
 from integrate.errors import SourceError
 from integrate.mapping.spec import ReadSpec
-from integrate.sources.frame import SourceFile, cell_text, text_frame, unique_names
+from integrate.sources.frame import ReadFailure, SourceFile, attach_failures, cell_text, text_frame, unique_names
+from integrate.sources.limits import ReadLimits, check_columns, over, read_limits
+
+_OLE_MAGIC = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"  # compound file: an old .xls, or an encrypted .xlsx
+_FORMULA_TAG = re.compile(rb"<(?:[A-Za-z0-9_]+:)?f[\s>/]")  # <f>, <f t="shared" .../>, <x:f>
 
 
 def read_workbook(path: Path, spec: ReadSpec, src: SourceFile) -> pd.DataFrame:
     """Read one sheet; the first non-empty row is the header, ``_row`` is the sheet row.
 
-    Cells are read as their stored values (a formula gives its last computed result).
+    Cells are read as their stored values (a formula gives its last computed result). A formula
+    cell with no stored result (a file written by a script and never opened in a spreadsheet) is
+    left empty and listed as a failure naming the cell (reason ``formula_without_value``).
     Date cells become ``YYYY-MM-DD`` (``YYYY-MM-DDTHH:MM:SS`` when the time is not midnight),
     whole numbers lose the ``.0`` Excel stores them with.
 
     Raises:
-        SourceError: ``missing_sheet`` (listing the sheets), ``bad_file`` (not an .xlsx).
+        SourceError: ``missing_sheet`` (listing the sheets), ``bad_file`` (not an .xlsx, or its
+            sheet cannot be parsed), ``encrypted_file`` (password-protected), ``file_too_large``.
     """
-    try:
-        with warnings.catch_warnings():
-            # openpyxl warns about features it does not read (data validation, styles);
-            # they do not change cell values
-            warnings.filterwarnings("ignore", category=UserWarning, module="openpyxl")
-            book = load_workbook(path, read_only=True, data_only=True)
-    except (InvalidFileException, zipfile.BadZipFile, KeyError, OSError) as exc:
-        raise SourceError(
-            f"source '{src.name}' is not a readable .xlsx workbook: {exc}",
-            file=src.shown,
-            reason="bad_file",
-            hint="save the file as Excel Workbook (.xlsx); older .xls files are not read",
-        ) from exc
-    try:
-        sheet = book[_sheet_name(book.sheetnames, spec.sheet, src)]
-        # openpyxl reads cell by cell; this is the only way to it, as inside pandas
-        cells = list(sheet.iter_rows(min_row=1, values_only=True))
-    finally:
-        book.close()
-
+    limits = read_limits()
+    with path.open("rb") as handle:
+        if handle.read(8) == _OLE_MAGIC:
+            raise SourceError(
+                f"source '{src.name}' is a password-protected workbook or an old .xls file",
+                file=src.shown,
+                reason="encrypted_file",
+                hint="remove the password (or save as Excel Workbook .xlsx) and export again",
+            )
+    with path.open("rb") as handle:  # closed here even when openpyxl gives up half-way
+        cells, formulas = _read_cells(handle, path, spec, src, limits)
     header_at = next((i for i, row in enumerate(cells) if any(v is not None for v in row)), None)
     if header_at is None:
         return text_frame(pd.DataFrame(), [], src)
     width = max(len(row) for row in cells)
+    check_columns(width, limits, src.shown, src.name)
     header = [cell_text(v).strip() if v is not None else "" for v in cells[header_at]]
     header += [""] * (width - len(header))
     names = unique_names(
@@ -59,11 +60,110 @@ def read_workbook(path: Path, spec: ReadSpec, src: SourceFile) -> pd.DataFrame:
     body = [row + (None,) * (width - len(row)) for row in cells[header_at + 1 :]]
     frame = pd.DataFrame(body, columns=range(width), dtype=object)
     frame.columns = names
-    # a column without a header and without values is formatting residue, not data
-    residue = [n for n, text in zip(names, header) if not text and not frame[n].notna().any()]
-    frame = frame.drop(columns=residue)
     first_data_row = header_at + 2  # sheet rows are 1-based; the header takes one
-    return text_frame(frame, range(first_data_row, first_data_row + len(body)), src)
+    lost = _formulas_without_values(cells, formulas, header_at, names)
+    # a column without a header and without values is formatting residue, not data
+    residue = [n for n, text in zip(names, header) if not text and not frame[n].notna().any()
+               and not any(f[1] == n for f in lost)]
+    frame = frame.drop(columns=residue)
+    out = text_frame(frame, range(first_data_row, first_data_row + len(body)), src)
+    if lost:
+        attach_failures(out, lost)
+    return out
+
+
+def _read_cells(handle: BinaryIO, path: Path, spec: ReadSpec, src: SourceFile,
+                limits: ReadLimits) -> tuple[list[tuple[object, ...]], list[tuple[object, ...]]]:
+    """Every row of the sheet as stored values, and (when the sheet has formulas) as formula text."""
+    try:
+        with warnings.catch_warnings():
+            # openpyxl warns about features it does not read (data validation, styles);
+            # they do not change cell values
+            warnings.filterwarnings("ignore", category=UserWarning, module="openpyxl")
+            book = load_workbook(handle, read_only=True, data_only=True)
+    except Exception as exc:  # noqa: BLE001 - any failure of the parser on a hostile file is a bad file
+        raise _bad_file(src, exc) from exc
+    try:
+        sheet = book[_sheet_name(book.sheetnames, spec.sheet, src)]
+        has_formulas = _check_sheet_xml(path, getattr(sheet, "_worksheet_path", None), limits, src)
+        try:
+            # openpyxl reads cell by cell; this is the only way to it, as inside pandas
+            cells = list(sheet.iter_rows(min_row=1, values_only=True))
+            formulas: list[tuple[object, ...]] = []
+            if has_formulas:
+                # the sheet parser reads this flag (openpyxl 3.1 has no setter): the same sheet again,
+                # formulas as text; tests/bad_input/test_lost_values.py fails if this stops working
+                book._data_only = False
+                formulas = list(sheet.iter_rows(min_row=1, values_only=True))
+        except SourceError:
+            raise
+        except Exception as exc:  # noqa: BLE001 - corrupt or cut-short sheet XML in an intact zip
+            raise _bad_file(src, exc) from exc
+    finally:
+        book.close()
+
+    return cells, formulas
+
+
+def _bad_file(src: SourceFile, exc: BaseException) -> SourceError:
+    detail = str(exc) or type(exc).__name__
+    return SourceError(
+        f"source '{src.name}' is not a readable .xlsx workbook ({type(exc).__name__}: {detail[:200]})",
+        file=src.shown,
+        reason="bad_file",
+        hint="open the file in a spreadsheet and save it again as Excel Workbook (.xlsx); "
+        "older .xls files are not read",
+    )
+
+
+def _check_sheet_xml(path: Path, member: str | None, limits: ReadLimits, src: SourceFile) -> bool:
+    """Refuse a sheet that unpacks to more than the limit (a zip bomb); say whether it holds formulas."""
+    if not member:
+        return True  # cannot tell: look for formulas the slow way
+    try:
+        with zipfile.ZipFile(path) as archive:
+            info = archive.getinfo(member.lstrip("/"))
+            if over(info.file_size, limits.max_xlsx_bytes):
+                raise SourceError(
+                    f"the sheet of source '{src.name}' unpacks to {info.file_size:,} bytes, more than the limit "
+                    f"of {limits.max_xlsx_bytes:,}",
+                    file=src.shown,
+                    reason="file_too_large",
+                    hint="check the file; raise INTEGRATE_MAX_XLSX_BYTES if the sheet really is this large",
+                )
+            tail = b""
+            with archive.open(info) as xml:
+                while chunk := xml.read(1 << 20):
+                    if _FORMULA_TAG.search(tail + chunk):
+                        return True
+                    tail = chunk[-16:]
+    except (KeyError, zipfile.BadZipFile, OSError, EOFError, zlib.error) as exc:
+        raise _bad_file(src, exc) from exc
+    return False
+
+
+def _formulas_without_values(values: list[tuple[object, ...]], formulas: list[tuple[object, ...]],
+                             header_at: int, names: list[str]) -> list[ReadFailure]:
+    """Cells that hold a formula but no stored result: (sheet row, column, formula, reason, message)."""
+    lost: list[ReadFailure] = []
+    for r, (stored, written) in enumerate(zip(values, formulas)):
+        if r <= header_at:
+            continue
+        for c, (value, formula) in enumerate(zip(stored, written)):
+            if value is None and formula is not None and _is_formula(formula):
+                cell = f"{get_column_letter(c + 1)}{r + 1}"
+                text = formula if isinstance(formula, str) else str(getattr(formula, "text", formula))
+                lost.append(ReadFailure(
+                    r + 1, names[c], text[:200], "formula_without_value",
+                    f"cell {cell} holds the formula {text[:60]!r} but no stored result (the file was never "
+                    "recalculated); open it in a spreadsheet, save, and export again"))
+    return lost
+
+
+def _is_formula(value: object) -> bool:
+    if isinstance(value, str):
+        return value.startswith("=")
+    return type(value).__name__ in ("ArrayFormula", "DataTableFormula")
 
 
 def _sheet_name(available: list[str], wanted: str | int | None, src: SourceFile) -> str:
