@@ -169,7 +169,8 @@ def test_unknown_currency_in_a_row_names_file_row_column(club: Path) -> None:
     edit(data, ",EUR,", ",EUX,")  # first EUR row is C000, on line 2
     proc = cli("check", str(club))
     assert proc.returncode == 2
-    assert "data/club.csv:2 column 'fee': 'EUX' is not an ISO 4217 currency code (1 rows: 2)" in proc.stdout, \
+    assert ("data/club.csv:2 column 'fee': currency column 'currency': 'EUX' is not an ISO 4217 currency code "
+            "(1 rows: 2)") in proc.stdout, \
         proc.stdout
 
 

@@ -140,5 +140,6 @@ def test_bad_emails_are_failures_in_a_run(tmp_path: Path) -> None:
     assert proc.returncode == 0, proc.stderr
     assert "2 values could not be read" in proc.stdout
     failures = pd.read_csv(root / "out" / "failures.csv", dtype=str)
+    # the written failures table quotes the formula-like value (outputs.cells: OWASP CSV-injection guidance)
     assert failures[["row", "value", "reason"]].values.tolist() == [
-        ["4", "=1+2", "bad_email"], ["5", "<script>alert(1)</script>", "bad_email"]]
+        ["4", "'=1+2", "bad_email"], ["5", "<script>alert(1)</script>", "bad_email"]]
