@@ -50,6 +50,13 @@ from .score import LINK, POSSIBLE
 # (odds 99 to 1 against; common practice for a "clear" decision, not a published constant).
 DIFFERENT_BELOW = 0.01
 
+# Compared pairs' log-odds are clipped to this (a probability of 1 - 1e-9 at most), and a cut is
+# solved exactly by branch and bound for components of at most EXACT_UP_TO must-link groups.
+EVIDENCE_LIMIT = 20.0
+EXACT_UP_TO = 10
+# A compared pair at or above this probability is "near certain": a cut should never separate it.
+NEAR_CERTAIN = 0.99
+
 DIFFERENT_DECISION = "different decision"
 ONE_PER_PERSON = "one record per person"
 CHAINING_GUARD = "chaining guard"
@@ -273,30 +280,203 @@ def _evidence(p: float) -> float:
     return float(-np.log(1.0 - min(max(p, 1e-12), 1.0 - 1e-12)))
 
 
+def _log_odds(p: np.ndarray) -> np.ndarray:
+    """Weight of evidence of a compared pair, log(p / (1 - p)), clipped to +-EVIDENCE_LIMIT."""
+    q = np.clip(np.asarray(p, float), 1e-9, 1.0 - 1e-9)
+    return np.clip(np.log(q) - np.log1p(-q), -EVIDENCE_LIMIT, EVIDENCE_LIMIT)
+
+
+class _Problem:
+    """One component to cut, on its must-link groups ("units"): summed pair weights and hard conflicts.
+
+    ``weight`` is a sparse symmetric matrix of summed log-odds between units (compared pairs only);
+    ``conflict`` holds, per unit, the units it may not share a part with.
+    """
+
+    def __init__(self, comp: _Components, members: list[int]) -> None:
+        groups = np.array([comp.group[x] for x in members], np.int64)
+        unique, unit = np.unique(groups, return_inverse=True)  # group = smallest rank: rank order
+        self.unit = unit.reshape(-1)
+        self.k = len(unique)
+        position = {x: u for x, u in zip(members, self.unit.tolist())}
+        a, b, p = [], [], []
+        for x in members:
+            for y in members:
+                q = comp.pair_probability.get((x, y))
+                if q is not None and position[x] != position[y]:
+                    a.append(position[x])
+                    b.append(position[y])
+                    p.append(q)
+        w = _log_odds(np.array(p, float)) if p else np.zeros(0)
+        a_arr, b_arr = np.array(a, np.int64), np.array(b, np.int64)
+        matrix = coo_matrix((np.r_[w, w], (np.r_[a_arr, b_arr], np.r_[b_arr, a_arr])), shape=(self.k, self.k))
+        self.weight = matrix.tocsr()
+        self.weight.sum_duplicates()
+        self.conflict: list[set[int]] = [set() for _ in range(self.k)]
+        inside = set(members)
+        for x in members:
+            for y in comp.cannot.get(x, ()):
+                if y in inside:
+                    self._forbid(position[x], position[y])
+            for y, _ in comp.different.get(x, ()):
+                if y in inside:
+                    self._forbid(position[x], position[y])
+        for source in comp.one_per_person:
+            units = sorted({position[x] for x in members if comp.source[x] == source})
+            for s in range(len(units)):
+                for t in range(s + 1, len(units)):
+                    self._forbid(units[s], units[t])
+
+    def _forbid(self, u: int, v: int) -> None:
+        if u != v:
+            self.conflict[u].add(v)
+            self.conflict[v].add(u)
+
+    def row(self, u: int) -> tuple[np.ndarray, np.ndarray]:
+        start, end = self.weight.indptr[u], self.weight.indptr[u + 1]
+        return self.weight.indices[start:end], self.weight.data[start:end]
+
+    def score(self, part: np.ndarray) -> float:
+        """Sum of the weights of the pairs kept together (each pair once)."""
+        coo = self.weight.tocoo()
+        return float(coo.data[part[coo.row] == part[coo.col]].sum() / 2)
+
+    def heuristic(self) -> np.ndarray:
+        """Greedy pivots on the strongest evidence, then single-unit moves while any improves the score."""
+        part = np.full(self.k, -1, np.int64)
+        members: list[set[int]] = []
+        strongest = np.zeros(self.k)
+        coo = self.weight.tocoo()
+        np.maximum.at(strongest, coo.row, coo.data)
+        for pivot in np.argsort(-strongest, kind="stable").tolist():
+            if part[pivot] >= 0:
+                continue
+            part[pivot] = len(members)
+            members.append({pivot})
+            blocked = set(self.conflict[pivot])
+            cols, vals = self.row(pivot)
+            for v in cols[np.argsort(-vals, kind="stable")][np.sort(vals)[::-1] > 0].tolist():
+                if part[v] < 0 and v not in blocked:
+                    part[v] = part[pivot]
+                    members[-1].add(v)
+                    blocked |= self.conflict[v]
+        return self._improve(part)
+
+    def _improve(self, part: np.ndarray, sweeps: int = 50) -> np.ndarray:
+        part = part.copy()
+        for _ in range(sweeps):
+            moved = False
+            for u in range(self.k):
+                cols, vals = self.row(u)
+                gain = pd.Series(vals).groupby(part[cols]).sum() if len(cols) else pd.Series(dtype=float)
+                here = float(gain.get(part[u], 0.0))
+                blocked = {int(part[v]) for v in self.conflict[u]}
+                # a part of its own scores 0.0 (only if u is not alone already)
+                alone = (part == part[u]).sum() == 1
+                best, target = (-np.inf, None) if alone else (0.0, int(part.max()) + 1)
+                for label, value in gain.items():
+                    if label != part[u] and label not in blocked and value > best + 1e-9:
+                        best, target = float(value), int(label)
+                if target is not None and best > here + 1e-9:
+                    part[u] = target
+                    moved = True
+            if not moved:
+                break
+        return part
+
+    def exact(self, start: np.ndarray) -> np.ndarray:
+        """Branch and bound over all partitions that respect the conflicts, starting from ``start``'s
+        score; the bound adds every remaining positive weight."""
+        dense = self.weight.toarray()
+        k = self.k
+        positive_rest = np.array([np.clip(dense[t:, :], 0, None).sum() - np.clip(dense[t:, t:], 0, None).sum() / 2
+                                  for t in range(k)] + [0.0])
+        best = [self.score(start), start.copy()]
+        part = np.full(k, -1, np.int64)
+
+        def place(t: int, parts: int, total: float) -> None:
+            if total + positive_rest[t] <= best[0] + 1e-12:
+                return
+            if t == k:
+                best[0], best[1] = total, part.copy()
+                return
+            earlier = part[:t]
+            for label in range(parts + 1):
+                if label < parts and any(part[v] == label for v in self.conflict[t] if v < t):
+                    continue
+                part[t] = label
+                place(t + 1, max(parts, label + 1), total + float(dense[t, :t][earlier == label].sum()))
+            part[t] = -1
+
+        place(0, 0, 0.0)
+        return best[1]
+
+    def solve(self) -> np.ndarray:
+        start = self.heuristic()
+        return self.exact(start) if self.k <= EXACT_UP_TO else start
+
+
 def _cut(comp: _Components, graph: nx.Graph, members: list[int], number: int, splits: list[Split]
          ) -> list[tuple[list[int], tuple[str, ...]]]:
-    """Cut one component (its ``graph``) until no pair in any piece breaks a rule; pieces with the
-    reasons that cut them."""
-    pending: list[tuple[list[int], tuple[str, ...]]] = [(members, ())]
-    done: list[tuple[list[int], tuple[str, ...]]] = []
-    while pending:
-        part, reasons = pending.pop(0)
-        found = comp.violation(part) if len(part) > 1 else None
-        if found is None:
-            done.append((part, reasons))
-            continue
-        a, b, reason, detail = found
-        sub = graph.subgraph(part)
-        _, (side_a, side_b) = nx.minimum_cut(sub, a, b, capacity="capacity")
-        cut = [(x, y) for x, y in sub.edges() if (x in side_a) != (y in side_a)]
-        weight = float(sum(sub.edges[x, y].get("probability", 0.0) for x, y in cut))
+    """Cut one component into the partition with the most evidence kept together (see the module
+    docstring); pieces with the reasons that cut them."""
+    problem = _Problem(comp, members)
+    unit_part = problem.solve()
+    part_of = dict(zip(members, unit_part[problem.unit].tolist()))
+    pieces: list[list[int]] = []
+    for label in sorted(set(part_of.values())):
+        side = [x for x in members if part_of[x] == label]
+        pieces.extend(comp.sorted_part(piece) for piece in nx.connected_components(graph.subgraph(side)))
+    pieces.sort(key=lambda p: comp.rank[p[0]])
+    piece_of = {x: n for n, piece in enumerate(pieces) for x in piece}
+    across: dict[tuple[int, int], list[tuple[int, int]]] = {}
+    for x, y in graph.edges():
+        s, t = piece_of[x], piece_of[y]
+        if s != t:
+            across.setdefault((min(s, t), max(s, t)), []).append((x, y))
+    reasons: list[set[str]] = [set() for _ in pieces]
+    for (s, t), cut in sorted(across.items()):
+        a, b, reason, detail = _why_apart(comp, pieces[s], pieces[t])
+        weight = float(sum(graph.edges[x, y].get("probability", 0.0) for x, y in cut))
         splits.append(Split((a, b), reason, len(cut), weight, comp.probability_of(a, b), number, detail))
         label = reason if not detail else f"{reason} ({detail})"
-        now = reasons if label in reasons else reasons + (label,)
-        pieces = [comp.sorted_part(piece) for side in (side_a, side_b)
-                  for piece in nx.connected_components(sub.subgraph(side))]
-        pending.extend((piece, now) for piece in sorted(pieces, key=lambda p: comp.rank[p[0]]))
-    return done
+        reasons[s].add(label)
+        reasons[t].add(label)
+    return [(piece, tuple(sorted(r))) for piece, r in zip(pieces, reasons)]
+
+
+def _why_apart(comp: _Components, one: list[int], other: list[int]) -> tuple[int, int, str, str]:
+    """The pair that explains why two pieces are apart: a different decision, then one record per
+    person, then the clearest "different" pair; else (kept apart by weaker evidence) the strongest
+    compared pair between them, reported as the chaining guard."""
+    second = set(other)
+    for a in one:
+        for b in sorted(comp.cannot.get(a, ()), key=lambda x: comp.rank[x]):
+            if b in second:
+                return a, b, DIFFERENT_DECISION, ""
+    for source in comp.one_per_person:
+        a = next((x for x in one if comp.source[x] == source), None)
+        b = next((x for x in other if comp.source[x] == source), None)
+        if a is not None and b is not None:
+            return a, b, ONE_PER_PERSON, source
+    worst: tuple[float, int, int, int, int] | None = None
+    for a in one:
+        for b, p in comp.different.get(a, ()):
+            if b in second:
+                candidate = (p, int(comp.rank[a]), int(comp.rank[b]), a, b)
+                worst = candidate if worst is None or candidate < worst else worst
+    if worst is not None:
+        return worst[3], worst[4], CHAINING_GUARD, ""
+    strongest: tuple[float, int, int, int, int] | None = None
+    for a in one:
+        for b in other:
+            p = comp.probability_of(a, b)
+            if p is not None:
+                candidate = (-p, int(comp.rank[a]), int(comp.rank[b]), a, b)
+                strongest = candidate if strongest is None or candidate < strongest else strongest
+    if strongest is None:
+        return one[0], other[0], CHAINING_GUARD, ""
+    return strongest[3], strongest[4], CHAINING_GUARD, ""
 
 
 def cluster(records: pd.DataFrame, scored: pd.DataFrame, *, must_link: object = None, cannot_link: object = None,
@@ -413,6 +593,15 @@ def _entity_frame(records: pd.DataFrame, scored: pd.DataFrame, comp: _Components
         "possible_links_inside": possible[label],
         "cut_by": cut_by,
     }, index=records.index)
+
+
+def near_certain_pairs_cut(scored: pd.DataFrame, entity_ids: object, *, at_least: float = NEAR_CERTAIN) -> int:
+    """How many compared pairs with a direct match probability of at least ``at_least`` ended in two
+    different entities (a cut that separates such a pair dropped near-certain evidence; goal: 0)."""
+    labels = pd.factorize(np.asarray(entity_ids, dtype=object))[0]
+    i, j = scored["i"].to_numpy(np.int64), scored["j"].to_numpy(np.int64)
+    strong = scored["probability"].to_numpy(float) >= at_least
+    return int((labels[i[strong]] != labels[j[strong]]).sum())
 
 
 def cluster_table(entities: pd.DataFrame, records: pd.DataFrame) -> pd.DataFrame:

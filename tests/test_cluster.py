@@ -22,6 +22,7 @@ from integrate.cluster import (
     cluster,
     cluster_table,
     entity_id_for,
+    near_certain_pairs_cut,
 )
 
 
@@ -305,3 +306,115 @@ def test_weakest_link_is_the_smallest_edge_of_networkx_maximum_spanning_tree(cas
             assert weakest == expected[entity]
         else:
             assert np.isnan(weakest)
+
+
+# --- cuts keep the partition with the most evidence --------------------------------------------
+
+def _min_cut_sides(rows: list[tuple[int, int, float]], a: int, b: int) -> set[frozenset[int]]:
+    """Reference: networkx' minimum s-t cut on the links (capacity -log(1 - p)), as the earlier
+    chaining guard cut."""
+    import networkx as nx
+
+    graph = nx.Graph()
+    graph.add_edges_from((x, y, {"capacity": -np.log(1 - p)}) for x, y, p in rows if p >= 0.8)
+    _, (side_a, side_b) = nx.minimum_cut(graph, a, b)
+    return {frozenset(side_a), frozenset(side_b)}
+
+
+def test_household_member_chaining_through_a_shared_phone_is_cut_not_the_identical_partner() -> None:
+    # A person's records 0, 1, 2, 3; 0 and 1 identical (0.999). A household member (4) shares the
+    # family phone and so links to 0, 2 and 3 at 0.95 each, and was compared with 1 as clearly
+    # different (0.005). 1 was compared with 2 and 3 at 0.75 (possible links, not links).
+    # A minimum cut between 1 and 4 removes the cheapest links: 0-1 costs -log(0.001) = 6.91,
+    # cutting 4 away costs 3 x -log(0.05) = 8.99, so it cut the identical partner 1 away.
+    # Kept evidence (log-odds): {0,2,3,4},{1} keeps 3 x 2.94 = 8.83 (plus the links among 0, 2, 3,
+    # common to both); {0,1,2,3},{4} keeps 6.91 + 2 x 1.10 = 9.11, the larger: 4 is cut instead.
+    rows = [(0, 1, 0.999), (0, 2, 0.97), (0, 3, 0.97), (2, 3, 0.97), (0, 4, 0.95), (2, 4, 0.95),
+            (3, 4, 0.95), (1, 4, 0.005), (1, 2, 0.75), (1, 3, 0.75)]
+    assert frozenset({1}) in _min_cut_sides(rows, 1, 4)  # what the minimum cut did
+    records = make_records(["a"] * 5)
+    pairs = make_pairs(rows)
+    entities, splits = cluster(records, pairs)
+    assert groups(entities) == {frozenset({0, 1, 2, 3}), frozenset({4})}
+    assert [(s.reason, s.links_cut) for s in splits] == [(CHAINING_GUARD, 3)]
+    assert near_certain_pairs_cut(pairs, entities["entity_id"]) == 0
+
+
+def test_a_pair_at_probability_one_stays_together_whatever_chains_into_it() -> None:
+    # 0-1 identical (1.0). Records 2..6 form a tight group (0.99 among them) that links to 0 through
+    # five shared-contact links at 0.9 each; 1 was compared with each of 2..6 as clearly different.
+    # Keeping 1 with 0 keeps 20 (the clip of log-odds at 1.0); keeping 0 with 2..6 keeps 5 x 2.20
+    # = 11.0: the group is cut away, the identical pair stays whole.
+    rows = [(0, 1, 1.0)] + [(0, k, 0.9) for k in range(2, 7)] + [(1, k, 0.001) for k in range(2, 7)]
+    rows += [(x, y, 0.99) for x in range(2, 7) for y in range(x + 1, 7)]
+    records = make_records(["a"] * 7)
+    pairs = make_pairs(rows)
+    entities, splits = cluster(records, pairs)
+    assert groups(entities) == {frozenset({0, 1}), frozenset(range(2, 7))}
+    assert near_certain_pairs_cut(pairs, entities["entity_id"]) == 0
+    assert splits[0].links_cut == 5
+
+
+def _best_partition_by_enumeration(n: int, weight: dict[tuple[int, int], float], apart: set[tuple[int, int]]
+                                   ) -> float:
+    """Reference: the best kept evidence over every set partition of n records (brute force)."""
+    best = -np.inf
+
+    def walk(t: int, part: list[int]) -> None:
+        nonlocal best
+        if t == n:
+            if all(part[a] != part[b] for a, b in apart):
+                best = max(best, sum(w for (a, b), w in weight.items() if part[a] == part[b]))
+            return
+        for label in range(max(part, default=-1) + 2):
+            walk(t + 1, part + [label])
+
+    walk(0, [])
+    return best
+
+
+@settings(max_examples=60, deadline=None)
+@given(graphs())
+def test_cut_keeps_the_most_evidence_of_any_partition(case: tuple) -> None:
+    # reference: brute-force enumeration of set partitions (Bell numbers; n <= 8 here) of the same
+    # objective, sum of log-odds of compared pairs kept together, under the same hard constraints
+    records, pairs, _, _, _ = case
+    n = len(records)
+    if n > 8:
+        return
+    entities, splits = cluster(records, pairs)
+    if not splits:
+        return
+    label = pd.factorize(entities["entity_id"])[0]
+    # only the links join: the reference works on the one component that was cut
+    component = {x for s in splits for x in s.kept_apart}
+    links = pairs[pairs["decision"] == "link"]
+    grow = True
+    while grow:
+        grow = False
+        for a, b in zip(links["i"], links["j"]):
+            if (a in component) != (b in component):
+                component |= {int(a), int(b)}
+                grow = True
+    inside = sorted(component)
+    index = {x: k for k, x in enumerate(inside)}
+    weight: dict[tuple[int, int], float] = {}
+    apart: set[tuple[int, int]] = set()
+    for a, b, p in zip(pairs["i"], pairs["j"], pairs["probability"]):
+        if a in index and b in index:
+            q = min(max(p, 1e-9), 1 - 1e-9)
+            weight[(index[a], index[b])] = weight.get((index[a], index[b]), 0.0) + float(np.log(q / (1 - q)))
+            if p < DIFFERENT_BELOW:
+                apart.add((index[a], index[b]))
+    ours = sum(w for (a, b), w in weight.items() if label[inside[a]] == label[inside[b]])
+    # our pieces are also split into link-connected parts, which can only lose evidence kept by
+    # compared non-link pairs; so ours is at most the optimum, and equal when no such pair is lost
+    best = _best_partition_by_enumeration(len(inside), weight, apart)
+    assert ours <= best + 1e-6
+    assert ours >= best - sum(max(w, 0) for (a, b), w in weight.items()
+                              if pairs_decision(pairs, inside[a], inside[b]) != "link") - 1e-6
+
+
+def pairs_decision(pairs: pd.DataFrame, a: int, b: int) -> str:
+    hit = pairs[((pairs["i"] == a) & (pairs["j"] == b)) | ((pairs["i"] == b) & (pairs["j"] == a))]
+    return str(hit["decision"].iloc[0]) if len(hit) else ""
