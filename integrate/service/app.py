@@ -352,6 +352,10 @@ def create_app(workspaces: list[str | Path], *, host: str = "127.0.0.1", port: i
         return StreamingResponse(events(), media_type="text/event-stream", headers={"Cache-Control": "no-store"})
 
     # -- results ------------------------------------------------------------------------------
+    async def _outputs(ctx: WorkspaceContext) -> Any:
+        """The current output set: from memory on the event loop, or checked/loaded in a thread (never blocking)."""
+        return ctx.results.fresh() or await asyncio.to_thread(ctx.results.get)
+
     @app.get(f"{PREFIX}/workspaces/{{ws}}/runs", response_model=RunList, responses=ERRORS, tags=["results"])
     def list_runs(ws: str, request: Request) -> RunList:
         """Every recorded run, oldest first, with its change summary."""
@@ -365,11 +369,16 @@ def create_app(workspaces: list[str | Path], *, host: str = "127.0.0.1", port: i
         """An entity's merged row, member records and provenance per field (as `integrate show`)."""
         ctx = ctx_of(ws)
         auth.check(request, ctx, "reader")
-        story = ctx.results.get().story(entity_id)
-        if story is None:
-            raise ApiError(404, "unknown_entity", f"entity '{entity_id}' is not in the last run's merged table",
-                           "entity IDs are listed in crosswalk.csv and merged.csv")
-        return EntityStory(entity_id=entity_id, **story)
+        outputs = await _outputs(ctx)
+        answer = outputs.answers.get(("entity", entity_id))
+        if answer is None:
+            story = outputs.story(entity_id)
+            if story is None:
+                raise ApiError(404, "unknown_entity", f"entity '{entity_id}' is not in the last run's merged table",
+                               "entity IDs are listed in crosswalk.csv and merged.csv")
+            answer = outputs.answers.setdefault(("entity", entity_id),
+                                                EntityStory(entity_id=entity_id, **story).model_dump_json().encode())
+        return Response(answer, media_type="application/json")  # type: ignore[return-value]
 
     @app.get(f"{PREFIX}/workspaces/{{ws}}/records/{{source}}/{{record_id}}", response_model=CrosswalkEntry,
              responses=ERRORS, tags=["results"])
@@ -377,10 +386,15 @@ def create_app(workspaces: list[str | Path], *, host: str = "127.0.0.1", port: i
         """The entity a source's record belongs to (the crosswalk)."""
         ctx = ctx_of(ws)
         auth.check(request, ctx, "reader")
-        hit = ctx.results.get().entity_of_record(source, record_id)
-        if hit is None:
-            raise ApiError(404, "unknown_record", f"no record '{record_id}' of source '{source}' in the last run")
-        return CrosswalkEntry(**{k: hit.get(k) for k in CrosswalkEntry.model_fields})
+        outputs = await _outputs(ctx)
+        answer = outputs.answers.get(("record", source, record_id))
+        if answer is None:
+            hit = outputs.entity_of_record(source, record_id)
+            if hit is None:
+                raise ApiError(404, "unknown_record", f"no record '{record_id}' of source '{source}' in the last run")
+            answer = outputs.answers.setdefault(("record", source, record_id), CrosswalkEntry(
+                **{k: hit.get(k) for k in CrosswalkEntry.model_fields}).model_dump_json().encode())
+        return Response(answer, media_type="application/json")  # type: ignore[return-value]
 
     @app.get(f"{PREFIX}/workspaces/{{ws}}/entities", response_model=SearchResult, responses=ERRORS,
              tags=["results"])

@@ -12,6 +12,7 @@ from ..review.store import DecisionStore
 from ..state import StateStore, state_engine
 from ..workspace import Workspace, load_workspace
 from .jobs import JobRunner
+from .queue_cache import QueueState
 from .results import ResultsCache
 from .store import TokenStore, full_sync
 
@@ -26,6 +27,7 @@ class WorkspaceContext:
     jobs: JobRunner
     results: ResultsCache
     _review: tuple[object, ReviewData] | None = None
+    _queue: tuple[object, QueueState] | None = None
     _lock: threading.Lock = field(default_factory=threading.Lock)
 
     @classmethod
@@ -42,7 +44,7 @@ class WorkspaceContext:
         """Load the current outputs and review data now (a workspace without outputs yet is fine)."""
         try:
             self.results.get()
-            self.review_data()
+            self.queue_state()
         except Exception:  # noqa: BLE001 - a request will report the problem when it asks
             return
 
@@ -56,6 +58,17 @@ class WorkspaceContext:
             if self._review is None or self._review[0] != stamp:
                 self._review = (stamp, load_review_data(self.root))
             return self._review[1]
+
+    def queue_state(self) -> QueueState:
+        """The possible-links queue with each pair's state, built once per output set (``queue_cache``)."""
+        data = self.review_data()
+        cached = self._queue
+        if cached is not None and cached[0] is data:
+            return cached[1]
+        with self._lock:
+            if self._queue is None or self._queue[0] is not data:
+                self._queue = (data, QueueState(data, self.decisions))
+            return self._queue[1]
 
 
 def workspace_names(roots: list[Path]) -> list[str]:

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import threading
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -84,6 +84,7 @@ class OutputSet:
     clusters: dict[str, dict[str, Any]]
     entity_of: dict[tuple[str, str], dict[str, Any]]  # (source, record_id) -> crosswalk row
     merged_frame: pd.DataFrame
+    answers: dict[tuple[str, ...], bytes] = field(default_factory=dict)  # JSON answers made once per output set
 
     @classmethod
     def load(cls, folder: Path, stamp: tuple[str, int]) -> OutputSet:
@@ -161,6 +162,13 @@ class ResultsCache:
             return folder, (str(folder.resolve()), marker.stat().st_mtime_ns)
         except OSError:
             return folder, (str(folder), -1)
+
+    def fresh(self) -> OutputSet | None:
+        """The loaded set when it is known to be current without asking anything (cheap: for the event loop)."""
+        checked, current = self._checked, self._current
+        if checked is None or current is None or time.monotonic() - checked[0] >= self.RECHECK:
+            return None
+        return current if current.stamp == checked[2] else None
 
     def get(self) -> OutputSet:
         folder, stamp = self.stamp()

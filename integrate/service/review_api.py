@@ -120,16 +120,18 @@ def add_review_routes(app: FastAPI, contexts: dict[str, Any], auth: Any, ctx_of:
         ctx = ctx_of(ws)
         auth.check(request, ctx, "reader")
         data = ctx.review_data()
-        items = queue_items(data, ctx.decisions, queue, source=source or None, field=field or None)
-        decided = int((items["state"] == "decided").sum())
-        deferred = int((items["state"] == "deferred").sum())
         reasons = data.queue["reason"] if queue != AUDIT else None
         possible = int((reasons == "possible link").sum()) if reasons is not None else 0
-        page_rows = items.iloc[offset:offset + limit]
-        return QueueResponse(queue=queue, progress={"total": len(items), "decided": decided, "deferred": deferred,  # type: ignore[arg-type]
-                                                    "remaining": len(items) - decided},
-                             possible_links=possible, weakest_links=(len(reasons) - possible) if reasons is not None
-                             else 0, items=[_row(r) for r in page_rows.to_dict("records")])
+        if queue != AUDIT:  # kept in memory and followed decision by decision (queue_cache)
+            progress, shown = ctx.queue_state().page(source or None, field or None, offset, limit)
+        else:
+            items = queue_items(data, ctx.decisions, queue, source=source or None, field=field or None)
+            decided = int((items["state"] == "decided").sum())
+            progress = {"total": len(items), "decided": decided, "deferred": int((items["state"] == "deferred").sum()),
+                        "remaining": len(items) - decided}
+            shown = [_row(r) for r in items.iloc[offset:offset + limit].to_dict("records")]
+        return QueueResponse(queue=queue, progress=progress, possible_links=possible,  # type: ignore[arg-type]
+                             weakest_links=(len(reasons) - possible) if reasons is not None else 0, items=shown)
 
     def _next(ctx: Any, reviewer: str, queue: str, source: str | None, field: str | None,
               skip: tuple[str, str, str, str] | None, claim: bool) -> dict[str, Any]:
