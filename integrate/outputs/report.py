@@ -133,7 +133,8 @@ def _clusters_section(result: RunResult) -> str:
         f"<p>A cluster may not hold two records that must be kept apart: a <em>different</em> decision, two "
         f"records of a source declared one record per person, or (the chaining guard) two records compared "
         f"directly with a match probability below {DIFFERENT_BELOW:g}. Such a cluster is cut between them "
-        f"along its weakest links (minimum cut). Cuts: {counts[SPLIT_REASONS[0]]} for different decisions, "
+        f"into the parts that keep the most evidence together (the sum of the log-odds of the compared "
+        f"pairs kept in one part). Cuts: {counts[SPLIT_REASONS[0]]} for different decisions, "
         f"{counts[SPLIT_REASONS[1]]} for one record per person, {counts[CHAINING_GUARD]} by the chaining "
         f"guard, which touched {touched} clusters.</p>")
     keys = (result.records["_source"].astype(str) + ":" + result.records["_record_id"].astype(str)).to_numpy()
