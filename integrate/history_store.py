@@ -25,7 +25,16 @@ from .mapping.load import file_hash
 from .mapping.snapshot import declared_entry, snapshot_source
 from .mapping.spec import SourceMapping
 from .sources import read_source
-from .state import STATE_URL_ENV, StateError, run_file_table, run_table, shown_url, state_database, state_engine
+from .state import (
+    STATE_URL_ENV,
+    StateError,
+    create_tables,
+    run_file_table,
+    run_table,
+    shown_url,
+    state_database,
+    state_engine,
+)
 from .workspace import Workspace
 
 history_metadata = MetaData()
@@ -58,10 +67,7 @@ def _engine(root: Path, create: bool) -> Engine | None:
     if not create and not os.environ.get(STATE_URL_ENV, "").strip() and not state_database(root).exists():
         return None
     engine = state_engine(root)
-    try:
-        history_metadata.create_all(engine, tables=[source_profile_table, mapping_text_table])
-    except SQLAlchemyError as exc:
-        raise StateError(f"state database {shown_url(str(engine.url))} cannot be used: {exc}") from exc
+    create_tables(engine, history_metadata, [source_profile_table, mapping_text_table])
     return engine
 
 

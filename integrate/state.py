@@ -226,15 +226,26 @@ class NewRun:
     run_id: int | None = None  # the number reserved with ``next_run_id`` (under the run lock)
 
 
+def create_tables(engine: Engine, tables_of: Any, tables: list | None = None) -> None:
+    """Create missing tables. Two processes opening a new store at once can both find a table
+    missing and both create it; the loser's "already exists" means the table is there, so the
+    check is made again (a few times) instead of failing the run."""
+    for attempt in range(5):
+        try:
+            tables_of.create_all(engine, tables=tables)
+            return
+        except SQLAlchemyError as exc:
+            if "already exists" in str(exc) and attempt < 4:
+                continue
+            raise StateError(f"state database {shown_url(str(engine.url))} cannot be used: {exc}") from exc
+
+
 class StateStore:
     """Runs of one workspace (see the module docstring)."""
 
     def __init__(self, engine: Engine) -> None:
         self.engine = engine
-        try:
-            metadata.create_all(engine)
-        except SQLAlchemyError as exc:
-            raise StateError(f"state database {shown_url(str(engine.url))} cannot be used: {exc}") from exc
+        create_tables(engine, metadata)
 
     @classmethod
     def for_workspace(cls, workspace: str | Path) -> StateStore:
