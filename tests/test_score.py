@@ -6,6 +6,7 @@ import math
 
 import numpy as np
 import pandas as pd
+import pytest
 
 from integrate.score import MATCH, estimate
 
@@ -126,3 +127,45 @@ def test_a_full_name_weighs_by_both_parts_and_by_itself() -> None:
     # only the given name agrees in the last pair: its own adjustment stands alone
     assert np.allclose(out["given_name"], [0.0, 0.0, math.log2(sep / 0.625)])
     assert np.allclose(out["family_name"], 0.0)
+
+
+def test_relatives_name_profile_is_held_fixed_where_namesakes_dominate() -> None:
+    # Candidate pairs from name blocking on a large input are mostly strangers who share a family
+    # name. Were the relatives' joint name profile learned, EM could turn the class into a copy of
+    # those strangers (seen on 30,000 generated people: family-name agreement in the class fell
+    # to 0.006) and the households would fall to the match class. The profile is a stated prior:
+    # first names as random pairs', family names shared by RELATIVES_SHARE_FAMILY.
+    from integrate.compare import GRADE_NAMES, NAME_BUCKETS
+    from integrate.score import RELATED, RELATIVES_SHARE_FAMILY, _initial_classes
+
+    size = len(NAME_BUCKETS)
+    differs, agrees = NAME_BUCKETS.index("differs"), NAME_BUCKETS.index("agrees")
+    types = {"given_name+family_name": "name_pair", "birth_date": "date", "phone": "phone"}
+    levels = {f: len(GRADE_NAMES[t]) for f, t in types.items()}
+    rng = np.random.default_rng(3)
+    n = 100_000
+    kind = rng.choice(3, size=n, p=[0.05, 0.05, 0.90])  # match, household, namesake
+    names = np.where(kind == 0, agrees * size + agrees,
+                     np.where(rng.random(n) < 0.9, differs * size + agrees, differs * size + differs))
+    birth = np.where(kind == 0, levels["birth_date"] - 1, 0)
+    phone = np.where(kind == 0, 3, np.where(kind == 1, 3, 0))
+    grades = pd.DataFrame({"given_name+family_name": names, "birth_date": birth, "phone": phone}).astype(np.int8)
+    u_random = {f: np.full(k, 0.02 / (k - 1)) for f, k in levels.items()}
+    for f in u_random:
+        u_random[f][0] = 0.98
+    u_random["given_name+family_name"] = np.full(levels["given_name+family_name"], 0.05 / 23)
+    u_random["given_name+family_name"][differs * size + differs] = 0.95
+    start, _, free = _initial_classes(types, u_random)
+    model = estimate(grades, types, u_random)
+    profile = model._theta[RELATED]["given_name+family_name"]
+    assert "given_name+family_name" not in free[RELATED]
+    assert np.array_equal(profile, start[RELATED]["given_name+family_name"])
+    joint = np.append(profile, 0.0).reshape(size, size)
+    # (up to the "both missing" cell, which is no grade: a pair with both names blank is missing)
+    assert joint[:, agrees].sum() == pytest.approx(RELATIVES_SHARE_FAMILY, abs=1e-3)
+    # first names of relatives compare as random pairs' first names do
+    random_first = np.append(u_random["given_name+family_name"], 0.0).reshape(size, size).sum(axis=1)
+    assert np.allclose(joint.sum(axis=1), random_first / random_first.sum(), atol=1e-3)
+    # and the household pairs (another first name, shared phone) stay non-matches
+    household = grades[kind == 1].to_numpy(np.int64)[:1]
+    assert model.pattern_weight(household, list(types))[0] < 0
