@@ -53,6 +53,8 @@ class BlockingReport:
     # per rule whose blocks were too large: (rule, how many key values, five largest, records left
     # without any candidate pair among them)
     split_blocks: list[tuple[str, int, list[tuple[str, int]], int]] = field(default_factory=list)
+    # records identical to another record of their source, matched through it (identical.py)
+    identical_copies: int = 0
 
     @property
     def reduction_ratio(self) -> float:

@@ -82,12 +82,39 @@ def bcubed_scores(predicted: np.ndarray, truth: np.ndarray) -> Scores:
     return Scores(p, r, 2 * p * r / (p + r) if p + r else 0.0)
 
 
+def true_pairs_found(entity: np.ndarray, i: np.ndarray, j: np.ndarray, copy_of: np.ndarray | None = None,
+                     *, inside: bool = True) -> int:
+    """True pairs among candidate pairs (positions ``i``, ``j``), given each record's true entity
+    code (-1: unknown).
+
+    With ``copy_of`` (per record, the position of the record matched for it; see identical.py)
+    a candidate pair of two representatives stands for every pair of their copies, and a pair of
+    copies of one record was found without being compared (counted unless ``inside`` is false,
+    as in linkage, where pairs within one file are not wanted).
+    """
+    entity = np.asarray(entity, np.int64)
+    i, j = np.asarray(i, np.int64), np.asarray(j, np.int64)
+    if copy_of is None:
+        return int(((entity[i] == entity[j]) & (entity[i] >= 0)).sum())
+    known = entity >= 0
+    counts = (pd.DataFrame({"g": np.asarray(copy_of, np.int64)[known], "e": entity[known]})
+              .value_counts().rename("c").reset_index())
+    c = counts["c"].to_numpy(np.int64)
+    within = int((c * (c - 1) // 2).sum()) if inside else 0
+    pairs = pd.DataFrame({"a": i, "b": j})
+    left = pairs.merge(counts.rename(columns={"g": "a", "c": "ca"}), on="a")
+    both = left.merge(counts.rename(columns={"g": "b", "c": "cb"}), on=["b", "e"])
+    return within + int((both["ca"].to_numpy(np.int64) * both["cb"].to_numpy(np.int64)).sum())
+
+
 def evaluate(crosswalk: pd.DataFrame, truth: pd.DataFrame, candidates: pd.DataFrame | None = None,
-             records: pd.DataFrame | None = None, all_pairs: int | None = None) -> Evaluation:
+             records: pd.DataFrame | None = None, all_pairs: int | None = None,
+             copy_of: np.ndarray | None = None) -> Evaluation:
     """Compare a crosswalk (source, record_id, entity_id) with a true one.
 
     Records missing from the truth are ignored; ``candidates`` (pairs of positions i, j into
-    ``records``) adds pairs completeness and the reduction ratio.
+    ``records``) adds pairs completeness and the reduction ratio; ``copy_of`` (a match result's)
+    counts the pairs its identical records stand for (``true_pairs_found``).
     """
     key = ["source", "record_id"]
     pred = crosswalk[key + ["entity_id"]].astype({"source": str, "record_id": str})
@@ -101,10 +128,8 @@ def evaluate(crosswalk: pd.DataFrame, truth: pd.DataFrame, candidates: pd.DataFr
     if candidates is not None and records is not None:
         lookup = true.set_index(key)["entity_id"]
         rec_keys = pd.MultiIndex.from_arrays([records["_source"].astype(str), records["_record_id"].astype(str)])
-        rec_entity = lookup.reindex(rec_keys).to_numpy()
-        ei = rec_entity[candidates["i"].to_numpy()]
-        ej = rec_entity[candidates["j"].to_numpy()]
-        found = int(((ei == ej) & pd.notna(ei)).sum())
+        rec_entity = pd.factorize(lookup.reindex(rec_keys).to_numpy())[0]  # -1 where unknown
+        found = true_pairs_found(rec_entity, candidates["i"].to_numpy(), candidates["j"].to_numpy(), copy_of)
         completeness = found / true_pairs if true_pairs else 1.0
         n = len(records)
         total = all_pairs if all_pairs is not None else n * (n - 1) // 2

