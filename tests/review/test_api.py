@@ -99,7 +99,11 @@ def test_four_reviewers_on_overlapping_pairs_lose_and_duplicate_nothing(reviewed
         acknowledged: dict[str, list[dict]] = {n: [] for n in names}
         conflicts: dict[str, list[dict]] = {n: [] for n in names}
         other: list[tuple[str, int, str]] = []
-        deadline = time.monotonic() + 8  # bounded: a few seconds of contention
+        # bounded: 8 s of contention by default; INTEGRATE_REVIEWERS_SECONDS=30 for the longer
+        # measurement in docs/RELIABILITY.md
+        seconds = float(os.environ.get("INTEGRATE_REVIEWERS_SECONDS", "8"))
+        began = time.monotonic()
+        deadline = began + seconds
         barrier = threading.Barrier(len(names))
 
         def reviewer(index: int) -> None:
@@ -107,7 +111,7 @@ def test_four_reviewers_on_overlapping_pairs_lose_and_duplicate_nothing(reviewed
             with _client(url, tokens[name]) as client:
                 barrier.wait()
                 step = 0
-                while time.monotonic() < deadline and step < 400:
+                while time.monotonic() < deadline and step < 200 * seconds:
                     key = keys[(step * (index + 1) + index) % len(keys)]  # each walks the pairs in its own order
                     decision = ("same", "different", "defer")[(step + index) % 3]
                     response = client.post("/decisions", json={**key, "decision": decision})
@@ -142,6 +146,9 @@ def test_four_reviewers_on_overlapping_pairs_lose_and_duplicate_nothing(reviewed
     for name, rows in conflicts.items():
         assert all(r["reviewer"] != name and r["decision"] in ("same", "different") for r in rows)
     assert sum(len(r) for r in conflicts.values()) > 0 and sum(len(r) for r in acknowledged.values()) > 0
+    print(f"4 reviewers, {time.monotonic() - began:.1f} s, {len(keys)} shared pairs: "
+          f"{sum(len(r) for r in acknowledged.values())} decisions acknowledged, "
+          f"{sum(len(r) for r in conflicts.values())} answered 409, {len(stored)} stored, 0 lost, 0 duplicated")
 
 
 def test_a_decision_keeps_the_scores_shown(reviewed_ws: Path) -> None:
