@@ -200,7 +200,9 @@ def range_findings(records: pd.DataFrame, canonical: CanonicalSchema, feeds: lis
         unit = spec.unit or canonical.base_currency
         shown = ", ".join(f"{v:.4g}" for v in bad[:5])
         hint = None
-        repairs = [(float(np.mean((bad / e.factor >= low) & (bad / e.factor <= high))), e) for e in feed.explanations]
+        with np.errstate(over="ignore", divide="ignore", invalid="ignore"):  # huge values: inf, out of range
+            repairs = [(float(np.mean((bad / e.factor >= low) & (bad / e.factor <= high))), e)
+                       for e in feed.explanations]
         share, best = max(repairs, key=lambda r: r[0], default=(0.0, None))
         if best is not None and share >= 0.5:
             hint = (f"{share:.0%} of them fall in range {undo_text(best.factor)}: "

@@ -6,6 +6,8 @@ import csv
 import io
 import mmap
 import re
+import warnings
+from collections.abc import Iterable, Iterator
 from pathlib import Path
 
 import numpy as np
@@ -54,17 +56,32 @@ def _parse(source: Path | io.StringIO, encoding: str | None, path: Path, spec: R
     # A one-character delimiter uses the fast C parser; a longer one is matched literally.
     one_char = len(spec.delimiter) == 1
     try:
-        return pd.read_csv(
-            source,
-            sep=spec.delimiter if one_char else re.escape(spec.delimiter),
-            engine="c" if one_char else "python",
-            quotechar=spec.quotechar,
-            encoding=encoding,
-            dtype=str,
-            keep_default_na=False,
-            skip_blank_lines=False,  # keeps one row per physical line, so rows map to lines
-            index_col=False,
-        )
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", pd.errors.ParserWarning)
+            frame = pd.read_csv(
+                source,
+                sep=spec.delimiter if one_char else re.escape(spec.delimiter),
+                engine="c" if one_char else "python",
+                quotechar=spec.quotechar,
+                encoding=encoding,
+                dtype=str,
+                keep_default_na=False,
+                skip_blank_lines=False,  # keeps one row per physical line, so rows map to lines
+                index_col=False,
+            )
+        if any(issubclass(w.category, pd.errors.ParserWarning) for w in caught):
+            # a row with more fields than the header: pandas drops the extra ones with only a warning
+            line, fields, width = _first_long_row(source, encoding or "utf-8", spec)
+            raise SourceError(
+                f"source '{src.name}' has a row with {fields} fields where the header has {width}; "
+                "the extra values would be lost",
+                file=src.shown,
+                line=line,
+                reason="bad_csv",
+                hint="check `delimiter` and `quotechar`, and that every row has as many fields as the header "
+                "(a value holding the delimiter must be quoted)",
+            )
+        return frame
     except UnicodeDecodeError as exc:
         read_text(path, spec.encoding, src)  # raises with the line of the first bad byte
         raise SourceError(
@@ -96,6 +113,37 @@ def _parse(source: Path | io.StringIO, encoding: str | None, path: Path, spec: R
             hint="check `delimiter` and `quotechar` (an unclosed quote runs to the end of the file), and that "
             "every row has as many fields as the header",
         ) from exc
+
+
+def _first_long_row(source: Path | io.StringIO, encoding: str, spec: ReadSpec) -> tuple[int | None, int, int]:
+    """(line, fields, header fields) of the first record with more fields than the header.
+
+    Only called when the parser has warned, so reading the file a second time costs nothing in
+    the usual case. A delimiter longer than one character is split literally, without quotes."""
+    if isinstance(source, io.StringIO):
+        source.seek(0)
+        handle: io.TextIOBase = source
+    else:
+        handle = source.open(encoding=encoding, newline="", errors="replace")
+    with handle:
+        if len(spec.delimiter) == 1:
+            reader = csv.reader(handle, delimiter=spec.delimiter, quotechar=spec.quotechar)
+
+            def starts() -> Iterator[tuple[int, list[str]]]:
+                end = 0  # a record starts on the line after the previous one ended
+                for row in reader:
+                    yield end + 1, row
+                    end = reader.line_num
+            rows: Iterable[tuple[int, list[str]]] = starts()
+        else:
+            rows = ((n, line.rstrip("\r\n").split(spec.delimiter)) for n, line in enumerate(handle, start=1))
+        width = None
+        for line, row in rows:
+            if width is None:
+                width = len(row)
+            elif len(row) > width:
+                return line, len(row), width
+    return None, 0, width or 0
 
 
 _WIDE_ENCODINGS = re.compile(r"utf[-_]?(16|32)", re.IGNORECASE)

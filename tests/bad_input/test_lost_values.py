@@ -143,3 +143,20 @@ def test_bad_emails_are_failures_in_a_run(tmp_path: Path) -> None:
     # the written failures table quotes the formula-like value (outputs.cells: OWASP CSV-injection guidance)
     assert failures[["row", "value", "reason"]].values.tolist() == [
         ["4", "'=1+2", "bad_email"], ["5", "<script>alert(1)</script>", "bad_email"]]
+
+
+def test_a_row_with_more_fields_than_the_header_is_refused_with_its_line(tmp_path: Path) -> None:
+    """Found by ``benchmarks/fuzz.py --cases 2000 --seed 23``: when the first record had one field too
+    many (a stray delimiter), pandas dropped the extra value with only a ParserWarning."""
+    import pytest
+
+    from integrate.errors import SourceError
+
+    (tmp_path / "p.csv").write_text('id,name\n1,"Ana\nMarsh",EXTRA\n2,Bram\n', encoding="utf-8")
+    with pytest.raises(SourceError) as caught:
+        read_source(ReadSpec(format="csv", path="p.csv"), tmp_path, name="crm")
+    assert caught.value.reason == "bad_csv" and caught.value.line == 2  # the record starts on line 2
+    assert "3 fields where the header has 2" in str(caught.value)
+    (tmp_path / "q.csv").write_text("id;name\n1;Ana;x\n", encoding="utf-8")
+    with pytest.raises(SourceError, match="3 fields"):
+        read_source(ReadSpec(format="csv", path="q.csv", delimiter=";"), tmp_path, name="crm")
