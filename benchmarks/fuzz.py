@@ -10,7 +10,8 @@ paths to folders or outside the workspace) from small valid seeds, and reads it 
 
 - a clean error: an ``InputError`` (the CLI's exit 2) with a message and a reason; or
 - success, with every unreadable cell listed as a failure;
-- never another exception (a crash) and never more than ``--case-seconds`` (a hang).
+- never another exception (a crash), never more than ``--case-seconds`` (a hang), and no
+  library warning while reading (pandas warns, for one, when it drops fields it cannot place).
 
 Prints per reader the case counts and outcomes; exits 1 if any case crashed or hung, saving
 each such input under ``--save`` (default ``tests/data/fuzz/``) for a regression test.
@@ -29,6 +30,7 @@ import sys
 import tempfile
 import time
 import traceback
+import warnings
 import zipfile
 from collections import Counter, defaultdict
 from collections.abc import Callable
@@ -294,14 +296,18 @@ def mapping_case(rng: random.Random, root: Path) -> tuple[str, Path]:
 
 
 def run_case(action: Callable[[], object], seconds: float) -> tuple[str, str]:
-    """Outcome of one case: clean_error, recorded_failure, success, crash or hang (and a detail)."""
+    """Outcome of one case: clean_error, recorded_failure, success, warned (a library warned while
+    reading: perhaps a value lost without a word), crash or hang (and a detail)."""
     def alarm(_signum: int, _frame: object) -> None:
         raise Hang
 
     previous = signal.signal(signal.SIGALRM, alarm)
     signal.setitimer(signal.ITIMER_REAL, seconds)
+    caught: list[warnings.WarningMessage] = []
     try:
-        result = action()
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            result = action()
     except Hang:
         return "hang", ""
     except (InputError, InputErrors) as exc:
@@ -315,6 +321,8 @@ def run_case(action: Callable[[], object], seconds: float) -> tuple[str, str]:
     finally:
         signal.setitimer(signal.ITIMER_REAL, 0)
         signal.signal(signal.SIGALRM, previous)
+    if caught:  # a library warning while reading may be a value lost without a word
+        return "warned", "; ".join(sorted({f"{w.category.__name__}: {w.message}" for w in caught}))
     if isinstance(result, pd.DataFrame) and read_failures(result):
         return "recorded_failure", ""
     return "success", ""
@@ -362,12 +370,12 @@ def main(argv: list[str] | None = None) -> int:
             shutil.rmtree(folder, ignore_errors=True)
         counts[target][outcome] += 1
         kinds[target][kind] += 1
-        if outcome in ("crash", "hang"):
+        if outcome in ("crash", "hang", "warned"):
             bad.append((target, kind, detail, data))
     elapsed = time.perf_counter() - started
     print(f"fuzz: {args.cases} cases, seed {args.seed}, {elapsed:.1f} s "
           f"({args.cases / elapsed:.1f} cases/s), case limit {args.case_seconds:g} s")
-    outcomes = ["clean_error", "recorded_failure", "success", "crash", "hang"]
+    outcomes = ["clean_error", "recorded_failure", "success", "warned", "crash", "hang"]
     print(f"{'reader':<9}{'cases':>7}" + "".join(f"{o:>18}" for o in outcomes))
     for target in targets:
         row = counts[target]
@@ -379,7 +387,7 @@ def main(argv: list[str] | None = None) -> int:
         save.mkdir(parents=True, exist_ok=True)
         for n, (target, kind, _, data) in enumerate(bad):
             (save / f"crash-{args.seed}-{n}-{target}-{kind}.bin").write_bytes(data[:200_000])
-        print(f"\n{len(bad)} crashes or hangs; inputs saved in {save}")
+        print(f"\n{len(bad)} crashes, hangs or warnings; inputs saved in {save}")
         return 1
     return 0
 
