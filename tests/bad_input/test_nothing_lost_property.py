@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import csv
 import io
-from pathlib import Path
 
 import pandas as pd
 import pytest
