@@ -81,19 +81,43 @@ class ScoreModel:
     def prior_weight(self) -> float:
         return float(np.log2(self.prior / (1 - self.prior)))
 
-    def pattern_weight(self, grades: np.ndarray, names: list[str]) -> np.ndarray:
-        """log2 P(pattern | match) / P(pattern | non-match) for rows of grades (columns = names)."""
+    def class_log_likelihoods(self, grades: np.ndarray, names: list[str]) -> dict[str, np.ndarray]:
+        """ln P(pattern | class) per class for rows of grades (columns = names)."""
         log_f = {k: np.zeros(len(grades)) for k in self._theta}
         for c, f in enumerate(names):
             g = grades[:, c]
             present = g != MISSING
             for k, theta in self._theta.items():
                 log_f[k][present] += np.log(theta[f][g[present]])
+        return log_f
+
+    def pattern_weight(self, grades: np.ndarray, names: list[str], rarity: np.ndarray | None = None,
+                       shared_rarity: np.ndarray | None = None) -> np.ndarray:
+        """log2 P(pattern | match) / P(pattern | non-match) for rows of grades (columns = names).
+
+        ``rarity`` (bits per row, the value-frequency adjustments) makes an agreement on a rare
+        value less likely among non-matches: u(v) = u * 2^-rarity in each non-match class, except
+        that relatives share their family name however rare it is, so their class does not get
+        ``shared_rarity`` (the family name's part). Without it the bonus for a rare family name
+        counted against relatives as much as against strangers, and households sharing one
+        passed for matches.
+        """
+        return self.weigh_classes(self.class_log_likelihoods(grades, names), rarity, shared_rarity)
+
+    def weigh_classes(self, log_f: dict[str, np.ndarray], rarity: np.ndarray | None = None,
+                      shared_rarity: np.ndarray | None = None) -> np.ndarray:
+        """The weight in bits from per-class log-likelihoods (see ``pattern_weight``)."""
         non = [k for k in self._theta if k != MATCH]
         shares = np.array([self.class_shares[k] for k in non])
         shares = shares / shares.sum()
-        stacked = np.vstack([log_f[k] for k in non]) + np.log(shares)[:, None]
-        log_non = np.logaddexp.reduce(stacked, axis=0)
+        rows = []
+        for k, share in zip(non, shares):
+            row = log_f[k] + np.log(share)
+            if rarity is not None:
+                spared = shared_rarity if (k == RELATED and shared_rarity is not None) else 0.0
+                row = row - (rarity - spared) * np.log(2)
+            rows.append(row)
+        log_non = np.logaddexp.reduce(np.vstack(rows), axis=0)
         return (log_f[MATCH] - log_non) / np.log(2)
 
 
@@ -452,6 +476,15 @@ def frequency_adjustments(prepared: pd.DataFrame, grades: pd.DataFrame, field_ty
     return out
 
 
+def family_rarity(tf: dict[str, np.ndarray], field_types: dict[str, str]) -> np.ndarray | None:
+    """The part of the value-frequency adjustments that relatives share: the second person name's
+    (the family name; ``model_grades`` pairs the first two person-name fields in that order)."""
+    names = [f for f, t in field_types.items() if t == "person_name"][:2]
+    if len(names) < 2 or names[1] not in tf:
+        return None
+    return tf[names[1]]
+
+
 def full_name_rarity(first: pd.Series, second: pd.Series) -> np.ndarray:
     """Per record, log2(Σp² / p_v) for its full name v, both parts together (NaN where either is
     missing), capped at ±6 bits like the other value-frequency adjustments."""
@@ -511,23 +544,25 @@ def weigh(prepared: pd.DataFrame, pairs: pd.DataFrame, grades: pd.DataFrame, fie
     joint, _ = model_grades(grades, field_types)
     out = pairs.copy()
     names = list(joint.columns)
+    i = pairs["i"].to_numpy()
+    tf = frequency_adjustments(prepared, grades, field_types, i, pairs["j"].to_numpy())
+    rarity = np.zeros(len(pairs))
+    for column, adjust in tf.items():
+        rarity += adjust
+        out["tf_" + column] = adjust.astype(np.float32)
     if len(joint):
         matrix = joint[names].to_numpy(np.int64)
         codes = pattern_codes(matrix)
         representative = np.empty(codes.max() + 1, np.int64)
         representative[codes] = np.arange(len(codes))  # any row of a pattern stands for it
-        total = model.pattern_weight(matrix[representative], names)[codes]
+        log_f = {k: v[codes] for k, v in model.class_log_likelihoods(matrix[representative], names).items()}
+        total = model.weigh_classes(log_f, rarity, family_rarity(tf, field_types))
     else:
         total = np.zeros(0)
-    i = pairs["i"].to_numpy()
     for f, fm in model.fields.items():
         g = joint[f].to_numpy(np.int64)
         table = np.asarray(fm.weights)
         out["w_" + f] = np.where(g == MISSING, 0.0, table[np.clip(g, 0, None)]).astype(np.float32)
-    tf = frequency_adjustments(prepared, grades, field_types, i, pairs["j"].to_numpy())
-    for column, adjust in tf.items():
-        total += adjust
-        out["tf_" + column] = adjust.astype(np.float32)
     for f in field_types:
         out["g_" + f] = grades[f].to_numpy()
     out["weight"] = total

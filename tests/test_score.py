@@ -169,3 +169,27 @@ def test_relatives_name_profile_is_held_fixed_where_namesakes_dominate() -> None
     # and the household pairs (another first name, shared phone) stay non-matches
     household = grades[kind == 1].to_numpy(np.int64)[:1]
     assert model.pattern_weight(household, list(types))[0] < 0
+
+
+def test_a_rare_family_name_counts_against_strangers_not_against_relatives() -> None:
+    # u(v) = u * 2^-rarity for an agreement on a rare value (value-frequency weighting), applied
+    # per non-match class: relatives share their family name however rare it is, so their class
+    # keeps its likelihood. Expected values computed from the mixture's definition:
+    # w = log2(f_M / (s_R f_R + s_U f_U 2^-r)), shares normalised over the non-match classes.
+    from integrate.score import RELATED, UNRELATED, FieldModel, ScoreModel
+
+    theta = {MATCH: {"x": np.array([0.1, 0.9])}, RELATED: {"x": np.array([0.2, 0.8])},
+             UNRELATED: {"x": np.array([0.99, 0.01])}}
+    shares = {MATCH: 0.01, RELATED: 0.02, UNRELATED: 0.97}
+    model = ScoreModel({"x": FieldModel("x", "category", [0.1, 0.9], [0.9, 0.1], [0.99, 0.01])}, 0.01, 1, True,
+                       shares, _theta=theta)
+    grades = np.array([[1]])
+    r = np.array([4.0])
+    s_r, s_u = 0.02 / 0.99, 0.97 / 0.99
+    plain = model.pattern_weight(grades, ["x"])
+    assert plain[0] == pytest.approx(math.log2(0.9 / (s_r * 0.8 + s_u * 0.01)))
+    strangers_only = model.pattern_weight(grades, ["x"], r, r)
+    assert strangers_only[0] == pytest.approx(math.log2(0.9 / (s_r * 0.8 + s_u * 0.01 * 2 ** -4)))
+    every_class = model.pattern_weight(grades, ["x"], r)
+    assert every_class[0] == pytest.approx(math.log2(0.9 / ((s_r * 0.8 + s_u * 0.01) * 2 ** -4)))
+    assert plain[0] < strangers_only[0] < every_class[0]

@@ -97,10 +97,12 @@ def compare_models(scored: pd.DataFrame, estimator: DecisionEstimator, threshold
     grades = pd.DataFrame({f: scored["g_" + f].to_numpy() for f in field_types})
     joint, _ = model_grades(grades, field_types)
     G = joint[names].to_numpy(np.int64)
-    bonus = scored[[c for c in scored.columns if c.startswith("tf_")]].sum(axis=1).to_numpy(float)
+    tf = {c[3:]: scored[c].to_numpy(float) for c in scored.columns if c.startswith("tf_")}
+    bonus = np.sum(list(tf.values()), axis=0) if tf else np.zeros(len(scored))
+    shared = fs.family_rarity(tf, field_types)
     frames = []
     for label, model in (("without decisions", estimator.base), ("with decisions", estimator.learned)):
-        weight = model.pattern_weight(G, names) + bonus
+        weight = model.pattern_weight(G, names, bonus, shared)
         probability = 1.0 / (1.0 + np.exp2(-(weight + model.prior_weight)))
         frames.append(threshold_estimates(probability, thresholds).assign(model=label))
     return pd.concat(frames, ignore_index=True)
