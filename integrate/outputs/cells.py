@@ -17,6 +17,7 @@ from __future__ import annotations
 import os
 import re
 
+import numpy as np
 import pandas as pd
 
 SAFE_CELLS_ENV = "INTEGRATE_SAFE_CELLS"
@@ -45,15 +46,31 @@ def neutralise_frame(frame: pd.DataFrame) -> pd.DataFrame:
     out: pd.DataFrame | None = None
     for column in frame.columns:
         series = frame[column]
-        if not (series.dtype == object or isinstance(series.dtype, pd.StringDtype)):
+        if not is_text(series):
             continue  # numbers, dates and booleans are written as values, never run
-        text = series.astype("string")
-        risky = text.str.startswith(TRIGGERS).fillna(False) & ~text.str.fullmatch(_PLAIN_NUMBER.pattern).fillna(False)
-        if not bool(risky.any()):
+        codes, distinct = pd.factorize(series)  # each distinct value is looked at once
+        quote = np.array([needs_quote(v) for v in distinct], dtype=bool)
+        if not quote.any():
             continue
+        risky = np.zeros(len(series), dtype=bool)
+        risky[codes >= 0] = quote[codes[codes >= 0]]
         if out is None:
-            out = frame.copy()
+            out = frame.copy(deep=False)
         fixed = series.astype(object).copy()
-        fixed[risky.to_numpy()] = "'" + text[risky.to_numpy()].astype(object)
+        fixed[risky] = "'" + fixed[risky].astype(str)
         out[column] = fixed
     return frame if out is None else out
+
+
+def is_text(series: pd.Series) -> bool:
+    return series.dtype == object or isinstance(series.dtype, pd.StringDtype)
+
+
+def any_text_holds(frame: pd.DataFrame, needle: str) -> bool:
+    """Whether any text cell of ``frame`` holds the character ``needle`` (each distinct value looked at once)."""
+    for column in frame.columns:
+        if is_text(frame[column]):
+            distinct = [v for v in pd.unique(frame[column].dropna()) if isinstance(v, str)]
+            if needle in "\x00".join(distinct):  # one search over the joined text (a NUL never matches)
+                return True
+    return False

@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 
 from ..killpoints import reached
-from .cells import neutralise_frame
+from .cells import any_text_holds, neutralise_frame
 
 
 def fsync_file(path: Path) -> None:
@@ -67,16 +67,11 @@ def write_text_atomic(path: Path, text: str) -> None:
 
 
 def _parquet_ready(frame: pd.DataFrame) -> pd.DataFrame:
-    out = frame.copy()
+    out = frame.copy(deep=False)  # columns are replaced, never changed in place
     for column in out.columns:
         if out[column].dtype == object:
             out[column] = out[column].astype("string")
     return out
-
-
-def _has_carriage_return(frame: pd.DataFrame) -> bool:
-    text = [c for c in frame.columns if frame[c].dtype == object or isinstance(frame[c].dtype, pd.StringDtype)]
-    return any(bool(frame[c].astype("string").str.contains("\r", regex=False).fillna(False).any()) for c in text)
 
 
 def with_fixed_decimals(frame: pd.DataFrame) -> pd.DataFrame:
@@ -104,7 +99,7 @@ def write_csv(frame: pd.DataFrame, path: Path) -> None:
     end in ``\n``, so a reader would cut the row there; such a table gets every field quoted.
     """
     safe = neutralise_frame(with_fixed_decimals(frame))
-    if _has_carriage_return(safe):
+    if any_text_holds(safe, "\r"):
         safe.to_csv(path, index=False, quoting=csv.QUOTE_ALL)
     else:
         safe.to_csv(path, index=False)
