@@ -34,6 +34,7 @@ import numpy as np
 import pandas as pd
 
 from .columns import RECORD_ID, SOURCE
+from .grouped import join_by_group
 
 KEY_SEPARATOR = "\x1f"
 # related_ids: for a new entity, the previous entities it shares records with; for a split one, its parts
@@ -117,7 +118,7 @@ def assign_stable_ids(current: pd.DataFrame, previous: pd.DataFrame | None, issu
     taken = set(issued or ())
     cur = pd.DataFrame({"key": _keys(current["source"], current["record_id"]).to_numpy(),
                         "cluster": current["cluster"].astype(str).to_numpy()})
-    first_key = cur.groupby("cluster")["key"].min()
+    first_key = _smallest_key(cur)
     if previous is None or previous.empty:
         prev = pd.DataFrame({"key": pd.Series(dtype=object), "entity_id": pd.Series(dtype=object)})
     else:
@@ -148,6 +149,19 @@ def assign_stable_ids(current: pd.DataFrame, previous: pd.DataFrame | None, issu
     return pd.Series(ids.to_numpy(), index=current.index, name="entity_id"), summary, changes
 
 
+def _smallest_key(cur: pd.DataFrame) -> pd.Series:
+    """Each cluster's smallest record key (``groupby(...).min()`` on text, through key ranks)."""
+    clusters, names = pd.factorize(cur["cluster"], sort=True)
+    keys = cur["key"].to_numpy(dtype=object)
+    rank = np.empty(len(keys), np.int64)
+    rank[np.argsort(keys, kind="stable")] = np.arange(len(keys))
+    best = np.full(len(names), len(keys), np.int64)
+    np.minimum.at(best, clusters, rank)
+    by_rank = np.empty(len(keys), np.int64)
+    by_rank[rank] = np.arange(len(keys))
+    return pd.Series(keys[by_rank[best]], index=pd.Index(names, name="cluster"), name="key")
+
+
 def _changed_records(current: pd.DataFrame, previous: pd.DataFrame | None) -> int:
     """Records in both runs whose values differ (when both sides carry ``record_hash``)."""
     if previous is None or "record_hash" not in current or "record_hash" not in previous:
@@ -167,12 +181,12 @@ def _changes(cur: pd.DataFrame, prev: pd.DataFrame, overlap: pd.DataFrame, previ
     size_old = prev.groupby("entity_id").size()
     links = overlap.assign(new_id=overlap["cluster"].map(cur.drop_duplicates("cluster").set_index("cluster")[
         "entity_id"]))
-    parts = links.groupby("entity_id")["new_id"].agg(lambda s: " ".join(sorted(s)))
+    parts = join_by_group(links["new_id"], links["entity_id"], " ", sort_labels=True)
     n_parts = links.groupby("entity_id").size()
     split_old = n_parts[n_parts > 1].index
-    per_new = links.groupby("new_id").agg(before=("entity_id", lambda s: " ".join(sorted(s))),
-                                          n_before=("entity_id", "size"), shared=("n", "sum"),
+    per_new = links.groupby("new_id").agg(n_before=("entity_id", "size"), shared=("n", "sum"),
                                           first_before=("entity_id", "min"))
+    per_new["before"] = join_by_group(links["entity_id"], links["new_id"], " ", sort_labels=True)
     per_new["old_size"] = links.assign(old=links["entity_id"].map(size_old)).groupby("new_id")["old"].sum()
     table = pd.DataFrame({"records": size_new}).join(per_new)
     table["n_before"] = table["n_before"].fillna(0).astype(int)

@@ -36,6 +36,7 @@ import pandas as pd
 
 from .columns import RECORD_DATE, RECORD_ID, SOURCE, TRUST
 from .errors import MappingError
+from .grouped import join_by_group
 from .mapping.money import minor_units
 from .mapping.spec import CanonicalField, CanonicalSchema
 from .merged_values import (
@@ -273,27 +274,13 @@ def _shown(values: pd.Series, spec: CanonicalField, digits: int) -> pd.Series:
     return pd.Series(np.where(np.isnan(number), "", text), index=values.index, dtype=object)
 
 
-def _join_by_group(labels: pd.Series, groups: pd.Series) -> pd.Series:
-    """``labels.groupby(groups).agg("; ".join)`` without a Python call per group: the labels in
-    group order, each with its separator, concatenated per run by ``np.add.reduceat``."""
-    if len(labels) == 0:
-        return labels.groupby(groups).agg("; ".join)
-    codes, keys = pd.factorize(groups, sort=True)
-    order = np.argsort(codes, kind="stable")
-    runs = codes[order]
-    starts = np.flatnonzero(np.r_[True, runs[1:] != runs[:-1]])
-    joined = np.add.reduceat(labels.to_numpy(dtype=object)[order] + "; ", starts)
-    return pd.Series(pd.Series(joined, dtype=object).str[:-2].to_numpy(), index=pd.Index(keys[runs[starts]],
-                                                                                     name=groups.name))
-
-
 def _provenance(long: pd.DataFrame, usable: pd.DataFrame, counted: pd.DataFrame, chosen: pd.DataFrame,
                 name: str, spec: CanonicalField, digits: int, entities: pd.Index) -> pd.DataFrame:
     stats = long.groupby("entity_id").agg(candidates=("_norm", "size"), distinct=("_norm", "nunique"),
                                           excluded=("_excluded", "sum"))
     label = _shown(long["value"], spec, digits) + " [" + long["_source"] + ":" + long["_rid"] + "]"
     label = label.where(~long["_excluded"], label + " (out of range)")
-    alternatives = _join_by_group(label, long["entity_id"])
+    alternatives = join_by_group(label, long["entity_id"])
     out = chosen.rename(columns={"_source": "source", "_rid": "record_id"}).set_index("entity_id")
     # every entity has a row: one without a usable value (none, or only out-of-range ones) shows it empty
     out = out.join(stats, how="outer").join(alternatives.rename("alternatives"), how="left").reindex(entities)
