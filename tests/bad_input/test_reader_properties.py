@@ -35,7 +35,10 @@ from integrate.sources import read_source
 
 from .tiny import CANONICAL, SOURCE_MAPPING
 
-SETTINGS = settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+# derandomize: the same examples on every machine, so CI does not turn red by chance; a local
+# search for new cases: pytest --hypothesis-seed=random (hypothesis then keeps what it finds)
+SETTINGS = settings(max_examples=40, deadline=None, derandomize=True,
+                    suppress_health_check=[HealthCheck.function_scoped_fixture])
 NAMES = st.lists(st.text("abcdefghijklmnopqrstuvwxyz_", min_size=1, max_size=8), min_size=1, max_size=5,
                  unique=True)
 # any text but lone surrogates (no file format can hold them)
