@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import csv
 import io
+import os
 
 import pandas as pd
 import pytest
@@ -28,8 +29,8 @@ ANY = st.text(st.characters(blacklist_categories=("Cs",)), max_size=14)
 EDITS = st.lists(st.tuples(st.integers(0, len(GOOD) - 1), st.integers(1, len(HEADER) - 1), ANY), max_size=10)
 
 
-@settings(max_examples=15, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.function_scoped_fixture,
-                                                                  HealthCheck.too_slow])
+@settings(max_examples=15, deadline=None, derandomize=bool(os.environ.get("CI")),  # as in test_reader_properties
+          suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
 @example(edits=[(0, 1, '\n'), (1, 3, '0')])  # a line end inside a value: rows are lines
 @given(edits=EDITS)
 def test_every_value_is_in_its_record_or_in_failures(edits: list[tuple[int, int, str]],
