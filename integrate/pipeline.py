@@ -158,6 +158,12 @@ def crosswalk_frame(records: pd.DataFrame, match: MatchResult) -> pd.DataFrame:
     }).sort_values(["entity_id", "source", "record_id"], kind="mergesort").reset_index(drop=True)
 
 
+def _labels(codes: np.ndarray, names: list[str]) -> pd.Categorical:
+    """A categorical of ``names[code]``; equal names (if any) become one category."""
+    categories, position = np.unique(np.asarray(names, dtype=object), return_inverse=True)
+    return pd.Categorical.from_codes(position.reshape(-1)[codes], categories=list(categories))
+
+
 def pairs_frame(records: pd.DataFrame, match: MatchResult, types: dict[str, str]) -> pd.DataFrame:
     """Candidate pairs with record keys, readable grades, weights, probability and decision."""
     p = match.pairs
@@ -165,17 +171,17 @@ def pairs_frame(records: pd.DataFrame, match: MatchResult, types: dict[str, str]
     names = match.blocking.rules
     masks = p["rules"].to_numpy()
     distinct, inverse = np.unique(masks, return_inverse=True)  # names built once per distinct mask
-    rule_names = pd.Series(np.array([",".join(n for b, n in enumerate(names) if (int(m) >> b) & 1)
-                                     for m in distinct.tolist()], dtype=object)[inverse.reshape(-1)])
+    rule_names = [",".join(n for b, n in enumerate(names) if (int(m) >> b) & 1) for m in distinct.tolist()]
+    # text columns of a few distinct values are categorical: millions of pairs hold a handful of
+    # rule sets and grade names, and Parquet stores them as a dictionary without converting each
     out = pd.DataFrame({
         "source_a": records[SOURCE].to_numpy()[i], "record_id_a": records[RECORD_ID].to_numpy()[i],
         "source_b": records[SOURCE].to_numpy()[j], "record_id_b": records[RECORD_ID].to_numpy()[j],
-        "blocking_rules": rule_names.to_numpy(),
+        "blocking_rules": _labels(inverse.reshape(-1), rule_names),
     })
     for f, ftype in types.items():
-        codes = p["g_" + f].to_numpy()
-        labels = {int(c): grade_name(ftype, int(c)) for c in pd.unique(codes)}
-        out["grade_" + f] = pd.Series(codes).map(labels).to_numpy()
+        codes, levels = pd.factorize(p["g_" + f].to_numpy())
+        out["grade_" + f] = _labels(codes, [grade_name(ftype, int(c)) for c in levels])
     for column in p.columns:
         if column.startswith("w_"):
             out["weight_" + column[2:]] = p[column].round(3).to_numpy()
