@@ -34,6 +34,7 @@ import html
 from collections.abc import Sequence
 from typing import TYPE_CHECKING
 
+import numpy as np
 import pandas as pd
 
 if TYPE_CHECKING:
@@ -48,7 +49,9 @@ def present(frame: pd.DataFrame) -> pd.DataFrame:
     out = frame.notna()
     for column in frame.columns:
         if frame[column].dtype == object or isinstance(frame[column].dtype, pd.StringDtype):
-            out[column] &= frame[column].astype("string").str.strip().fillna("").ne("").to_numpy()
+            codes, distinct = pd.factorize(frame[column])  # each distinct value is looked at once
+            filled = np.array([bool(str(v).strip()) for v in distinct] + [False], dtype=bool)
+            out[column] &= filled[codes]  # code -1 (missing) picks the last entry
     return out
 
 
