@@ -9,7 +9,9 @@ from functools import cached_property
 import pandas as pd
 
 from .columns import RECORD_DATE, RECORD_ID, ROW, SOURCE, TRUST
+from .errors import ConversionError
 from .ids import canonical_order
+from .mapping.dates import parse_dates
 from .mapping.spec import CanonicalSchema, FieldType, Thresholds
 from .matching import MatchResult, match_records
 from .resolve import resolve
@@ -98,13 +100,31 @@ def _records(frame: pd.DataFrame, fields: dict[str, FieldType], source: str, id_
     for column, ftype in fields.items():
         values = frame[column]
         if ftype == "date":
-            parsed = pd.to_datetime(values.astype("string"), format=date_formats.get(column), errors="coerce")
-            out[_field_name(column)] = parsed.dt.strftime("%Y-%m-%d").astype("string").to_numpy()
+            out[_field_name(column)] = _dates(values, date_formats.get(column)).to_numpy()
         elif ftype in ("quantity", "money"):
             out[_field_name(column)] = pd.to_numeric(values, errors="coerce").to_numpy()
         else:
             out[_field_name(column)] = map_distinct(values.astype("string"), _stripped).to_numpy()
     return out
+
+
+def _dates(values: pd.Series, fmt: str | None) -> pd.Series:
+    """ISO text as a workspace run makes it (``mapping.dates``), so a year alone stays a year
+    (``1986``) and is compared as one, instead of becoming 1 January (which made two different
+    birth years look like a date with one part wrong, and two equal ones like one exact date).
+    Values that layout does not read go through pandas' own parser, as before."""
+    try:
+        iso, _ = parse_dates(values.reset_index(drop=True), fmt)
+    except ConversionError:
+        iso = pd.Series(pd.NA, index=range(len(values)), dtype="string")
+    iso.index = values.index
+    rest = iso.isna() & values.notna()
+    if rest.any():  # each distinct leftover value parsed on its own (mixed layouts in one column)
+        distinct = pd.Series(pd.unique(values[rest].astype("string")), dtype="string")
+        parsed = pd.to_datetime(distinct, format=fmt or "mixed", errors="coerce").dt.strftime("%Y-%m-%d")
+        lookup = dict(zip(distinct.tolist(), parsed.tolist()))
+        iso[rest] = values[rest].astype("string").map(lookup).astype("string")
+    return iso.astype("string")
 
 
 def _stripped(text: str) -> str | None:
