@@ -403,13 +403,21 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
     return model
 
 
+def _exact_level(ftype: str) -> int:
+    """The grade of exact agreement: the last level, or for the joint name field both names
+    agreeing (its last level is "first missing, second agrees")."""
+    agrees = NAME_BUCKETS.index("agrees")
+    return agrees * len(NAME_BUCKETS) + agrees if ftype == NAME_PAIR else _levels(ftype) - 1
+
+
 def _plausibility(model: ScoreModel) -> list[str]:
     """Estimated m/u that contradict common sense are reported, not silently used."""
     notes = []
     for f in model.fields.values():
-        if f.m[-1] <= f.u[-1]:
+        top = _exact_level(f.type)
+        if f.m[top] <= f.u[top]:
             notes.append(f"field '{f.name}': exact agreement is not more likely among matches "
-                         f"(m={f.m[-1]:.3f}, u={f.u[-1]:.3f}); it carries no evidence for a link")
+                         f"(m={f.m[top]:.3f}, u={f.u[top]:.3f}); it carries no evidence for a link")
     if not model.converged:
         notes.append(f"EM did not converge in {model.iterations} iterations")
     return notes

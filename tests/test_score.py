@@ -193,3 +193,21 @@ def test_a_rare_family_name_counts_against_strangers_not_against_relatives() -> 
     every_class = model.pattern_weight(grades, ["x"], r)
     assert every_class[0] == pytest.approx(math.log2(0.9 / ((s_r * 0.8 + s_u * 0.01) * 2 ** -4)))
     assert plain[0] < strangers_only[0] < every_class[0]
+
+
+def test_the_plausibility_check_reads_both_names_agreeing_for_the_joint_name_field() -> None:
+    # The joint field's last level is "first missing, second agrees", not exact agreement; the
+    # check read it and warned on well-fitted models (m=0.000, u=0.000).
+    from integrate.compare import GRADE_NAMES
+    from integrate.score import NAME_PAIR, FieldModel, ScoreModel, _exact_level, _plausibility
+
+    assert GRADE_NAMES[NAME_PAIR][_exact_level(NAME_PAIR)] == "first agrees, second agrees"
+    assert GRADE_NAMES["date"][_exact_level("date")] == "exact"
+    levels = len(GRADE_NAMES[NAME_PAIR])
+    m, u = np.full(levels, 0.001), np.full(levels, 0.01)
+    m[_exact_level(NAME_PAIR)], u[_exact_level(NAME_PAIR)] = 0.8, 0.001
+    model = ScoreModel({"n": FieldModel("n", NAME_PAIR, list(m / m.sum()), list(u / u.sum()), list(u / u.sum()))},
+                       0.01, 10, True, {MATCH: 0.01, "unrelated": 0.99})
+    assert _plausibility(model) == []
+    model.fields["n"].m, model.fields["n"].u = list(u / u.sum()), list(m / m.sum())
+    assert len(_plausibility(model)) == 1
