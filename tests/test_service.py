@@ -16,6 +16,7 @@ import pandas as pd
 import pytest
 
 from integrate.client import Client, ServiceError
+from integrate.pipeline import STAGES
 from integrate.service.store import TokenStore
 
 from .review.conftest import free_port
@@ -89,8 +90,12 @@ def test_upload_run_follow_look_up_review_rerun(served) -> None:  # noqa: ANN001
         events = list(api.events(ws, job["job_id"]))
         stages = [state["stage"] for _, state in events if state["stage"]]
         assert events[-1][0] == "end" and events[-1][1]["state"] == "succeeded", events[-1]
-        assert stages.index("read") < stages.index("cluster") < stages.index("write")
-        assert set(events[-1][1]["timings"]) >= {"read", "score", "write"}
+        # the stream shows the job each time it is polled (every 0.2 s), so a stage quicker than
+        # that may not appear: the stages seen come in pipeline order, and the final timings
+        # hold every stage
+        seen = [s for n, s in enumerate(stages) if s != "done" and (n == 0 or s != stages[n - 1])]
+        assert len(seen) >= 2 and seen == sorted(seen, key=STAGES.index), stages
+        assert set(events[-1][1]["timings"]) >= set(STAGES)
         assert api.job(ws, job["job_id"])["run_id"] == api.runs(ws)[-1]["run_id"]
 
         # the decision was applied: the two records are in different entities
