@@ -1,4 +1,5 @@
-"""Text joined per group without a Python call per group (used by resolve and the change summary)."""
+"""Per-group work without a Python call per group: text joined per group (resolve, the change
+summary) and each group's record with the smallest key (identical records, stable IDs)."""
 
 from __future__ import annotations
 
@@ -30,3 +31,16 @@ def join_by_group(labels: pd.Series, groups: pd.Series, sep: str = "; ", *, sort
     joined = np.add.reduceat(values[order] + sep, starts)
     text = pd.Series(joined, dtype=object).str[:-len(sep)] if sep else pd.Series(joined, dtype=object)
     return pd.Series(text.to_numpy(), index=pd.Index(keys[runs[starts]], name=groups.name))
+
+
+def smallest_in_group(keys: np.ndarray, groups: np.ndarray) -> np.ndarray:
+    """Per group code (0..k-1), the position of its member with the smallest key (keys are
+    distinct; compared as Python objects, so text sorts as ``min`` would); -1 for a code no
+    record has."""
+    n = len(keys)
+    order = np.argsort(np.asarray(keys, dtype=object), kind="stable")
+    rank = np.empty(n, np.int64)
+    rank[order] = np.arange(n)
+    best = np.full(int(groups.max(initial=-1)) + 1, n, np.int64)
+    np.minimum.at(best, groups, rank)
+    return np.where(best < n, order[np.minimum(best, max(n - 1, 0))], -1)

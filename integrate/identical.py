@@ -31,6 +31,7 @@ import pandas as pd
 
 from .cluster import Split, record_keys
 from .columns import SOURCE
+from .grouped import smallest_in_group
 
 MIN_FILLED = 3  # compared fields a record must fill to be collapsed with its copies
 
@@ -132,13 +133,7 @@ def find_identical(records: pd.DataFrame, prepared: pd.DataFrame, compared: list
     # a record kept alone gets a group of its own, numbered after all hash groups
     codes[alone] = codes.max(initial=-1) + 1 + np.arange(int(alone.sum()))
     # each group's representative: its smallest record key, as clustering names entities by it
-    rank = np.empty(n, np.int64)
-    rank[np.argsort(record_keys(records), kind="stable")] = np.arange(n)
-    best = np.full(codes.max() + 1, n, np.int64)
-    np.minimum.at(best, codes, rank)
-    by_rank = np.empty(n, np.int64)
-    by_rank[rank] = np.arange(n)
-    stand_for = by_rank[best[codes]]  # per record, its representative's position
+    stand_for = smallest_in_group(record_keys(records), codes)[codes]  # per record, its representative
     positions = np.unique(stand_for)
     index = np.empty(n, np.int64)
     index[positions] = np.arange(len(positions))

@@ -34,7 +34,7 @@ import numpy as np
 import pandas as pd
 
 from .columns import RECORD_ID, SOURCE
-from .grouped import join_by_group
+from .grouped import join_by_group, smallest_in_group
 
 KEY_SEPARATOR = "\x1f"
 # related_ids: for a new entity, the previous entities it shares records with; for a split one, its parts
@@ -150,16 +150,10 @@ def assign_stable_ids(current: pd.DataFrame, previous: pd.DataFrame | None, issu
 
 
 def _smallest_key(cur: pd.DataFrame) -> pd.Series:
-    """Each cluster's smallest record key (``groupby(...).min()`` on text, through key ranks)."""
+    """Each cluster's smallest record key (``groupby(...).min()`` on text, without the per-group calls)."""
     clusters, names = pd.factorize(cur["cluster"], sort=True)
     keys = cur["key"].to_numpy(dtype=object)
-    rank = np.empty(len(keys), np.int64)
-    rank[np.argsort(keys, kind="stable")] = np.arange(len(keys))
-    best = np.full(len(names), len(keys), np.int64)
-    np.minimum.at(best, clusters, rank)
-    by_rank = np.empty(len(keys), np.int64)
-    by_rank[rank] = np.arange(len(keys))
-    return pd.Series(keys[by_rank[best]], index=pd.Index(names, name="cluster"), name="key")
+    return pd.Series(keys[smallest_in_group(keys, clusters)], index=pd.Index(names, name="cluster"), name="key")
 
 
 def _changed_records(current: pd.DataFrame, previous: pd.DataFrame | None) -> int:

@@ -37,6 +37,8 @@ from typing import TYPE_CHECKING
 import numpy as np
 import pandas as pd
 
+from .cells import is_text
+
 if TYPE_CHECKING:
     from ..pipeline import RunResult
 
@@ -48,7 +50,7 @@ def present(frame: pd.DataFrame) -> pd.DataFrame:
     """True where a cell holds a value (not NA, not blank text)."""
     out = frame.notna()
     for column in frame.columns:
-        if frame[column].dtype == object or isinstance(frame[column].dtype, pd.StringDtype):
+        if is_text(frame[column]):
             codes, distinct = pd.factorize(frame[column])  # each distinct value is looked at once
             filled = np.array([bool(str(v).strip()) for v in distinct] + [False], dtype=bool)
             out[column] &= filled[codes]  # code -1 (missing) picks the last entry
