@@ -35,6 +35,9 @@ import pandas as pd
 
 from .columns import RECORD_ID, SOURCE
 from .grouped import join_by_group, smallest_in_group
+from .mapping.money import minor_units
+from .mapping.spec import CanonicalSchema
+from .merged_values import round_half_away
 
 KEY_SEPARATOR = "\x1f"
 # related_ids: for a new entity, the previous entities it shares records with; for a split one, its parts
@@ -221,9 +224,29 @@ def _changes(cur: pd.DataFrame, prev: pd.DataFrame, overlap: pd.DataFrame, previ
     return summary, changes
 
 
-def record_hashes(records: pd.DataFrame, fields: list[str]) -> np.ndarray:
-    """A 16-hex-digit hash of each record's canonical values (to count records whose values changed)."""
+def record_hashes(records: pd.DataFrame, fields: list[str], money_digits: dict[str, int] | None = None
+                  ) -> np.ndarray:
+    """A 16-hex-digit hash of each record's canonical values (to count records whose values changed).
+
+    ``money_digits`` gives money fields' minor units: converted amounts are kept finer than a cent
+    until they are merged, and a difference below the cent is not a changed value.
+    """
     # floats to 9 decimals: a unit conversion's last-digit noise (167.38600000000002) is not a changed value
-    values = records[fields].apply(lambda c: c.round(9) if c.dtype.kind == "f" else c)
+    digits = money_digits or {}
+
+    def rounded(column: pd.Series) -> pd.Series:
+        if column.dtype.kind != "f":
+            return column
+        if column.name in digits:
+            return pd.Series(round_half_away(column.to_numpy(), digits[column.name]), index=column.index)
+        return column.round(9)
+
+    values = records[fields].apply(rounded)
     values = values.astype("string").fillna("\x00")
     return np.char.mod("%016x", pd.util.hash_pandas_object(values, index=False).to_numpy()).astype(object)
+
+
+def money_digits(canonical: CanonicalSchema) -> dict[str, int]:
+    """The minor units of every money field (``record_hashes`` compares money to the cent)."""
+    return {name: minor_units(canonical.base_currency) for name, spec in canonical.fields.items()
+            if spec.type == "money"}

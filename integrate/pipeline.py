@@ -23,7 +23,7 @@ from .columns import RECORD_ID, SOURCE
 from .compare import grade_name
 from .errors import InputError, InputErrors
 from .evaluate import Evaluation, evaluate, hard_negatives, read_crosswalk_file
-from .ids import ChangeSummary, assign_stable_ids, canonical_order, record_hashes
+from .ids import ChangeSummary, assign_stable_ids, canonical_order, money_digits, record_hashes
 from .killpoints import reached
 from .mapping.apply import FAILURE_COLUMNS, MappedSource, apply_mapping
 from .mapping.checks import no_records_text
@@ -269,7 +269,8 @@ def _run(ws: Workspace, progress: Progress, *, write: bool, output_dir: Path | N
     current = pd.DataFrame({"source": records[SOURCE].astype(str).to_numpy(),
                             "record_id": records[RECORD_ID].astype(str).to_numpy(),
                             "cluster": match.entities["entity_id"].to_numpy(),
-                            "record_hash": record_hashes(records, list(ws.canonical.fields))})
+                            "record_hash": record_hashes(records, list(ws.canonical.fields),
+                                                         money_digits(ws.canonical))})
     stable, changes, entity_changes = assign_stable_ids(current, history.previous_crosswalk, history.issued,
                                                         history.previous_run_id)
     match.entities["entity_id"] = stable.to_numpy()

@@ -26,7 +26,10 @@ Provenance has one row per entity and field: the chosen ``value``, the ``source`
 ``record_id`` it came from (empty for ``sum`` and ``mean``, which use every value), the ``rule``,
 the number of ``candidates``, whether they ``conflict`` (differ after standardisation; never
 for ``sum`` and ``all``, whose values are meant to differ), the ``alternatives`` with their
-sources, and ``why``, one sentence on how the rule chose.
+sources, and ``why``, one sentence on how the rule chose. A value whose unit was corrected on
+reading (``fix_unit_slips``, named in the records' ``_unit_fixes`` column) says so: its
+alternative is marked "(unit fixed: ...)" and ``why`` names the fix when the winning value, or any
+value a sum or mean used, was corrected.
 """
 
 from __future__ import annotations
@@ -37,7 +40,8 @@ import pandas as pd
 from .columns import RECORD_DATE, RECORD_ID, SOURCE, TRUST
 from .errors import MappingError
 from .grouped import join_by_group
-from .mapping.money import minor_units
+from .mapping.money import FINE_DIGITS, minor_units
+from .mapping.slips import UNIT_FIXES
 from .mapping.spec import CanonicalField, CanonicalSchema
 from .merged_values import (
     CASED_TYPES,
@@ -88,6 +92,7 @@ def _long(records: pd.DataFrame, entity_ids: np.ndarray, name: str, spec: Canoni
     if spec.type in NUMERIC_TYPES:
         long["value"] = long["value"].astype(float)
         long["_norm"] = long["value"].round(6).astype(str)
+        long["_fix"] = _unit_fix_notes(records, name)[keep]
     else:
         long["value"] = long["value"].astype(str)
         long["_norm"] = map_distinct(long["value"], clean_text).fillna("").to_numpy()
@@ -97,6 +102,20 @@ def _long(records: pd.DataFrame, entity_ids: np.ndarray, name: str, spec: Canoni
             other = records[key].astype("string").fillna("").to_numpy()[keep]
             long["_tx_" + key] = other[long.index.to_numpy()]
     return long.reset_index(drop=True)
+
+
+def _unit_fix_notes(records: pd.DataFrame, name: str) -> np.ndarray:
+    """Each record's note on a unit corrected in field ``name`` ('read as centimetres (cm), not
+    inches (in)'), or '' (notes are parsed once per distinct ``_unit_fixes`` text)."""
+    if UNIT_FIXES not in records.columns:
+        return np.full(len(records), "", dtype=object)
+    prefix = name + ": "
+
+    def own(text: str) -> str:
+        return next((part[len(prefix):] for part in text.split("; ") if part.startswith(prefix)), "")
+
+    notes = records[UNIT_FIXES].astype("string")
+    return map_distinct(notes.fillna(""), own).fillna("").to_numpy(dtype=object)
 
 
 def _pick(long: pd.DataFrame, rule: str, spec: CanonicalField) -> pd.DataFrame:
@@ -133,15 +152,11 @@ def _sum_once(long: pd.DataFrame, name: str, spec: CanonicalField) -> pd.DataFra
     return once
 
 
-# money is added in integers of a millionth of the minor unit, then rounded once per entity
-MONEY_FINE_DIGITS = 6
-
-
 def _aggregate(long: pd.DataFrame, rule: str, ftype: str, digits: int) -> pd.DataFrame:
     if ftype == "money":
         # integer units finer than the minor unit: exact sums, no float drift, and no payment
         # rounded before it is added; the total is rounded once, half away from zero
-        fine = 10 ** MONEY_FINE_DIGITS
+        fine = 10 ** FINE_DIGITS
         units = pd.Series(np.round(long["value"].to_numpy() * 10 ** digits * fine).astype(np.int64),
                           index=long.index)
         total = units.groupby(long["entity_id"]).sum()
@@ -228,7 +243,8 @@ def resolve(records: pd.DataFrame, entity_ids: pd.Series, canonical: CanonicalSc
             chosen = pd.concat([chosen, pd.DataFrame({"entity_id": missing, "value": 0.0, "_source": "",
                                                       "_rid": ""})], ignore_index=True)
         if spec.type == "money" and spec.resolve != "all":
-            chosen = chosen.assign(value=chosen["value"].astype(float).round(digits))
+            # converted amounts arrive finer than the minor unit (mapping.money.FINE_DIGITS): round once, here
+            chosen = chosen.assign(value=round_half_away(chosen["value"].astype(float).to_numpy(), digits))
         elif spec.type == "quantity" and spec.resolve != "all":
             places = DEFAULT_DECIMALS if spec.decimals is None else spec.decimals
             chosen = chosen.assign(value=round_half_away(chosen["value"].astype(float).to_numpy(), places))
@@ -270,6 +286,8 @@ def _shown(values: pd.Series, spec: CanonicalField, digits: int) -> pd.Series:
     if spec.type not in NUMERIC_TYPES or not pd.api.types.is_numeric_dtype(values):  # 'all' lists are text
         return values.astype(object).where(values.notna(), "").astype(str)
     number = values.astype(float).to_numpy()
+    if spec.type == "money":
+        number = round_half_away(number, digits)  # half up, as merged money is rounded
     text = np.char.mod(f"%.{digits}f" if spec.type == "money" else "%.10g", number).astype(object)
     return pd.Series(np.where(np.isnan(number), "", text), index=values.index, dtype=object)
 
@@ -280,11 +298,13 @@ def _provenance(long: pd.DataFrame, usable: pd.DataFrame, counted: pd.DataFrame,
                                           excluded=("_excluded", "sum"))
     label = _shown(long["value"], spec, digits) + " [" + long["_source"] + ":" + long["_rid"] + "]"
     label = label.where(~long["_excluded"], label + " (out of range)")
+    fixes = long["_fix"] if "_fix" in long else pd.Series("", index=long.index)
+    label = label.where(fixes.eq(""), label + " (unit fixed: " + fixes + ")")
     alternatives = join_by_group(label, long["entity_id"])
     out = chosen.rename(columns={"_source": "source", "_rid": "record_id"}).set_index("entity_id")
     # every entity has a row: one without a usable value (none, or only out-of-range ones) shows it empty
     out = out.join(stats, how="outer").join(alternatives.rename("alternatives"), how="left").reindex(entities)
-    out["why"] = _why(out, usable, counted, spec)
+    out["why"] = _why(out, usable, counted, spec) + _fix_note(chosen, counted, spec).reindex(out.index).fillna("")
     conflict = (out["distinct"].fillna(0) > 1).to_numpy() & (spec.resolve not in NO_CONFLICT_RULES)
     return pd.DataFrame({
         "entity_id": out.index.to_numpy(),
@@ -298,6 +318,22 @@ def _provenance(long: pd.DataFrame, usable: pd.DataFrame, counted: pd.DataFrame,
         "alternatives": out["alternatives"].fillna("").to_numpy(),
         "why": out["why"].to_numpy(),
     })
+
+
+def _fix_note(chosen: pd.DataFrame, counted: pd.DataFrame, spec: CanonicalField) -> pd.Series:
+    """Per entity, the clause ``why`` adds for corrected units: the winner's fix, or for a sum or
+    mean how many of the values it used were corrected ('' where none was)."""
+    if "_fix" not in counted:
+        return pd.Series(dtype=object)
+    if spec.resolve in AGGREGATE_RULES:
+        fixed = counted["_fix"].ne("").groupby(counted["entity_id"]).sum()
+        fixed = fixed[fixed > 0]
+        noun = pd.Series(np.where(fixed == 1, " value", " values"), index=fixed.index)
+        return "; " + fixed.astype(str) + noun + " read in another unit (fix_unit_slips)"
+    if "_fix" not in chosen:
+        return pd.Series(dtype=object)
+    won = chosen[chosen["_fix"].ne("")]
+    return pd.Series(("; unit fixed: " + won["_fix"]).to_numpy(), index=won["entity_id"].to_numpy())
 
 
 def _why(out: pd.DataFrame, usable: pd.DataFrame, counted: pd.DataFrame, spec: CanonicalField) -> pd.Series:

@@ -162,6 +162,10 @@ def test_record_hashes_change_only_with_the_values() -> None:
     changed = record_hashes(frame.assign(fee=[1.0, 2.5, 3.0]), ["name", "fee"])
     assert [a == b for a, b in zip(again, changed)] == [True, False, True]
     assert all(len(h) == 16 for h in again)
+    # money is compared to the cent: 40.001 GBP (47.06 EUR converted back at 0.85) reads the same as 40.00
+    cents = record_hashes(frame, ["name", "fee"], {"fee": 2})
+    finer = record_hashes(frame.assign(fee=[1.001, 2.0, 3.006]), ["name", "fee"], {"fee": 2})
+    assert [a == b for a, b in zip(cents, finer)] == [True, True, False]
 
 
 def test_changes_command_without_runs(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:

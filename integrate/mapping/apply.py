@@ -15,7 +15,7 @@ from ..phone_numbers import is_country, to_e164
 from ..text_normalise import map_distinct
 from .addresses import split_addresses
 from .dates import parse_dates
-from .money import RatesTable, convert_money, is_currency, parse_amounts
+from .money import FINE_DIGITS, RatesTable, convert_money, is_currency, parse_amounts
 from .names import split_names
 from .numbers import to_plain_numbers
 from .slips import UNIT_FIXES, describe, fix_slips
@@ -412,7 +412,7 @@ def _convert(values: pd.Series, entry: ColumnMap, column: str, target: str, raw:
                 mapping_file, column, f"converting to {canonical.base_currency} needs a rates table",
                 "missing_rates", "set 'rates:' in canonical.yaml to a dated rates CSV", line, col)
         converted, failures = convert_money(amounts, currencies, dates, canonical.base_currency, rates,
-                                            max_age_days=canonical.rate_max_age_days)
+                                            max_age_days=canonical.rate_max_age_days, extra_digits=FINE_DIGITS)
         if entry.currency_column and not failures.empty:  # name the column the code came from
             unknown = failures["reason"] == "unknown_currency"
             failures.loc[unknown, "message"] = (f"currency column '{entry.currency_column}': "

@@ -4,7 +4,9 @@ A rates table is a CSV the user supplies (``date,from,to,rate``: on ``date``, 1 
 ``from`` is worth ``rate`` units of ``to``). The rate in force on a day is the latest one
 on or before that day, if it is at most ``max_age_days`` old. A pair quoted only the other
 way round is used inverted. Results are rounded to the base currency's ISO 4217 minor
-units, half up, in decimal arithmetic (so 0.125 EUR rounds to 0.13, as written).
+units, half up, in decimal arithmetic (so 0.125 EUR rounds to 0.13, as written), or kept
+``extra_digits`` finer: the pipeline keeps ``FINE_DIGITS`` more, so that a sum of converted
+payments is rounded once per entity, never payment by payment.
 """
 
 from __future__ import annotations
@@ -25,6 +27,7 @@ from integrate.errors import ConversionError, SourceError
 FAILURE_COLUMNS = ["index", "value", "reason", "message"]
 RATE_COLUMNS = ["date", "from", "to", "rate", "line"]
 
+FINE_DIGITS = 6  # digits kept beyond the minor unit until a value is merged (a millionth of a cent)
 _SHOWN_DATES = 10  # dates listed in a missing-rate message before "... and N more"
 
 # Digits with optional thousands separators (comma, apostrophe) in groups of three.
@@ -250,6 +253,7 @@ def convert_money(
     rates: RatesTable | None,
     *,
     max_age_days: int = 7,
+    extra_digits: int = 0,
 ) -> tuple[pd.Series, pd.DataFrame]:
     """Convert amounts to ``base`` at the rate in force on each row's date.
 
@@ -260,9 +264,10 @@ def convert_money(
         base: the ISO code to convert to.
         rates: the rates table (may be None when every amount is already in ``base``).
         max_age_days: how old the latest rate may be on the pricing date.
+        extra_digits: decimals kept beyond ``base``'s minor units (0: rounded to them).
 
     Returns:
-        Amounts in ``base`` rounded half up to its minor units (float64, aligned with
+        Amounts in ``base`` rounded half up to its minor units plus ``extra_digits`` (float64, aligned with
         ``amounts``), and a failures frame (index, value, reason, message) with reasons
         ``unknown_currency``, ``missing_currency``, ``missing_date``, ``bad_date``,
         ``missing_rate``, ``bad_amount``.
@@ -319,7 +324,7 @@ def convert_money(
         if lacking.any():
             fail(lacking, "missing_rate", code_text, _missing_rate_message(
                 currency, base, days[lacking], max_age_days, rates))
-    converted = _multiply_rounded(amounts, rate, digits)
+    converted = _multiply_rounded(amounts, rate, digits + extra_digits)
     converted.name = amounts.name
     return converted, _concat(failures)
 

@@ -19,7 +19,7 @@ def mapping_changes_section(result: RunResult, ws: Workspace | None) -> str:
         return ""
     from ..columns import RECORD_ID, SOURCE
     from ..history_store import mapping_texts, mapping_versions
-    from ..ids import record_hashes
+    from ..ids import money_digits, record_hashes
     from ..mapping_changes import crosswalk_effect, file_changes
     from ..state import StateStore
 
@@ -39,7 +39,8 @@ def mapping_changes_section(result: RunResult, ws: Workspace | None) -> str:
         return title + "<p>No mapping file changed since the previous run.</p>"
     current = pd.DataFrame({"source": result.records[SOURCE].astype(str).to_numpy(),
                             "record_id": result.records[RECORD_ID].astype(str).to_numpy(),
-                            "record_hash": record_hashes(result.records, list(ws.canonical.fields))})
+                            "record_hash": record_hashes(result.records, list(ws.canonical.fields),
+                                                         money_digits(ws.canonical))})
     current = current.merge(result.crosswalk[["source", "record_id", "entity_id"]].astype(str),
                             on=["source", "record_id"], how="left")
     e = crosswalk_effect(store.crosswalk(previous.run_id), current)

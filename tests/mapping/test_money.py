@@ -249,3 +249,63 @@ def test_money_sums_are_exact() -> None:
                             "_record_date": ["2026-01-01"] * 3, "deposits_gbp": [0.1, 0.2, None]})
     merged, _ = resolve(records, pd.Series(["E1", "E1", "E1"]), schema)
     assert merged["deposits_gbp"].tolist() == [0.3]
+
+
+def _paid(amounts: list[str], dates: list[str], rates: Path) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """One entity's payments in GBP, read through a mapping into EUR and summed by ``resolve``."""
+    from integrate.columns import ROW
+    from integrate.mapping.apply import apply_mapping
+    from integrate.mapping.spec import CanonicalSchema, SourceMapping
+    from integrate.resolve import resolve
+
+    canonical = CanonicalSchema.model_validate({"base_currency": "EUR", "fields": {
+        "paid_eur": {"type": "money", "meaning": "Payments; separate ones add up.", "resolve": "sum"}}})
+    mapping = SourceMapping.model_validate({
+        "source": "club", "read": {"format": "csv", "path": "c.csv"}, "record_id": "id",
+        "as_of": dt.date(2024, 1, 31),
+        "columns": {"id": "ignore", "day": "ignore",
+                    "paid": {"field": "paid_eur", "currency": "GBP", "priced_on": "day"}}})
+    raw = pd.DataFrame({"id": [str(i) for i in range(len(amounts))], "paid": amounts, "day": dates},
+                       dtype="string")
+    raw[ROW] = range(2, len(amounts) + 2)
+    records = apply_mapping(raw, mapping, canonical, load_rates(rates), data_file="c.csv",
+                            mapping_file="c.yaml").frame
+    return resolve(records, pd.Series(["E1"] * len(records)), canonical)
+
+
+def test_converted_payments_are_summed_exactly_and_rounded_once(rates_file: Path) -> None:
+    # hand-computed: 0.15 GBP x 1.15 = 0.1725 EUR. Ten such payments rounded one by one add up to
+    # 1.70 EUR; summed exactly they are 1.725 EUR, rounded once half up 1.73 EUR
+    merged, provenance = _paid(["0.15"] * 10, ["2024-01-02"] * 10, rates_file)
+    assert merged["paid_eur"].tolist() == [1.73]
+    assert provenance["value"].tolist() == ["1.73"] and provenance["why"].tolist() == ["sum of 10 values"]
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.integers(1, 100_000), min_size=1, max_size=40),
+       st.lists(st.sampled_from(["2024-01-02", "2024-01-06"]), min_size=40, max_size=40))
+def test_sums_of_converted_payments_match_exact_decimal_arithmetic(cents: list[int], days: list[str]) -> None:
+    # reference: Python's decimal module, each payment x its day's rate exactly, the total rounded
+    # once half up to the cent (ISO 4217: EUR has 2 minor units)
+    import tempfile
+
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / "rates.csv"
+        path.write_text(RATES_CSV, encoding="utf-8")
+        amounts = [f"{c / 100:.2f}" for c in cents]
+        merged, _ = _paid(amounts, days[: len(cents)], path)
+    rate = {"2024-01-02": Decimal("1.15"), "2024-01-06": Decimal("1.17")}
+    exact = sum(Decimal(a) * rate[d] for a, d in zip(amounts, days, strict=False))
+    assert merged["paid_eur"].iloc[0] == float(exact.quantize(Decimal("0.01"), rounding=ROUND_HALF_UP))
+
+
+def test_a_single_converted_payment_is_rounded_half_up_when_merged(rates_file: Path) -> None:
+    # 0.3 GBP x 1.15 = 0.345 EUR exactly: half up gives 0.35 (the float product 0.34499999999999997
+    # would round to 0.34); the converted record keeps the exact 0.345 until it is merged
+    from integrate.mapping.money import FINE_DIGITS
+
+    converted, _ = convert_money(pd.Series([0.3]), "GBP", dt.date(2024, 1, 1), "EUR", load_rates(rates_file),
+                                 extra_digits=FINE_DIGITS)
+    assert converted.tolist() == [0.345]
+    merged, provenance = _paid(["0.3"], ["2024-01-02"], rates_file)
+    assert merged["paid_eur"].tolist() == [0.35] and provenance["value"].tolist() == ["0.35"]
