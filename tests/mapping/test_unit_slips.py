@@ -72,3 +72,38 @@ def test_needs_a_range_and_a_unit() -> None:
                       None, data_file="c.csv", mapping_file="c.yaml")
     with pytest.raises(ValueError, match="unit"):
         _mapping({"f": {"field": "shoe", "unit_column": "u", "fix_unit_slips": True}})
+
+
+def test_a_corrected_unit_is_named_in_the_provenance_of_the_merged_value() -> None:
+    from integrate.resolve import resolve
+
+    # one person, two records: 172 typed into the inches column (172 cm), and 68 in = 172.72 cm
+    usual = ["66"] * 10
+    raw = _raw(ht=["172", "68"] + usual, wt=[None, "150"] + ["150"] * 10)
+    mapping = _mapping({"ht": {"field": "height_cm", "unit": "in", "fix_unit_slips": True},
+                        "wt": {"field": "weight_kg", "unit": "lb", "fix_unit_slips": True}})
+    records = apply_mapping(raw, mapping, CANONICAL, None, data_file="c.csv", mapping_file="c.yaml").frame
+    canonical = CANONICAL.model_copy(update={"fields": {
+        "height_cm": CANONICAL.fields["height_cm"].model_copy(update={"resolve": "min"}),
+        "weight_kg": CANONICAL.fields["weight_kg"].model_copy(update={"resolve": "mean"})}})
+    entity = pd.Series(["E1", "E1"] + [f"E{k + 2}" for k in range(10)])
+    merged, provenance = resolve(records, entity, canonical)
+    height = provenance[(provenance["entity_id"] == "E1") & (provenance["field"] == "height_cm")].iloc[0]
+    assert height["value"] == "172" and height["record_id"] == "0"  # the corrected row won (min)
+    assert height["why"] == "the smallest value (2 values); unit fixed: read as centimetres (cm), not inches (in)"
+    assert "172 [club:0] (unit fixed: read as centimetres (cm), not inches (in))" in height["alternatives"]
+    assert "[club:1] (unit fixed" not in height["alternatives"]
+    # the weight of the same records was not corrected: nothing is said
+    weight = provenance[(provenance["entity_id"] == "E1") & (provenance["field"] == "weight_kg")].iloc[0]
+    assert "unit" not in weight["why"] and "unit fixed" not in weight["alternatives"]
+    # a mean that used a corrected value says how many
+    other = provenance[(provenance["entity_id"] == "E2") & (provenance["field"] == "height_cm")].iloc[0]
+    assert "unit" not in other["why"]
+    records.loc[1, UNIT_FIXES] = "weight_kg: read as kilograms (kg), not pounds (lb)"
+    canonical_mean = canonical.model_copy(update={"fields": {
+        **canonical.fields, "height_cm": canonical.fields["height_cm"].model_copy(update={"resolve": "mean"})}})
+    _, provenance = resolve(records, entity, canonical_mean)
+    height = provenance[(provenance["entity_id"] == "E1") & (provenance["field"] == "height_cm")].iloc[0]
+    assert height["why"] == "the mean of the values (2 values); 1 value read in another unit (fix_unit_slips)"
+    weight = provenance[(provenance["entity_id"] == "E1") & (provenance["field"] == "weight_kg")].iloc[0]
+    assert weight["why"] == "the only value; 1 value read in another unit (fix_unit_slips)"
