@@ -98,7 +98,7 @@ def add_record(root: Path, k: int) -> None:
     """Append one new person to the web shop export (a new entity in the next run)."""
     path = root / "demo_sources" / "webshop.csv"
     with path.open("a", encoding="utf-8") as handle:
-        handle.write(f"W9{k:05d},Kelda{k},Quillfeather{k},kelda{k}.q@mail.example.org,,,10.00,2025-01-01,TK1 2XH,N\n")
+        handle.write(f"W9{k:05d};Kelda{k};Quillfeather{k};kelda{k}.q@mail.example.org;;;10,00;2025-01-01;TK1 2XH;N\n")
 
 
 # --- running --------------------------------------------------------------------------------

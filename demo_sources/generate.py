@@ -364,6 +364,11 @@ def money(value: Decimal) -> str:
     return str(value.quantize(CENT, ROUND_HALF_UP))
 
 
+def decimal_comma(value: Decimal) -> str:
+    """An amount as continental exports write it: '2.109,19' (dot between thousands, comma decimals)."""
+    return f"{value:,.2f}".translate(str.maketrans(",.", ".,"))
+
+
 # --------------------------------------------------------------------------
 # Phone numbers (fiction ranges only), kept as UK national significant numbers
 # --------------------------------------------------------------------------
@@ -946,8 +951,8 @@ def render_membership(rec: Record, dice: Dice) -> None:
         "Born": birth.strftime("%d/%m/%Y") if birth else None,
         "Joined": dt.datetime.combine(rec.day, dt.time()),
         "Phone": phone_local(phone) if phone else None,
-        "Street": street,
-        "Postcode": postcode,
+        # the office keeps the address in one cell: "street, postcode"
+        "Address": ", ".join(part for part in (street, postcode) if part) or None,
         "Height (cm)": height,
         "Annual Fee": float(rec.amount),
         "Locker": locker,
@@ -993,7 +998,7 @@ def render_webshop(rec: Record, dice: Dice, rates_table: Rates) -> None:
         "mobile": phone_format(phone, "intl" if dice.chance(0.7) else "intl_compact")
         if phone else "",
         "date_of_birth": birth.isoformat() if birth else "",
-        "lifetime_spend": str(spend),
+        "lifetime_spend": decimal_comma(spend),  # the shop's platform writes decimal commas
         "last_order": rec.day.isoformat(),
         "ship_postcode": postcode or "",
         "marketing_opt_in": "Y" if dice.chance(0.4) else "N",
@@ -1038,7 +1043,9 @@ def render_rentals(rec: Record, dice: Dice, rates_table: Rates) -> None:
         "dob": birth.strftime("%m/%d/%Y") if birth else None,
         "height_in": height,
         "weight_lb": weight,
-        "deposit": {"amount": float(amount), "currency": currency},
+        # the desk's booking form before 2025 left the currency blank for pounds
+        "deposit": {"amount": float(amount),
+                    "currency": None if currency == "GBP" and rec.day.year < 2025 else currency},
         "rented_on": rec.day.isoformat(),
     }
 
@@ -1169,8 +1176,10 @@ def plant_unit_slips(records: list[Record], dice: Dice) -> None:
 # Writers
 # --------------------------------------------------------------------------
 
-MEMBERSHIP_COLUMNS = ("Member No", "Name", "Born", "Joined", "Phone", "Street",
-                      "Postcode", "Height (cm)", "Annual Fee", "Locker")
+MEMBERSHIP_COLUMNS = ("Member No", "Name", "Born", "Joined", "Phone", "Address",
+                      "Height (cm)", "Annual Fee", "Locker")
+MEMBERSHIP_WIDTHS = (11, 32, 12, 12, 15, 34, 11, 11, 16)
+WEBSHOP_DELIMITER = ";"  # the shop's platform writes semicolon-separated files with decimal commas
 WEBSHOP_COLUMNS = ("customer_id", "first_name", "last_name", "email", "mobile",
                    "date_of_birth", "lifetime_spend", "last_order", "ship_postcode",
                    "marketing_opt_in")
@@ -1188,9 +1197,9 @@ def write_membership(path: Path, records: list[Record]) -> None:
     for row in sheet.iter_rows(min_row=2):
         row[2].number_format = "@"            # Born stays text
         row[3].number_format = "dd/mm/yyyy"   # Joined is a real date
-        row[7].number_format = "0.0"
-        row[8].number_format = "0.00"
-    for letter, width in zip("ABCDEFGHIJ", (11, 32, 12, 12, 15, 26, 10, 11, 11, 16), strict=True):
+        row[6].number_format = "0.0"
+        row[7].number_format = "0.00"
+    for letter, width in zip("ABCDEFGHI", MEMBERSHIP_WIDTHS, strict=True):
         sheet.column_dimensions[letter].width = width
     sheet.freeze_panes = "A2"
     workbook.properties.creator = "Tallow Creek membership office (invented demo)"
@@ -1232,18 +1241,19 @@ def write_reproducible_zip(path: Path, data: bytes, members: dict[str, bytes] | 
             target.writestr(fixed, content)
 
 
-def write_csv(path: Path, header, rows, comment: str | None = None) -> None:
+def write_csv(path: Path, header, rows, comment: str | None = None, delimiter: str = ",") -> None:
     with open(path, "w", encoding="utf-8", newline="") as handle:
         if comment:
             handle.write(comment + "\n")
-        writer = csv.writer(handle, lineterminator="\n")
+        writer = csv.writer(handle, lineterminator="\n", delimiter=delimiter)
         writer.writerow(header)
         writer.writerows(rows)
 
 
 def write_webshop(path: Path, records: list[Record]) -> None:
     write_csv(path, WEBSHOP_COLUMNS,
-              ([rec.record_id] + [rec.row[c] for c in WEBSHOP_COLUMNS[1:]] for rec in records))
+              ([rec.record_id] + [rec.row[c] for c in WEBSHOP_COLUMNS[1:]] for rec in records),
+              delimiter=WEBSHOP_DELIMITER)
 
 
 def write_rentals(path: Path, records: list[Record]) -> None:
@@ -1292,8 +1302,8 @@ def entity_rows(world: World, records: list[Record], rates: Rates):
         if orders:
             latest = max(orders, key=lambda r: r.day)
             spend = money(rates.to_gbp(latest.amount, "EUR", latest.day))
-        deposits = (money(sum(rates.to_gbp(r.amount, r.currency, r.day) for r in rentals))
-                    if rentals else "")
+        # each deposit converted exactly, the total rounded once (half up) to the penny
+        deposits = money(sum(r.amount * rates.rate(r.currency, r.day) for r in rentals)) if rentals else ""
         event_fees = money(sum(r.amount for r in signups)) if signups else ""
         phone = person.main_phone
         yield (person.entity_id, person.given, person.family, person.sex,
@@ -1548,7 +1558,7 @@ class BigWriters:
         (out / "truth").mkdir(parents=True, exist_ok=True)
         self.sheet = BigSheet(out / "membership.xlsx")
         self.webshop = open(out / "webshop.csv", "w", encoding="utf-8", newline="")
-        self.webshop_csv = csv.writer(self.webshop, lineterminator="\n")
+        self.webshop_csv = csv.writer(self.webshop, lineterminator="\n", delimiter=WEBSHOP_DELIMITER)
         self.webshop_csv.writerow(WEBSHOP_COLUMNS)
         self.rentals = open(out / "rentals.jsonl", "w", encoding="utf-8", newline="\n")
         events = out / "events.sqlite"
@@ -1604,7 +1614,7 @@ class BigSheet:
     """
 
     EPOCH = dt.datetime(1899, 12, 30)  # day 0 of the 1900 date system (ECMA-376 section 18.17.4)
-    LETTERS = "ABCDEFGHIJ"
+    LETTERS = "ABCDEFGHI"
 
     def __init__(self, path: Path):
         self.path = path
@@ -1621,12 +1631,12 @@ class BigSheet:
         for cell in sheet[1]:
             cell.font = Font(bold=True)
         if with_sample:  # one row that shows which style number each format got
-            sheet.append(["x", "x", "x", FIXED_FILE_TIME, "x", "x", "x", 1.0, 1.0, "x"])
+            sheet.append(["x", "x", "x", FIXED_FILE_TIME, "x", "x", 1.0, 1.0, "x"])
             row = sheet[2]
             row[3].number_format = "dd/mm/yyyy"
-            row[7].number_format = "0.0"
-            row[8].number_format = "0.00"
-        for letter, width in zip(self.LETTERS, (11, 32, 12, 12, 15, 26, 10, 11, 11, 16), strict=True):
+            row[6].number_format = "0.0"
+            row[7].number_format = "0.00"
+        for letter, width in zip(self.LETTERS, MEMBERSHIP_WIDTHS, strict=True):
             sheet.column_dimensions[letter].width = width
         workbook.properties.creator = "Tallow Creek membership office (invented demo)"
         workbook.properties.title = "Members"
@@ -1642,7 +1652,7 @@ class BigSheet:
         self.template = self._template(True)
         row = xml[xml.index('<row r="2"'):]
         return {index: re.search(rf'<c r="{letter}2" s="(\d+)"', row).group(1)
-                for index, letter in ((3, "D"), (7, "H"), (8, "I"))}
+                for index, letter in ((3, "D"), (6, "G"), (7, "H"))}
 
     @staticmethod
     def _text(value: str) -> str:
@@ -1675,7 +1685,7 @@ class BigSheet:
         with zipfile.ZipFile(io.BytesIO(self.template)) as template:
             xml = template.read("xl/worksheets/sheet1.xml").decode()
             head = xml[:xml.index('<row r="2"')]
-            head = re.sub(r'<dimension ref="[^"]*"', f'<dimension ref="A1:J{self.rows}"', head)
+            head = re.sub(r'<dimension ref="[^"]*"', f'<dimension ref="A1:I{self.rows}"', head)
             tail = xml[xml.index("</sheetData>"):]
             members = {i.filename: template.read(i.filename) for i in template.infolist()}
         write_reproducible_zip(self.path, b"", members=members, sheet=(head, self.staging, tail))

@@ -48,7 +48,7 @@ def test_missing_source_file(workspace: Path) -> None:
 def test_unreadable_file_names_the_line(workspace: Path) -> None:
     data = workspace / "demo_sources" / "webshop.csv"
     lines = data.read_bytes().split(b"\n")
-    lines[5] = lines[5].replace(b",", b",\xe9", 1)  # a Latin-1 byte in a UTF-8 file, on line 6
+    lines[5] = lines[5].replace(b";", b";\xe9", 1)  # a Latin-1 byte in a UTF-8 file, on line 6
     data.write_bytes(b"\n".join(lines))
     err = assert_clean_error(run_cli("run", str(workspace)), "webshop.csv")
     assert re.search(r"webshop\.csv:6\b", err), err

@@ -53,7 +53,7 @@ def source_record_ids() -> dict[str, list[str]]:
     membership = [row[member_col] for row in rows]
     workbook.close()
 
-    webshop = pd.read_csv(DEMO / "webshop.csv", dtype=str, keep_default_na=False)
+    webshop = pd.read_csv(DEMO / "webshop.csv", dtype=str, keep_default_na=False, sep=";")
     with open(DEMO / "rentals.jsonl", encoding="utf-8") as handle:
         rentals = [json.loads(line)["rental_ref"] for line in handle if line.strip()]
     connection = sqlite3.connect(DEMO / "events.sqlite")

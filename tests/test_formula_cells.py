@@ -85,8 +85,8 @@ def _plain_number(cell: str) -> bool:
 def test_hostile_values_in_a_source_are_inert_in_every_csv_a_run_writes(tmp_path: Path) -> None:
     root = copy_workspace(tmp_path / "ws")
     with (root / "demo_sources" / "webshop.csv").open("a", encoding="utf-8") as handle:
-        handle.write('W999001,"=HYPERLINK(""http://attacker.example"")",@SUM(A1),ana@mail.example.org,,,'
-                     '10.00,2025-01-01,TK1 2XH,N\n')
+        handle.write('W999001;"=HYPERLINK(""http://attacker.example"")";@SUM(A1);ana@mail.example.org;;;'
+                     '10,00;2025-01-01;TK1 2XH;N\n')
     result = integrate.run(root)
     assert _dangerous_cells(result.run_dir) == []
     merged = (result.run_dir / "merged.csv").read_text(encoding="utf-8")

@@ -23,8 +23,8 @@ def test_copies_of_a_record_merge_without_pairs_or_lost_precision(tmp_path: Path
     root = copy_workspace(tmp_path / "ws")
     path = root / "demo_sources" / "webshop.csv"
     lines = path.read_text(encoding="utf-8").splitlines()
-    storm, twin = lines[1].split(","), lines[2].split(",")
-    extra = [",".join([f"WS{k:06d}"] + storm[1:]) for k in range(20_000)] + [",".join(["WT000001"] + twin[1:])]
+    storm, twin = lines[1].split(";"), lines[2].split(";")  # the shop writes semicolon-separated files
+    extra = [";".join([f"WS{k:06d}"] + storm[1:]) for k in range(20_000)] + [";".join(["WT000001"] + twin[1:])]
     path.write_text("\n".join(lines + extra) + "\n", encoding="utf-8")
     result = integrate.run(root, write=False)
     entity = result.crosswalk.set_index(["source", "record_id"])["entity_id"]

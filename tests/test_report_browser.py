@@ -35,13 +35,13 @@ JS_URL = "javascript:window.__pwned = 3"
 def hostile_report(tmp_path_factory: pytest.TempPathFactory) -> Path:
     root = copy_workspace(tmp_path_factory.mktemp("hostile"))
     shop = root / "demo_sources" / "webshop.csv"
-    frame = pd.read_csv(shop, dtype=str, keep_default_na=False)
+    frame = pd.read_csv(shop, dtype=str, keep_default_na=False, sep=";")
     frame.loc[0, "first_name"] = BREAKOUT
     frame.loc[1, "last_name"] = SCRIPT
     frame.loc[2, "email"] = JS_URL
     frame.loc[3, "customer_id"] = "W" + SCRIPT
     frame[SCRIPT] = "x"  # an unmapped column: its name is quoted in the report's warnings
-    frame.to_csv(shop, index=False)
+    frame.to_csv(shop, index=False, sep=";")
     result = run(root)
     assert result.report_path is not None
     return result.report_path

@@ -67,9 +67,9 @@ def test_upload_run_follow_look_up_review_rerun(served) -> None:  # noqa: ANN001
     with Client(server.url, tokens["admin"]) as api:
         # upload an export: the webshop's file with one record's e-mail changed
         webshop = server.ws / "demo_sources" / "webshop.csv"
-        frame = pd.read_csv(webshop, dtype=str, keep_default_na=False)
+        frame = pd.read_csv(webshop, dtype=str, keep_default_na=False, sep=";")
         upload = server.ws / "upload.csv"
-        frame.to_csv(upload, index=False)
+        frame.to_csv(upload, index=False, sep=";")
         sent = api.upload_source(ws, "webshop", upload)
         assert sent["file"] == "demo_sources/webshop.csv" and sent["size"] == upload.stat().st_size
         info = api.workspace(ws)

@@ -138,7 +138,7 @@ def _rewrite_webshop(path: Path, decided_keys: set[str]) -> dict[str, list[str]]
     """A later export of the web shop: 3 accounts closed, 10 with new orders, 2 new e-mails,
     3 new customers and 3 second accounts of existing customers. Returns the IDs per kind."""
     with path.open(encoding="utf-8", newline="") as handle:
-        rows = list(csv.DictReader(handle))
+        rows = list(csv.DictReader(handle, delimiter=";"))  # semicolons and decimal commas
     fields = list(rows[0])
     usable = [r for r in rows if r["customer_id"] not in decided_keys]
     removed = [r["customer_id"] for r in usable[100:103]]
@@ -147,7 +147,8 @@ def _rewrite_webshop(path: Path, decided_keys: set[str]) -> dict[str, list[str]]
     kept = [r for r in rows if r["customer_id"] not in removed]
     for r in kept:
         if r["customer_id"] in spend_changed:
-            r["lifetime_spend"] = f"{float(r['lifetime_spend'] or 0) + 42.50:.2f}"
+            spend = float(r["lifetime_spend"].replace(".", "").replace(",", ".") or 0)
+            r["lifetime_spend"] = f"{spend + 42.50:.2f}".replace(".", ",")
             r["last_order"] = "2026-11-20"
         if r["customer_id"] in email_changed:
             r["email"] = f"new.{r['customer_id'].lower()}@mail.example.com"
@@ -158,14 +159,14 @@ def _rewrite_webshop(path: Path, decided_keys: set[str]) -> dict[str, list[str]]
         cid = f"W9{k:05d}"
         added.append(cid)
         kept.append({**dict.fromkeys(fields, ""), "customer_id": cid, "first_name": given_name, "last_name": family,
-                     "email": f"{given_name.lower()}.{family.lower()}@example.org", "lifetime_spend": "12.00",
+                     "email": f"{given_name.lower()}.{family.lower()}@example.org", "lifetime_spend": "12,00",
                      "last_order": "2026-11-15", "marketing_opt_in": "N"})
     for k, source_row in enumerate(usable[400:403]):
         cid = f"W8{k:05d}"
         added.append(cid)
-        kept.append({**source_row, "customer_id": cid, "lifetime_spend": "5.00", "last_order": "2026-11-25"})
+        kept.append({**source_row, "customer_id": cid, "lifetime_spend": "5,00", "last_order": "2026-11-25"})
     with path.open("w", encoding="utf-8", newline="") as handle:
-        writer = csv.DictWriter(handle, fieldnames=fields, lineterminator="\n")
+        writer = csv.DictWriter(handle, fieldnames=fields, lineterminator="\n", delimiter=";")
         writer.writeheader()
         writer.writerows(kept)
     return {"removed": removed, "changed": spend_changed + email_changed, "added": added}

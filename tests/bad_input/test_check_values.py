@@ -13,11 +13,11 @@ def test_one_unreadable_amount_is_a_finding_not_a_type_error(workspace: Path) ->
     """Reproducer: one demo webshop amount replaced by 'n/a' (TypeError in the redundancy check)."""
     data = workspace / "demo_sources" / "webshop.csv"
     lines = data.read_text(encoding="utf-8").split("\n")
-    header = lines[0].split(",")
+    header = lines[0].split(";")  # the shop writes semicolon-separated files
     spend = header.index("lifetime_spend")
-    cells = lines[1].split(",")
+    cells = lines[1].split(";")
     cells[spend] = "n/a"
-    lines[1] = ",".join(cells)
+    lines[1] = ";".join(cells)
     data.write_text("\n".join(lines), encoding="utf-8")
     report = check_workspace(workspace, use_last_run=False)
     assert report.exit_code() == EXIT_WARNINGS
