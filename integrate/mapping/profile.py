@@ -51,6 +51,8 @@ class ColumnProfile:
     symbols: str = ""  # currency symbols seen in the values
     number_format: str | None = None  # a local number format the values are written in ('1.234,56')
     codes: list[str] = field(default_factory=list)  # every distinct value, when there are at most 12
+    code_counts: dict[str, int] = field(default_factory=dict)  # rows holding each of ``codes``, same order
+    decimals: dict[int, float] = field(default_factory=dict)  # decimal places (3 = three or more) -> share
     samples: list[str] = field(default_factory=list)  # up to 50 distinct values, most frequent first
 
     @property
@@ -109,7 +111,9 @@ def profile_column(values: pd.Series) -> ColumnProfile:
     if distinct.empty:
         return profile
     if len(counts) <= 12:
-        profile.codes = [str(v) for v in counts.sort_values(ascending=False, kind="mergesort").index]
+        ranked = counts.sort_values(ascending=False, kind="mergesort")
+        profile.codes = [str(v) for v in ranked.index]
+        profile.code_counts = {str(v): int(n) for v, n in ranked.items()}
     profile.samples = [str(v) for v in counts.sort_values(ascending=False, kind="mergesort").index[:50]]
     s = distinct.str
     digits = s.replace(r"\D", "", regex=True).str.len()
@@ -131,7 +135,10 @@ def profile_column(values: pd.Series) -> ColumnProfile:
                 amounts, profile.number_format = local, fmt
     # digits split by spaces are a phone number or a code, not an amount
     spaced = s.contains(r"\d\s+\d") & (not (profile.number_format or "").startswith("1 "))
-    profile.shares["number"] = _share(distinct, weights, amounts.notna() & ~spaced)
+    read = amounts.notna() & ~spaced
+    profile.shares["number"] = _share(distinct, weights, read)
+    if read.any():
+        profile.decimals = _decimal_shares(distinct[read], weights[read], profile.number_format)
     if amounts.notna().any():
         numbers = amounts.repeat(weights.astype(int).to_numpy()).dropna()
         profile.numbers = (float(numbers.min()), float(numbers.median()), float(numbers.max()))
@@ -140,6 +147,13 @@ def profile_column(values: pd.Series) -> ColumnProfile:
     if has_digits >= 0.5 and (profile.shares["number"] < 0.9 or s.fullmatch(r"\d{4}").all()):
         profile.date_formats = _date_shares(distinct.head(_DATE_SAMPLE), weights.head(_DATE_SAMPLE))
     return profile
+
+
+def _decimal_shares(distinct: pd.Series, weights: pd.Series, number_format: str | None) -> dict[int, float]:
+    """Share of the values by decimal places written (3 stands for three or more)."""
+    plain = to_plain_numbers(distinct, number_format).astype("string") if number_format else distinct.astype("string")
+    places = plain.str.extract(r"\.(\d+)\D*$", expand=False).str.len().fillna(0).clip(upper=3).astype(int)
+    return {int(n): _share(distinct, weights, places.eq(n).to_numpy()) for n in sorted(places.unique())}
 
 
 def _date_shares(distinct: pd.Series, weights: pd.Series) -> dict[str, float]:

@@ -37,6 +37,29 @@ from .units import resolve_unit, unit_registry
 MAP_AT = 0.5  # confidence from which a column is mapped rather than left for a decision
 _SYMBOLS = {"€": "EUR", "£": "GBP", "¥": "JPY", "$": "USD"}
 _COMMON_UNITS = ("millimeter", "centimeter", "meter", "inch", "foot", "gram", "kilogram", "pound", "stone")
+CODES_COVER = 0.95  # share of the non-empty rows a value map must cover to speak for a code field alone
+GENDER_HEADER_AT = 0.7  # header likeness from which a column is taken to say it holds the gender
+_HELD_AT = 0.45  # a held-back candidate's confidence: below MAP_AT, still named as the closest field
+# Header words of money columns, after normalise_header (common wording in English, German, French,
+# Spanish, Dutch and Italian exports); a word ending in one of the stems counts too (Jahresbeitrag).
+_MONEY_WORDS = frozenset({
+    "spend", "spent", "spending", "paid", "payment", "payments", "price", "prices", "cost", "costs", "fee", "fees",
+    "amount", "amounts", "charge", "charges", "charged", "revenue", "sales", "turnover", "deposit", "deposits",
+    "dues", "subscription", "kosten", "umsatz", "kaution", "montant", "paiement", "prix", "cout", "couts",
+    "cotisation", "frais", "tarif", "depense", "depenses", "importe", "pago", "pagos", "precio", "coste", "costo",
+    "cuota", "gasto", "gastos", "tarifa", "deposito", "betaling", "contributie", "borg", "importo", "prezzo"})
+_MONEY_STEMS = ("betrag", "beitrag", "zahlung", "gebuhr", "preis", "bedrag", "bijdrage", "prijs")
+# Words naming a sum of anything (visits, points): money only when cents or a currency symbol show it.
+_WEAK_MONEY_WORDS = frozenset({"total", "totals", "balance", "sum", "summe", "gesamt", "solde", "saldo"})
+_MONEY_HEADER = 0.6  # header likeness a money word gives a money field
+# Yes/no answers as exports write them: a flag, never a code describing a person.
+_FLAG_VALUES = frozenset({"y", "n", "yes", "no", "true", "false", "j", "ja", "nein", "oui", "non", "si", "sí",
+                          "nee", "x"})
+# Honorifics found in title columns and not in gender ones, and header words of a title column.
+_TITLE_VALUES = frozenset({"dr", "prof", "rev", "revd", "capt", "cllr", "sir", "dame", "lord", "lady"})
+_TITLE_HEADERS = frozenset({"title", "titel", "titre", "titulo", "honorific", "prefix"})
+# Words of a canonical field name that give it the gender code set (F, M, X) that value maps draft onto.
+_GENDER_FIELD_WORDS = frozenset({"gender", "sex", "geschlecht", "sexe", "genre", "sexo", "geslacht"})
 
 
 @dataclass
@@ -52,6 +75,7 @@ class ColumnSuggestion:
     options: dict[str, object] = _default(default_factory=dict)  # unit, currency, format, pivot, split...
     todos: list[str] = _default(default_factory=list)
     alternatives: list[tuple[str, float]] = _default(default_factory=list)
+    held: dict[str, str] = _default(default_factory=dict)  # field -> why the column was not proposed for it
 
 
 @dataclass
@@ -136,28 +160,123 @@ def _unit_from_values(profile: ColumnProfile, spec: CanonicalField) -> tuple[str
                   f"{lo:.4g} to {hi:.4g} {spec.unit}, inside the plausible range [{low:g}, {high:g}]")
 
 
-def _score(profile: ColumnProfile, name: str, spec: CanonicalField, phrases: set[str]) -> tuple[float, list[str]]:
+def _money_header(profile: ColumnProfile, h: float, best_phrase: str) -> tuple[float | None, str | None]:
+    """The header likeness for a money field (None: the values are no amounts), and the money word that lifts it.
+
+    A money word in the header (spend, Beitrag, importe ...) lifts the likeness to _MONEY_HEADER when
+    the values look like amounts. Without a currency named in the header or the values, amounts have
+    at most two decimals; 'total' and 'balance' also count visits and points, so alone they need cents.
+    """
+    words = normalise_header(profile.name).split()
+    strong = next((w for w in words if w in _MONEY_WORDS or w.endswith(_MONEY_STEMS)), None)
+    weak = next((w for w in words if w in _WEAK_MONEY_WORDS), None)
+    named = bool(profile.symbols or header_currency(profile.name))
+    if not named and sum(share for places, share in profile.decimals.items() if places > 2) > 1 - CODES_COVER:
+        return None, None  # three decimals and more: a measure or a rate, not an amount
+    if not strong and (weak or best_phrase in _WEAK_MONEY_WORDS) and not named \
+            and profile.decimals.get(2, 0.0) < 0.3:
+        return None, None
+    if h >= _MONEY_HEADER or not (strong or weak) or profile.share("number") < 0.9 \
+            or profile.best_date_format()[1] >= 0.9:
+        return h, None
+    return _MONEY_HEADER + 0.1 * h, strong or weak  # the fuzzy likeness only ranks the money fields
+
+
+def _code_map(profile: ColumnProfile) -> tuple[dict[str, str | None], float, list[str]] | None:
+    """A value map onto F / M / X of the codes holding nearly all rows, its cover, and the rarest others.
+
+    The others (mapped to null) are left out one by one, rarest first, while they hold at most
+    1 - CODES_COVER of the rows.
+    """
+    codes, present = list(profile.code_counts), sum(profile.code_counts.values())
+    dropped = 0
+    for keep in range(len(codes), 0, -1):
+        if dropped > (1 - CODES_COVER) * present:
+            break
+        mapped = code_values(profile, codes[:keep])
+        if mapped is not None:
+            return {**mapped, **dict.fromkeys(codes[keep:])}, 1 - dropped / present, codes[keep:]
+        dropped += profile.code_counts[codes[keep - 1]]
+    return None
+
+
+def _is_title_column(profile: ColumnProfile) -> bool:
+    """A few short codes headed 'title', or holding an honorific no gender column holds (Dr, Prof)."""
+    said = set(normalise_header(profile.name).split()) & _TITLE_HEADERS
+    short = bool(profile.codes) and all(len(_fold_code(c)) <= 5 for c in profile.codes)
+    return short and (bool(said) or any(_fold_code(c) in _TITLE_VALUES for c in profile.codes))
+
+
+def _fold_code(value: str) -> str:
+    return value.strip().lower().rstrip(".")
+
+
+def _is_gender_field(name: str) -> bool:
+    return bool(set(normalise_header(name).split()) & _GENDER_FIELD_WORDS)
+
+
+def _gender_gate(profile: ColumnProfile, h: float) -> tuple[float | None, str | None]:
+    """Whether a column may feed a gender-coded field: (confidence floor, None) if so, (None, why not) if not.
+
+    Header or values must say it: a header like the field's, or values that a value map turns into
+    at least two of F / M / X across nearly all rows (number codes such as 1 / 2 only with such a header).
+    """
+    folded = {_fold_code(c) for c in profile.codes}
+    if profile.codes and folded <= _FLAG_VALUES:
+        return None, "its values are a yes/no flag, not a gender"
+    if _is_title_column(profile):
+        return None, ("a title is not a gender record; it could be value-mapped onto gender (F, M, X; titles "
+                      "such as Dr to null) if you want")
+    if h >= GENDER_HEADER_AT:
+        return 0.0, None
+    found = _code_map(profile)
+    if found is not None and not any(c.isdigit() for c in found[0]) and \
+            len({v for v in found[0].values() if v}) >= 2:
+        return 0.6 * found[1], None  # such values speak for themselves
+    return None, "neither its header nor its values say gender (no value map covers them)"
+
+
+def _score(profile: ColumnProfile, name: str, spec: CanonicalField,
+           phrases: set[str]) -> tuple[float, list[str], str | None]:
+    """Confidence that the column feeds the field, the reasons, and why it is held back (below MAP_AT) if it is."""
     header = normalise_header(profile.name)
     best_phrase = max(phrases, key=lambda p: _similarity(header, p), default="")
     h = _similarity(header, best_phrase)
     v = 0.0 if vetoed(profile, spec) else _value_fit(profile, spec)
     if v == 0.0:
-        return 0.0, []
+        return 0.0, [], None
+    money_word = None
+    if spec.type == "money":
+        lifted, money_word = _money_header(profile, h, best_phrase)
+        if lifted is None:
+            return 0.0, [], None
+        h = lifted
     if spec.type in ("quantity", "money", "date") and h < 0.5 and not (spec.type == "money" and profile.symbols):
         # numbers and dates look alike across many fields: without a word of the header for it, do not guess
-        return 0.0, []
+        return 0.0, [], None
     confidence = 0.6 * h + 0.4 * v
+    if spec.type == "category" and _is_gender_field(name):
+        floor, held = _gender_gate(profile, h)
+        if floor is None and confidence < MAP_AT:
+            return confidence, [], None  # a weak candidate anyway: nothing held back to explain
+        if floor is None:
+            return _HELD_AT, [], held
+        confidence = max(confidence, floor)
+    elif spec.type == "category" and h < 0.5:
+        return 0.0, [], None  # a code set the schema does not spell out: only the header can tie a column to it
     if spec.type in ("email", "postcode") and v >= 0.9:
         confidence = max(confidence, 0.6 * v)  # such values speak for themselves
     reasons = []
-    if h >= 0.5:
+    if money_word:
+        reasons.append(f"the header word '{money_word}' names money and the values look like amounts")
+    elif h >= 0.5:
         reasons.append(f"header like '{best_phrase}' ({h:.2f})")
     kind = {"person_name": "name", "text": "street"}.get(spec.type, spec.type)
     share = profile.share(kind) if kind in profile.shares else v
     if spec.type == "date":
         share = profile.best_date_format()[1]
     reasons.append(f"{share:.0%} of values fit type {spec.type}")
-    return confidence, reasons
+    return confidence, reasons, None
 
 
 def _record_id(profiles: list[ColumnProfile]) -> tuple[ColumnProfile, list[str]]:
@@ -203,12 +322,16 @@ def _options(s: ColumnSuggestion, spec: CanonicalField, canonical: CanonicalSche
         else:
             s.options["unit"] = spec.unit
             s.todos.append(f"unit not known: set the unit the values are in (canonical: {spec.unit})")
-    elif spec.type == "category":
-        mapped = code_values(p, p.codes)
-        if mapped is not None:
-            s.options["values"] = mapped
+    elif spec.type == "category" and _is_gender_field(str(s.field)):
+        found = _code_map(p)
+        if found is not None:
+            s.options["values"] = found[0]
             s.reasons.append("codes drafted onto F / M / X")
             s.todos.append("check the value map (codes mapped to null are dropped)")
+            if found[2]:
+                s.todos.append(f"{', '.join(map(repr, found[2]))}: no known code (rare), mapped to null; correct it")
+        else:
+            s.todos.append("its values are no known codes: write a value map onto F / M / X")
     elif spec.type == "money":
         said = header_currency(p.name) or (_SYMBOLS.get(p.symbols) if len(p.symbols) == 1 else None)
         codes = [q for q in profiles if q.share("code") >= 0.9 and q.distinct <= 50
@@ -250,7 +373,9 @@ def match_columns(profiles: list[ColumnProfile], canonical: CanonicalSchema,
         if p.name == id_profile.name or normalise_header(p.name) in NAME_PHRASES:
             continue  # whole-name columns are split below, or left for a decision
         for name, spec in canonical.fields.items():
-            confidence, reasons = _score(p, name, spec, phrases[name])
+            confidence, reasons, held = _score(p, name, spec, phrases[name])
+            if held:
+                suggestions[p.name].held[name] = held
             if confidence > 0:
                 scored.append((confidence, p.name, name, reasons))
     scored.sort(key=lambda t: (-t[0], t[1], t[2]))
@@ -268,10 +393,12 @@ def match_columns(profiles: list[ColumnProfile], canonical: CanonicalSchema,
     _name_split(suggestions, canonical, taken)
     _address_split(suggestions, canonical, taken)
     for s in suggestions.values():
-        s.alternatives = [a for a in s.alternatives if a[0] != s.field][:2]
+        held_back = s.held if s.role != "ignore" else {}  # named only as the closest field of an ignored column
+        s.alternatives = [a for a in s.alternatives if a[0] != s.field and a[0] not in held_back][:2]
         if s.role == "ignore" and not s.todos:
             best = f" (closest: {s.alternatives[0][0]}, {s.alternatives[0][1]:.2f})" if s.alternatives else ""
             s.todos.append(f"decide: no canonical field fits well{best}; map it or keep it ignored")
+            s.todos += [f"not proposed for {name}: {why}" for name, why in s.held.items()]
     return [suggestions[p.name] for p in profiles]
 
 
