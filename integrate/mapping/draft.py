@@ -116,8 +116,8 @@ def _read_lines(spec: ReadSpec) -> list[str]:
 
 
 def render_mapping(source: str, spec: ReadSpec, as_of: dt.date, columns: list[ColumnSuggestion],
-                   shown_file: str) -> str:
-    """The draft mapping file's text."""
+                   shown_file: str, record_date: str | None = None) -> str:
+    """The draft mapping file's text (``record_date``: the column that dates each record, if any)."""
     record_id = next(s for s in columns if s.role == "record_id")
     out = [MODELINE.format(file=SCHEMA_FILES["source"]),
            f"# Drafted by `integrate suggest` from {shown_file}. Check every TODO, then run `integrate check`.",
@@ -125,6 +125,9 @@ def render_mapping(source: str, spec: ReadSpec, as_of: dt.date, columns: list[Co
            f"record_id: {_key(record_id.column)}   # {'; '.join(record_id.reasons + record_id.todos)}",
            f"as_of: {as_of.isoformat()}   # TODO: the date the export was taken (the file's date is used)",
            "trust: 5   # TODO: trust rank against the other sources (1 = most trusted)",
+           *([f"record_date: {_key(record_date)}   # TODO: confirm it dates each record (the newest wins "
+              "'most_recent'; contact details differing between records years apart count less)"]
+             if record_date else []),
            "columns:"]
     for s in columns:
         out += _comment(f"{s.column!r}: {s.profile.summary()}", "  ")

@@ -92,10 +92,18 @@ blocking:
     keys: [birth_date]
   - name: family_sound_birth_year
     keys: [family_name:soundex, birth_date:year]
+  - name: given_sound_birth_year
+    keys: [given_name:soundex, birth_date:year]
   - name: given_root_family_sound
     keys: [given_name:root, family_name:soundex]
   - name: postcode_family_start
     keys: [postcode, family_name:first2]
+  - name: name_sounds           # both names misspelt alike, or written the other way round
+    keys: [given_name+family_name:sounds]
+  - name: family_given_initial  # the given name changed (a nickname, a second name)
+    keys: [family_name, given_name:first1]
+  - name: given_family_initial  # the family name changed or misspelt
+    keys: [given_name, family_name:first1]
   - name: names_any_order
     keys: [given_name+family_name:roots]
 

@@ -30,36 +30,15 @@ from .meanings import header_currency, header_unit
 from .money import is_currency
 from .profile import TWO_DIGIT_PIVOT, ColumnProfile, profile_frame
 from .spec import CanonicalField, CanonicalSchema, SourceMapping
-from .suggest_rules import code_values, pricing_date, vetoed
+from .suggest_codes import code_map, gender_gate, is_gender_field
+from .suggest_rules import address_layout, code_values, money_header, pricing_date, record_date_column, vetoed
 from .suggest_words import CONCEPTS, ID_WORDS, NAME_PHRASES, normalise_header
 from .units import resolve_unit, unit_registry
 
 MAP_AT = 0.5  # confidence from which a column is mapped rather than left for a decision
 _SYMBOLS = {"€": "EUR", "£": "GBP", "¥": "JPY", "$": "USD"}
 _COMMON_UNITS = ("millimeter", "centimeter", "meter", "inch", "foot", "gram", "kilogram", "pound", "stone")
-CODES_COVER = 0.95  # share of the non-empty rows a value map must cover to speak for a code field alone
-GENDER_HEADER_AT = 0.7  # header likeness from which a column is taken to say it holds the gender
 _HELD_AT = 0.45  # a held-back candidate's confidence: below MAP_AT, still named as the closest field
-# Header words of money columns, after normalise_header (common wording in English, German, French,
-# Spanish, Dutch and Italian exports); a word ending in one of the stems counts too (Jahresbeitrag).
-_MONEY_WORDS = frozenset({
-    "spend", "spent", "spending", "paid", "payment", "payments", "price", "prices", "cost", "costs", "fee", "fees",
-    "amount", "amounts", "charge", "charges", "charged", "revenue", "sales", "turnover", "deposit", "deposits",
-    "dues", "subscription", "kosten", "umsatz", "kaution", "montant", "paiement", "prix", "cout", "couts",
-    "cotisation", "frais", "tarif", "depense", "depenses", "importe", "pago", "pagos", "precio", "coste", "costo",
-    "cuota", "gasto", "gastos", "tarifa", "deposito", "betaling", "contributie", "borg", "importo", "prezzo"})
-_MONEY_STEMS = ("betrag", "beitrag", "zahlung", "gebuhr", "preis", "bedrag", "bijdrage", "prijs")
-# Words naming a sum of anything (visits, points): money only when cents or a currency symbol show it.
-_WEAK_MONEY_WORDS = frozenset({"total", "totals", "balance", "sum", "summe", "gesamt", "solde", "saldo"})
-_MONEY_HEADER = 0.6  # header likeness a money word gives a money field
-# Yes/no answers as exports write them: a flag, never a code describing a person.
-_FLAG_VALUES = frozenset({"y", "n", "yes", "no", "true", "false", "j", "ja", "nein", "oui", "non", "si", "sí",
-                          "nee", "x"})
-# Honorifics found in title columns and not in gender ones, and header words of a title column.
-_TITLE_VALUES = frozenset({"dr", "prof", "rev", "revd", "capt", "cllr", "sir", "dame", "lord", "lady"})
-_TITLE_HEADERS = frozenset({"title", "titel", "titre", "titulo", "honorific", "prefix"})
-# Words of a canonical field name that give it the gender code set (F, M, X) that value maps draft onto.
-_GENDER_FIELD_WORDS = frozenset({"gender", "sex", "geschlecht", "sexe", "genre", "sexo", "geslacht"})
 
 
 @dataclass
@@ -160,82 +139,6 @@ def _unit_from_values(profile: ColumnProfile, spec: CanonicalField) -> tuple[str
                   f"{lo:.4g} to {hi:.4g} {spec.unit}, inside the plausible range [{low:g}, {high:g}]")
 
 
-def _money_header(profile: ColumnProfile, h: float, best_phrase: str) -> tuple[float | None, str | None]:
-    """The header likeness for a money field (None: the values are no amounts), and the money word that lifts it.
-
-    A money word in the header (spend, Beitrag, importe ...) lifts the likeness to _MONEY_HEADER when
-    the values look like amounts. Without a currency named in the header or the values, amounts have
-    at most two decimals; 'total' and 'balance' also count visits and points, so alone they need cents.
-    """
-    words = normalise_header(profile.name).split()
-    strong = next((w for w in words if w in _MONEY_WORDS or w.endswith(_MONEY_STEMS)), None)
-    weak = next((w for w in words if w in _WEAK_MONEY_WORDS), None)
-    named = bool(profile.symbols or header_currency(profile.name))
-    if not named and sum(share for places, share in profile.decimals.items() if places > 2) > 1 - CODES_COVER:
-        return None, None  # three decimals and more: a measure or a rate, not an amount
-    if not strong and (weak or best_phrase in _WEAK_MONEY_WORDS) and not named \
-            and profile.decimals.get(2, 0.0) < 0.3:
-        return None, None
-    if h >= _MONEY_HEADER or not (strong or weak) or profile.share("number") < 0.9 \
-            or profile.best_date_format()[1] >= 0.9:
-        return h, None
-    return _MONEY_HEADER + 0.1 * h, strong or weak  # the fuzzy likeness only ranks the money fields
-
-
-def _code_map(profile: ColumnProfile) -> tuple[dict[str, str | None], float, list[str]] | None:
-    """A value map onto F / M / X of the codes holding nearly all rows, its cover, and the rarest others.
-
-    The others (mapped to null) are left out one by one, rarest first, while they hold at most
-    1 - CODES_COVER of the rows.
-    """
-    codes, present = list(profile.code_counts), sum(profile.code_counts.values())
-    dropped = 0
-    for keep in range(len(codes), 0, -1):
-        if dropped > (1 - CODES_COVER) * present:
-            break
-        mapped = code_values(profile, codes[:keep])
-        if mapped is not None:
-            return {**mapped, **dict.fromkeys(codes[keep:])}, 1 - dropped / present, codes[keep:]
-        dropped += profile.code_counts[codes[keep - 1]]
-    return None
-
-
-def _is_title_column(profile: ColumnProfile) -> bool:
-    """A few short codes headed 'title', or holding an honorific no gender column holds (Dr, Prof)."""
-    said = set(normalise_header(profile.name).split()) & _TITLE_HEADERS
-    short = bool(profile.codes) and all(len(_fold_code(c)) <= 5 for c in profile.codes)
-    return short and (bool(said) or any(_fold_code(c) in _TITLE_VALUES for c in profile.codes))
-
-
-def _fold_code(value: str) -> str:
-    return value.strip().lower().rstrip(".")
-
-
-def _is_gender_field(name: str) -> bool:
-    return bool(set(normalise_header(name).split()) & _GENDER_FIELD_WORDS)
-
-
-def _gender_gate(profile: ColumnProfile, h: float) -> tuple[float | None, str | None]:
-    """Whether a column may feed a gender-coded field: (confidence floor, None) if so, (None, why not) if not.
-
-    Header or values must say it: a header like the field's, or values that a value map turns into
-    at least two of F / M / X across nearly all rows (number codes such as 1 / 2 only with such a header).
-    """
-    folded = {_fold_code(c) for c in profile.codes}
-    if profile.codes and folded <= _FLAG_VALUES:
-        return None, "its values are a yes/no flag, not a gender"
-    if _is_title_column(profile):
-        return None, ("a title is not a gender record; it could be value-mapped onto gender (F, M, X; titles "
-                      "such as Dr to null) if you want")
-    if h >= GENDER_HEADER_AT:
-        return 0.0, None
-    found = _code_map(profile)
-    if found is not None and not any(c.isdigit() for c in found[0]) and \
-            len({v for v in found[0].values() if v}) >= 2:
-        return 0.6 * found[1], None  # such values speak for themselves
-    return None, "neither its header nor its values say gender (no value map covers them)"
-
-
 def _score(profile: ColumnProfile, name: str, spec: CanonicalField,
            phrases: set[str]) -> tuple[float, list[str], str | None]:
     """Confidence that the column feeds the field, the reasons, and why it is held back (below MAP_AT) if it is."""
@@ -247,7 +150,7 @@ def _score(profile: ColumnProfile, name: str, spec: CanonicalField,
         return 0.0, [], None
     money_word = None
     if spec.type == "money":
-        lifted, money_word = _money_header(profile, h, best_phrase)
+        lifted, money_word = money_header(profile, h, best_phrase)
         if lifted is None:
             return 0.0, [], None
         h = lifted
@@ -255,8 +158,8 @@ def _score(profile: ColumnProfile, name: str, spec: CanonicalField,
         # numbers and dates look alike across many fields: without a word of the header for it, do not guess
         return 0.0, [], None
     confidence = 0.6 * h + 0.4 * v
-    if spec.type == "category" and _is_gender_field(name):
-        floor, held = _gender_gate(profile, h)
+    if spec.type == "category" and is_gender_field(name):
+        floor, held = gender_gate(profile, h)
         if floor is None and confidence < MAP_AT:
             return confidence, [], None  # a weak candidate anyway: nothing held back to explain
         if floor is None:
@@ -295,8 +198,10 @@ def _options(s: ColumnSuggestion, spec: CanonicalField, canonical: CanonicalSche
     p = s.profile
     if spec.type == "date":
         fmt, share, tied = p.best_date_format()
-        if fmt and fmt != "iso":
+        if fmt:
             s.options["format"] = fmt
+        if fmt == "iso":
+            tied = []  # the other layouts tie only because they accept ISO dates too
         if "%y" in (fmt or ""):
             s.options["pivot"] = TWO_DIGIT_PIVOT
             s.todos.append(f"two-digit years: {TWO_DIGIT_PIVOT} reads 00-{TWO_DIGIT_PIVOT - 1} as 20yy, "
@@ -322,8 +227,8 @@ def _options(s: ColumnSuggestion, spec: CanonicalField, canonical: CanonicalSche
         else:
             s.options["unit"] = spec.unit
             s.todos.append(f"unit not known: set the unit the values are in (canonical: {spec.unit})")
-    elif spec.type == "category" and _is_gender_field(str(s.field)):
-        found = _code_map(p)
+    elif spec.type == "category" and is_gender_field(str(s.field)):
+        found = code_map(p)
         if found is not None:
             s.options["values"] = found[0]
             s.reasons.append("codes drafted onto F / M / X")
@@ -342,11 +247,16 @@ def _options(s: ColumnSuggestion, spec: CanonicalField, canonical: CanonicalSche
         elif codes:
             s.options["currency_column"] = codes[0].name
             s.reasons.append(f"'{codes[0].name}' holds currency codes")
+            if codes[0].empty:  # blank cells need a fallback, or their amounts are unreadable
+                s.options["currency"] = canonical.base_currency
+                s.todos.append(f"{codes[0].empty_rate:.0%} of '{codes[0].name}' is blank: 'currency' is the code "
+                               f"of those rows (drafted as the base currency {canonical.base_currency}); confirm")
         else:
             s.options["currency"] = canonical.base_currency
             s.todos.append(f"currency not known: set the ISO 4217 code (base currency {canonical.base_currency})")
+        unknown = not said and not codes  # the user may yet set another currency: keep its pricing date ready
         foreign = s.options.get("currency", canonical.base_currency) != canonical.base_currency
-        if foreign or "currency_column" in s.options:
+        if foreign or unknown or "currency_column" in s.options:
             dated = pricing_date(profiles, p, taken)
             if dated:
                 s.options["priced_on"] = dated
@@ -440,10 +350,14 @@ def _address_split(suggestions: dict[str, ColumnSuggestion], canonical: Canonica
         wanted = {part: name for part, name in fields.items() if name}
         if "street" not in wanted:
             continue
+        layout, fits = address_layout(s.profile.samples, set(wanted))
+        if layout != "auto":  # a layout in words keeps commas inside the street ('12, Mill Lane, TC1 4AB')
+            wanted = {part: name for part, name in wanted.items() if part in layout}
         s.role, s.field, s.confidence = "address", None, 0.7
-        s.options = {"address_format": "auto", "address_fields": wanted}
+        s.options = {"address_format": layout, "address_fields": wanted}
         s.reasons = [f"{share:.0%} of values are whole addresses with a postcode"]
-        s.todos = ["check the split: street before the first comma, town last, postcode by its shape"]
+        s.todos = ["check the split: street before the first comma, town last, postcode by its shape"
+                   if layout == "auto" else f"check the split: the layout '{layout}' reads {fits:.0%} of the values"]
         taken.update(wanted.values())
         return
 
@@ -478,7 +392,9 @@ def suggest_mapping(source_file: str | Path, *, workspace: str | Path = ".", nam
                 known.setdefault(cmap.field, set()).add(column)
     columns = match_columns(profiles, ws.canonical, known)
     as_of = today or dt.date.fromtimestamp(Path(source_file).stat().st_mtime)
-    text = render_mapping(source, spec, as_of, columns, ws.display(Path(source_file)))
+    record_id = next(s.column for s in columns if s.role == "record_id")
+    dated = record_date_column(profiles, {s.column for s in columns if s.field and "birth" in s.field}, record_id)
+    text = render_mapping(source, spec, as_of, columns, ws.display(Path(source_file)), record_date=dated)
     _write_checked(target, text, ws.canonical)
     return DraftedMapping(target, text, source, columns)
 

@@ -186,3 +186,46 @@ def test_category_fields_without_a_code_set_need_their_header(tmp_path: Path) ->
     drafted = _draft(root, {"Title": ["Mr", "Ms", "Dr"], "Status": ["active", "lapsed"]})
     assert drafted["Title"].field == "title" and "values" not in drafted["Title"].options  # no F / M / X map
     assert drafted["Status"].field == "status"
+
+
+# Invented streets and postcodes (UK-style shapes in the invented TC area).
+STREETS = ["4 Mill Lane", "12, Fen Row", "9 Heron Close", "31 Alder Way", "7, Quarry Road", "15 Osier Walk"]
+
+
+def test_an_address_cell_gets_the_layout_that_reads_its_values(fresh: Path) -> None:
+    # 'street, postcode' keeps the comma some clerks type after the house number; 'auto' would take
+    # '12' for the street and 'Fen Row' for the town
+    cells = [f"{street}, TC{1 + k % 8} {k % 9}AB" for k, street in enumerate(STREETS * 2)]
+    drafted = _draft(fresh, {"first_name": GIVEN, "surname": FAMILY, "Address": cells})
+    assert drafted["Address"].role == "address"
+    assert drafted["Address"].options["address_format"] == "street, postcode"
+    assert drafted["Address"].options["address_fields"] == {"street": "street", "postcode": "postcode"}
+    written = _written(fresh)["Address"]
+    assert written.address_format == "street, postcode"
+    with_town = [f"{street}, Tallow, TC{1 + k % 8} {k % 9}AB" for k, street in enumerate(STREETS * 2)]
+    drafted = _draft(fresh, {"first_name": GIVEN, "surname": FAMILY, "Address": with_town}, name="towns")
+    assert drafted["Address"].options["address_format"] == "street, town, postcode"
+
+
+def test_a_currency_column_with_blanks_gets_a_fallback_currency(fresh: Path) -> None:
+    drafted = _draft(fresh, {"deposit_amount": ["25.00", "40.00", "12.50"], "deposit_currency": ["EUR", "", "USD"],
+                             "paid_on": ["2026-01-05", "2026-02-10", "2026-03-15"]})
+    s = drafted["deposit_amount"]
+    assert s.field == "amount_paid" and s.options["currency_column"] == "deposit_currency"
+    assert s.options["currency"] == "GBP" and any("blank" in t for t in s.todos)
+    assert s.options["priced_on"] == "paid_on"
+
+
+def test_an_amount_of_unknown_currency_keeps_its_pricing_date_ready(fresh: Path) -> None:
+    drafted = _draft(fresh, {"total_spent": ["83,60", "182,90", "2.109,19"], "last_order": ["2026-01-05", "2026-02-10",
+                                                                                             "2026-03-15"]})
+    s = drafted["total_spent"]
+    assert s.field == "amount_paid" and s.options["number_format"] == "1.234,56"
+    assert any("currency not known" in t for t in s.todos) and s.options["priced_on"] == "last_order"
+
+
+def test_iso_dates_are_drafted_as_iso_without_a_question(fresh: Path) -> None:
+    drafted = _draft(fresh, {"first_name": GIVEN, "date_of_birth": ["1980-04-01", "1975-12-30", "2001-06-09"]})
+    s = drafted["date_of_birth"]
+    assert s.field == "birth_date" and s.options["format"] == "iso"
+    assert not any("alike" in t for t in s.todos)  # other layouts read ISO dates too; that is no ambiguity

@@ -79,7 +79,8 @@ def test_value_maps_units_formats_and_pricing_dates(drafted: dict) -> None:
     assert fr["Montant"].options["number_format"] == "1 234,56"
     assert en["Height (in)"].options["unit"] == "in" and en["Weight (lb)"].options["unit"] == "lb"
     assert en["Fee £"].options["currency"] == "GBP" and en["Fee £"].options["priced_on"] == "Paid on"
-    assert en["Address"].options["address_format"] == "auto"
+    # '12 Reed Row, Tallow, TC3 4AB': the layout in words that reads every value
+    assert en["Address"].options["address_format"] == "street, town, postcode"
     assert nl["gewicht (kg)"].options["number_format"] == "1.234,56"
 
 
