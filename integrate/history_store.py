@@ -76,14 +76,35 @@ def _data_hash(ws: Workspace, entry: Any) -> str | None:
     return file_hash(path) if path is not None and path.is_file() else None
 
 
-def record_inputs(ws: Workspace, run_id: int, mapping_hashes: dict[str, str]) -> None:
+class SourceProfiles:
+    """Profiles of the sources a run reads, taken from each frame as it is read (no second read).
+
+    Called with each source entry and its frame as read; a data file profiled before (same
+    SHA-256) reuses its stored profile. ``record_inputs`` stores what was gathered.
+    """
+
+    def __init__(self, ws: Workspace) -> None:
+        self.ws = ws
+        self.engine = _engine(ws.root, create=True)
+        self.found: dict[str, tuple[str | None, dict[str, dict[str, Any]]]] = {}
+
+    def __call__(self, entry: Any, raw: pd.DataFrame) -> None:
+        digest = _data_hash(self.ws, entry)
+        columns = _stored_for(self.engine, entry.mapping, digest) if digest and self.engine is not None else None
+        self.found[entry.mapping.source] = (digest, columns if columns is not None
+                                            else snapshot_source(raw, entry.mapping))
+
+
+def record_inputs(ws: Workspace, run_id: int, mapping_hashes: dict[str, str],
+                  profiles: SourceProfiles | None = None) -> None:
     """Store the text of the mapping files a run used and a profile of every source it read.
 
-    Called once per written run, after the state store recorded it. Sources are read again
-    here (profiling is kept out of the run's own stages).
+    Called once per written run, after the state store recorded it. ``profiles`` holds the
+    profiles taken while the run read its sources; a source missing there is read again.
     """
     engine = _engine(ws.root, create=True)
     assert engine is not None
+    gathered = profiles.found if profiles is not None else {}
     texts: dict[str, str] = {}
     for shown in mapping_hashes:
         data = (ws.root / shown).read_bytes() if not Path(shown).is_absolute() else Path(shown).read_bytes()
@@ -91,8 +112,11 @@ def record_inputs(ws: Workspace, run_id: int, mapping_hashes: dict[str, str]) ->
         texts[digest] = data.decode("utf-8", errors="replace")
     rows = []
     for entry in ws.sources:
-        digest = _data_hash(ws, entry)
-        columns = _stored_for(engine, entry.mapping, digest) if digest else None
+        if entry.mapping.source in gathered:
+            digest, columns = gathered[entry.mapping.source]
+        else:
+            digest = _data_hash(ws, entry)
+            columns = _stored_for(engine, entry.mapping, digest) if digest else None
         if columns is None:
             raw = read_source(entry.mapping.read, ws.root, name=entry.mapping.source)
             columns = snapshot_source(raw, entry.mapping)

@@ -12,7 +12,7 @@ import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
@@ -38,6 +38,7 @@ from .state import NewRun, RunHistory, RunLock, StateStore, input_hashes
 from .workspace import Workspace, load_workspace
 
 if TYPE_CHECKING:
+    from .history_store import SourceProfiles
     from .review.apply import ReviewSummary
 
 log = logging.getLogger(__name__)
@@ -111,8 +112,12 @@ def judge_against_truth(ws: Workspace, records: pd.DataFrame, match: MatchResult
     return RunQuality(evaluation, hard, ws.display(path))
 
 
-def read_and_map(ws: Workspace, progress: Progress = _quiet) -> tuple[pd.DataFrame, list[MappedSource]]:
-    """Read every source and map it to canonical columns; all input problems are raised together."""
+def read_and_map(ws: Workspace, progress: Progress = _quiet,
+                 on_read: Callable[[Any, pd.DataFrame], None] | None = None) -> tuple[pd.DataFrame, list[MappedSource]]:
+    """Read every source and map it to canonical columns; all input problems are raised together.
+
+    ``on_read`` is called with each source entry and its frame as read (the run profiles it there).
+    """
     rates: RatesTable | None = None
     if ws.canonical.rates:
         rates_path = ws.root / ws.canonical.rates
@@ -129,6 +134,8 @@ def read_and_map(ws: Workspace, progress: Progress = _quiet) -> tuple[pd.DataFra
         data_file = ws.display(data_path) if data_path else str(mapping.read.url)
         try:
             raw = read_source(mapping.read, ws.root, name=mapping.source)
+            if on_read is not None:
+                on_read(entry, raw)
             mapped.append(add_read_failures(apply_mapping(raw, mapping, ws.canonical, rates, data_file=data_file,
                                                           mapping_file=ws.display(entry.mapping_file),
                                                           mapping_path=entry.mapping_file), raw, data_file))
@@ -250,7 +257,10 @@ def _run(ws: Workspace, progress: Progress, *, write: bool, output_dir: Path | N
 
     check_orders(ws.canonical, [e.mapping.source for e in ws.sources], ws.display(ws.canonical_file))
     inputs = input_hashes(ws) if write else {}
-    records, mapped = read_and_map(ws, tick)
+    from .history_store import SourceProfiles  # column profiles for drift checks, taken as each source is read
+
+    profiles = SourceProfiles(ws) if write else None
+    records, mapped = read_and_map(ws, tick, on_read=profiles)
     records = canonical_order(records)  # nothing downstream may depend on the order of rows in the files
     regions = {e.mapping.source: e.mapping.region for e in ws.sources}
     # reviewers' decisions (state store) are applied on every run, whatever the scores say
@@ -314,13 +324,14 @@ def _run(ws: Workspace, progress: Progress, *, write: bool, output_dir: Path | N
             "changes": (entity_changes, ("csv",)),
             "missing": (result.missing, ("csv",)),
             "failures": (failures.astype({c: "string" for c in failures.columns}), ("csv",)),
-        })
+        }, profiles)
     tick("done")
     return result
 
 
 def _publish(result: RunResult, ws: Workspace, store: StateStore, out_dir: Path, keep_runs: int | None,
-             run: NewRun, tables: dict[str, tuple[pd.DataFrame, tuple[str, ...]]]) -> None:
+             run: NewRun, tables: dict[str, tuple[pd.DataFrame, tuple[str, ...]]],
+             profiles: SourceProfiles | None = None) -> None:
     """Write the set into a new run folder, record it, then switch the pointer (see outputs/publish.py)."""
     from .outputs import publish
     from .outputs.report import render_report
@@ -338,7 +349,7 @@ def _publish(result: RunResult, ws: Workspace, store: StateStore, out_dir: Path,
     store.record_run(run)  # the commit point: from here on the new set is the current one
     from .history_store import record_inputs  # column profiles and mapping texts, for drift checks
 
-    record_inputs(ws, run_id, result.mapping_hashes)
+    record_inputs(ws, run_id, result.mapping_hashes, profiles)
     publish.switch_current(out_dir, result.run_dir)
     publish.publish_report(ws.reports_dir, result.report_path, out_dir)
     publish.prune(out_dir, publish.keep_runs(keep_runs))

@@ -303,3 +303,35 @@ def test_a_rerun_on_the_same_export_reuses_its_profile_with_todays_declarations(
     assert first["height"]["declared"]["unit"] == "in" and second["height"]["declared"]["unit"] == "cm"
     assert first["height"]["quantiles"] == second["height"]["quantiles"]
     assert first["member_id"]["kind"] == "" and first["surname"]["kind"] == "name"  # ignored: counts only
+
+
+def test_a_run_reads_each_source_once_and_stores_the_profile_of_what_it_read(tmp_path: Path, monkeypatch) -> None:  # noqa: ANN001
+    """The profiles for drift checks come from the frames the run read, not from a second read."""
+    import integrate
+    import integrate.history_store as history_store
+    import integrate.pipeline as pipeline
+    from integrate.history_store import source_profile_table, state_engine
+    from integrate.mapping.snapshot import snapshot_source
+    from integrate.sources import read_source
+
+    from ..conftest import copy_workspace
+
+    root = copy_workspace(tmp_path / "ws")
+    reads: list[str] = []
+
+    def counted(spec, folder, name=None):  # noqa: ANN001, ANN202 - read_source's own arguments
+        reads.append(name)
+        return read_source(spec, folder, name=name)
+
+    monkeypatch.setattr(pipeline, "read_source", counted)
+    monkeypatch.setattr(history_store, "read_source", counted)
+    result = integrate.run(root)
+    assert sorted(reads) == ["events", "membership", "rentals", "webshop"]  # once each
+    with state_engine(root).connect() as conn:
+        stored = {r["source"]: json.loads(r["profile"]) for r in conn.execute(
+            source_profile_table.select().where(source_profile_table.c.run_id == result.run_id)).mappings()}
+    ws = load_workspace(root)
+    entry = next(e for e in ws.sources if e.mapping.source == "webshop")
+    again = json.loads(json.dumps(snapshot_source(read_source(entry.mapping.read, root, name="webshop"),
+                                                  entry.mapping), sort_keys=True))
+    assert set(stored) == {"events", "membership", "rentals", "webshop"} and stored["webshop"] == again
