@@ -204,9 +204,10 @@ def resolve(records: pd.DataFrame, entity_ids: pd.Series, canonical: CanonicalSc
         >>> merged["email"].tolist(), prov["source"].tolist(), prov["why"].tolist()
         (['y@example.org'], ['b'], ['2 of 3 values agree; most trusted of them'])
     """
-    ids = np.asarray(entity_ids.to_numpy(), dtype=object)
+    # entities are numbered in the order of their IDs: every group and sort below runs on integers
+    ids, entity_names = _entity_numbers(entity_ids)
     records = with_standard_forms(records, canonical, prepared)
-    merged = pd.DataFrame(index=pd.Index(sorted(set(ids.tolist())), name="entity_id"))
+    merged = pd.DataFrame(index=pd.RangeIndex(len(entity_names), name="entity_id"))
     prov_parts: list[pd.DataFrame] = []
     for name, spec in canonical.fields.items():
         long = _long(records, ids, name, spec)
@@ -253,10 +254,11 @@ def resolve(records: pd.DataFrame, entity_ids: pd.Series, canonical: CanonicalSc
         merged[name] = pd.Series(chosen["value"].to_numpy(), index=chosen["entity_id"].to_numpy())
         prov_parts.append(_provenance(long, usable, counted, chosen, name, spec, digits, merged.index))
     merged = merged.reset_index()
+    merged["entity_id"] = entity_names[merged["entity_id"].to_numpy()]
     for name, spec in canonical.fields.items():
         numeric = spec.type in NUMERIC_TYPES and spec.resolve != "all"  # 'all' lists values as text
         merged[name] = merged[name].astype("float64" if numeric else "string")
-    merged = _with_counts(merged, records, ids, canonical)
+    merged = _with_counts(merged, records, entity_names[ids], canonical)
     # Written files show money with its currency's minor units ('20.00') and quantities with the
     # field's decimals; the numbers themselves stay floats for analysis (see outputs.tables).
     merged.attrs["decimals"] = {
@@ -265,7 +267,15 @@ def resolve(records: pd.DataFrame, entity_ids: pd.Series, canonical: CanonicalSc
         for name, spec in canonical.fields.items() if spec.type in NUMERIC_TYPES and spec.resolve != "all"}
     provenance = pd.concat(prov_parts, ignore_index=True) if prov_parts else pd.DataFrame(
         columns=PROVENANCE_COLUMNS)
+    if prov_parts:
+        provenance["entity_id"] = entity_names[provenance["entity_id"].to_numpy(dtype=np.int64)]
     return merged, provenance
+
+
+def _entity_numbers(entity_ids: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    """Each record's entity as a number (0..k-1, in the order of the IDs), and the IDs by number."""
+    codes, names = pd.factorize(pd.Series(entity_ids.to_numpy(), dtype=object), sort=True)
+    return codes.astype(np.int64), np.asarray(names, dtype=object)
 
 
 def _with_counts(merged: pd.DataFrame, records: pd.DataFrame, ids: np.ndarray,
@@ -377,7 +387,7 @@ def source_pair_conflicts(records: pd.DataFrame, entity_ids: pd.Series, canonica
     Returns:
         columns ``field``, ``source_a``, ``source_b`` (in text order), ``entities``.
     """
-    ids = np.asarray(entity_ids.to_numpy(), dtype=object)
+    ids, _ = _entity_numbers(entity_ids)  # counted per entity: numbers do as well as IDs
     records = with_standard_forms(records, canonical, prepared)
     parts = []
     for name, spec in canonical.fields.items():
