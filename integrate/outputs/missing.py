@@ -52,7 +52,8 @@ def present(frame: pd.DataFrame) -> pd.DataFrame:
     for column in frame.columns:
         if is_text(frame[column]):
             codes, distinct = pd.factorize(frame[column])  # each distinct value is looked at once
-            filled = np.array([bool(str(v).strip()) for v in distinct] + [False], dtype=bool)
+            blank = pd.Index(distinct.astype(object)).astype(str).str.strip() == ""
+            filled = np.append(~np.asarray(blank, dtype=bool), False)
             out[column] &= filled[codes]  # code -1 (missing) picks the last entry
     return out
 
@@ -74,8 +75,10 @@ def missing_values(records: pd.DataFrame, crosswalk: pd.DataFrame, merged: pd.Da
     entities = pd.Index(merged["entity_id"].astype(str))
     n = len(entities)
     merged_has = present(merged[fields]).set_axis(entities)
-    winners = provenance.assign(entity_id=provenance["entity_id"].astype(str),
-                                source=provenance["source"].astype("string").fillna(""))
+    winners = provenance[["entity_id", "field", "source"]]
+    winners = winners.assign(entity_id=winners["entity_id"].astype(str),
+                             source=winners["source"].astype("string").fillna(""))
+    by_field = {name: part for name, part in winners.groupby("field", sort=False)}  # one pass, not one per field
     rows = []
     for field in fields:  # a loop over columns, not rows
         counts = held[field].groupby(level="_source").sum().reindex(sources, fill_value=0)
@@ -84,7 +87,7 @@ def missing_values(records: pd.DataFrame, crosswalk: pd.DataFrame, merged: pd.Da
                     if best else pd.Series(False, index=entities))
         gaps = merged_has[field] & ~best_has.to_numpy()
         gap_ids = entities[gaps.to_numpy()]
-        filled, by_rule = _contributors(winners[winners["field"] == field], held[field], gap_ids)
+        filled, by_rule = _contributors(by_field.get(field, winners.iloc[:0]), held[field], gap_ids)
         row = {"field": field, "entities": n, "best_source": best,
                "missing_best_source": round(1 - int(counts.max() if len(counts) else 0) / n, 6) if n else 0.0,
                "missing_merged": round(1 - int(merged_has[field].sum()) / n, 6) if n else 0.0,
