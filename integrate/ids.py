@@ -181,8 +181,10 @@ def _changes(cur: pd.DataFrame, prev: pd.DataFrame, overlap: pd.DataFrame, previ
     parts = join_by_group(links["new_id"], links["entity_id"], " ", sort_labels=True)
     n_parts = links.groupby("entity_id").size()
     split_old = n_parts[n_parts > 1].index
-    per_new = links.groupby("new_id").agg(n_before=("entity_id", "size"), shared=("n", "sum"),
-                                          first_before=("entity_id", "min"))
+    per_new = links.groupby("new_id").agg(n_before=("entity_id", "size"), shared=("n", "sum"))
+    # the smallest earlier ID per new entity, by one sort (a grouped min of text runs once per group in Python)
+    smallest = links.sort_values("entity_id", kind="mergesort").drop_duplicates("new_id")
+    per_new["first_before"] = smallest.set_index("new_id")["entity_id"].reindex(per_new.index)
     per_new["before"] = join_by_group(links["entity_id"], links["new_id"], " ", sort_labels=True)
     per_new["old_size"] = links.assign(old=links["entity_id"].map(size_old)).groupby("new_id")["old"].sum()
     table = pd.DataFrame({"records": size_new}).join(per_new)
