@@ -101,10 +101,18 @@ def true_pairs_found(entity: np.ndarray, i: np.ndarray, j: np.ndarray, copy_of: 
               .value_counts().rename("c").reset_index())
     c = counts["c"].to_numpy(np.int64)
     within = int((c * (c - 1) // 2).sum()) if inside else 0
+    # a representative without copies stands for itself alone: its pairs count as without copy_of,
+    # and only the (few) pairs touching a record with copies need the join below
+    copy_of = np.asarray(copy_of, np.int64)
+    has_copies = np.zeros(len(entity), bool)
+    has_copies[copy_of[copy_of != np.arange(len(copy_of))]] = True
+    plain = ~(has_copies[i] | has_copies[j])
+    alone = int(((entity[i[plain]] == entity[j[plain]]) & (entity[i[plain]] >= 0)).sum())
+    i, j = i[~plain], j[~plain]
     pairs = pd.DataFrame({"a": i, "b": j})
     left = pairs.merge(counts.rename(columns={"g": "a", "c": "ca"}), on="a")
     both = left.merge(counts.rename(columns={"g": "b", "c": "cb"}), on=["b", "e"])
-    return within + int((both["ca"].to_numpy(np.int64) * both["cb"].to_numpy(np.int64)).sum())
+    return within + alone + int((both["ca"].to_numpy(np.int64) * both["cb"].to_numpy(np.int64)).sum())
 
 
 def evaluate(crosswalk: pd.DataFrame, truth: pd.DataFrame, candidates: pd.DataFrame | None = None,
