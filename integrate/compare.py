@@ -81,6 +81,19 @@ ESTABLISHED = 3
 ESTABLISHED_SHARE = 0.01
 
 
+def established(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Whether two names held by ``a`` and ``b`` records are both names in use (see
+    ``Coded.both_established``). The only way comparison depends on other records: an
+    incremental run (incremental.py) recompares a stored pair where this answer changed."""
+    low, high = np.minimum(a, b), np.maximum(a, b)
+    return (low >= ESTABLISHED) & (low >= ESTABLISHED_SHARE * high)
+
+
+def rare_words(counts: np.ndarray) -> np.ndarray:
+    """Whether first words held by ``counts`` records are too rare to be names in use (slips)."""
+    return counts < ESTABLISHED
+
+
 def grade_name(ftype: str, grade: int) -> str:
     return "missing" if grade < 0 else GRADE_NAMES[ftype][grade]
 
@@ -118,9 +131,7 @@ class Coded:
         """Whether both values are names in use rather than one-off slips: the rarer is held by at
         least ``ESTABLISHED`` records and by at least ``ESTABLISHED_SHARE`` of the commoner's count
         (False where either is missing)."""
-        a, b = self.counts[self.codes[i]], self.counts[self.codes[j]]
-        low, high = np.minimum(a, b), np.maximum(a, b)
-        return (low >= ESTABLISHED) & (low >= ESTABLISHED_SHARE * high)
+        return established(self.counts[self.codes[i]], self.counts[self.codes[j]])
 
     def several_words(self, i: np.ndarray) -> np.ndarray:
         """Whether record i's value has more than one word (False where missing)."""
@@ -310,7 +321,7 @@ def _slip_of_a_form(first: Coded, i: np.ndarray, j: np.ndarray) -> np.ndarray:
     forms = given_name_forms()
     table = list(forms)
     words = first.values.tolist()
-    rare = first.counts[:-1] < ESTABLISHED
+    rare = rare_words(first.counts[:-1])
     reach: list[frozenset[str]] = [frozenset(forms.get(w, (w,))) for w in words]
     slips = [k for k, w in enumerate(words) if rare[k] and w not in forms and len(w) >= 3]
     if slips and table:

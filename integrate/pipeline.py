@@ -24,6 +24,16 @@ from .compare import grade_name
 from .errors import InputError, InputErrors
 from .evaluate import Evaluation, evaluate, hard_negatives, read_crosswalk_file
 from .ids import ChangeSummary, assign_stable_ids, canonical_order, money_digits, record_hashes
+from .incremental import (
+    REFIT_SHARE,
+    IncrementalSummary,
+    plan,
+    prepared_for,
+    read_carry,
+    reuse_for,
+    settings_fingerprint,
+    write_carry,
+)
 from .killpoints import reached
 from .mapping.apply import FAILURE_COLUMNS, MappedSource, apply_mapping
 from .mapping.checks import no_records_text
@@ -79,6 +89,7 @@ class RunResult:
     run_id: int | None = None  # the run's number in the state store (when written)
     quality: RunQuality | None = None  # against the schema's 'truth' crosswalk, when one is given
     missing: pd.DataFrame | None = None  # per field: missing before / after merging (outputs/missing.py)
+    incremental: IncrementalSummary | None = None  # what an incremental run reused (incremental.py)
 
 
 @dataclass
@@ -202,7 +213,8 @@ def pairs_frame(records: pd.DataFrame, match: MatchResult, types: dict[str, str]
 
 def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress = _quiet,
                  write: bool = True, output_dir: str | Path | None = None, keep_runs: int | None = None,
-                 engine: str = "local", scheduler: str | None = None) -> RunResult:
+                 engine: str = "local", scheduler: str | None = None, incremental: bool = False,
+                 refit: bool = False, model: ScoreModel | None = None) -> RunResult:
     """Run every stage on a workspace and (by default) write the outputs and the run report.
 
     Args:
@@ -215,14 +227,22 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
             ``"dask"`` (a dask.distributed cluster; same outputs; see ``integrate.engine``).
         scheduler: with ``engine="dask"``, a running cluster's scheduler address (default: a
             LocalCluster of two worker processes started for this run).
+        incremental: build on the last run: records unchanged since then keep their standard
+            values and their candidate pairs' grades, only new and changed ones are standardised
+            and compared, and the last run's model scores the pairs (see ``integrate.incremental``;
+            a full run where the last run left nothing to build on or the schema changed).
+        refit: with ``incremental``, re-estimate the model instead of keeping the last run's.
+        model: score with this model instead of estimating one (e.g. ``result.model`` of an
+            earlier run, to compare runs with the model held fixed).
 
     Raises:
         InputError / InputErrors: a mapping file, source file or value is wrong; nothing is written.
         RunLocked: another run of the workspace is in progress (nothing is read or written).
     """
     ws = workspace if isinstance(workspace, Workspace) else load_workspace(workspace)
+    options = {"engine": engine, "scheduler": scheduler, "incremental": incremental, "refit": refit, "model": model}
     if not write:
-        return _run(ws, progress, write=False, output_dir=None, keep_runs=None, engine=engine, scheduler=scheduler)
+        return _run(ws, progress, write=False, output_dir=None, keep_runs=None, **options)
     from .outputs.publish import recover
 
     store = StateStore.for_workspace(ws.root)
@@ -235,12 +255,41 @@ def run_pipeline(workspace: str | Path | Workspace = ".", *, progress: Progress 
             log.info("cleaned up after an interrupted run: %d temporary files, %d unrecorded run folders removed%s",
                      len(found.temporary_files), len(found.discarded_folders),
                      f", current set switched to {found.switched_to}" if found.switched_to else "")
-        return _run(ws, progress, write=True, output_dir=out_dir, keep_runs=keep_runs, engine=engine,
-                    scheduler=scheduler)
+        return _run(ws, progress, write=True, output_dir=out_dir, keep_runs=keep_runs, **options)
+
+
+def incremental_settings(ws: Workspace, regions: dict[str, str | None]) -> str:
+    """The fingerprint that stored standard values and grades are valid for."""
+    return settings_fingerprint(ws.mapping_hashes()[ws.display(ws.canonical_file)], regions)
+
+
+def _build_on_last_run(ws: Workspace, records: pd.DataFrame, regions: dict[str, str | None], history: RunHistory,
+                       fingerprint: str, refit: bool, engine: str, model: ScoreModel | None
+                       ) -> tuple[dict[str, Any], list[str]]:
+    """What an incremental run takes from the last one: standard values, reusable grades, model."""
+    previous = history.previous
+    if engine != "local":
+        return {"model": model}, [f"incremental runs use the local engine; this run on '{engine}' ran in full"]
+    if previous is None:
+        return {"model": model}, ["no earlier run to build on: this incremental run ran in full"]
+    found, why = read_carry(previous.output_dir, previous.run_id, fingerprint)
+    if found is None:
+        return {"model": model}, [f"incremental run not possible ({why}): ran in full"]
+    the_plan = plan(records, ws.canonical, found)
+    prepared = prepared_for(records, ws.canonical, regions, found, the_plan)
+    summary = IncrementalSummary(previous.run_id, the_plan.unchanged, the_plan.new, the_plan.changed,
+                                 the_plan.removed)
+    if model is None and not refit and the_plan.share_new() <= REFIT_SHARE:
+        model = found.model
+    else:
+        summary.model = "given" if model is not None else "re-estimated"
+    return {"prepared": prepared, "model": model, "summary": summary,
+            "reuse": lambda full, copy_of: reuse_for(found, the_plan, full, copy_of, ws.canonical)}, []
 
 
 def _run(ws: Workspace, progress: Progress, *, write: bool, output_dir: Path | None, keep_runs: int | None,
-         engine: str = "local", scheduler: str | None = None) -> RunResult:
+         engine: str = "local", scheduler: str | None = None, incremental: bool = False, refit: bool = False,
+         model: ScoreModel | None = None) -> RunResult:
     started = dt.datetime.now(dt.UTC).replace(microsecond=0)
     timings: dict[str, float] = {}
     clock = [time.perf_counter(), ""]
@@ -269,13 +318,24 @@ def _run(ws: Workspace, progress: Progress, *, write: bool, output_dir: Path | N
     decided = decision_constraints(ws.root, records)
     from .engine import open_engine
 
+    history = RunHistory.load(ws.root, create=write)
+    fingerprint = incremental_settings(ws, regions)
+    carried: dict[str, Any] = {"model": model}
+    notes: list[str] = []
+    if incremental:
+        tick("standardise")
+        carried, notes = _build_on_last_run(ws, records, regions, history, fingerprint, refit, engine, model)
     with open_engine(engine, scheduler) as runner:
         match = match_records(records, ws.canonical, regions=regions, progress=tick, must_link=decided.must_link,
                               cannot_link=decided.cannot_link, estimator=decided.estimator,
                               one_per_person=[e.mapping.source for e in ws.sources if e.mapping.one_per_person],
-                              engine=runner)
+                              engine=runner, prepared=carried.get("prepared"), reuse=carried.get("reuse"),
+                              model=carried.get("model"))
+    summary = carried.get("summary")
+    if summary is not None and match.reuse is not None:
+        summary.pairs_reused, summary.pairs_compared = match.reuse.reused, match.reuse.compared
+        summary.stored_pairs_dropped = match.reuse.dropped
     # stable IDs: each cluster keeps the previous run's ID of the entity it shares most records with
-    history = RunHistory.load(ws.root, create=write)
     current = pd.DataFrame({"source": records[SOURCE].astype(str).to_numpy(),
                             "record_id": records[RECORD_ID].astype(str).to_numpy(),
                             "cluster": match.entities["entity_id"].to_numpy(),
@@ -303,7 +363,9 @@ def _run(ws: Workspace, progress: Progress, *, write: bool, output_dir: Path | N
         warnings=list(match.model.warnings), review=review, splits=match.splits,
         clusters=cluster_table(match.entities, records), changes=changes, entity_changes=entity_changes,
         conflict_pairs=conflict_pairs, quality=judge_against_truth(ws, records, match, crosswalk),
+        incremental=summary,
     )
+    result.warnings += notes
     result.warnings += [no_records_text(m.name) for m in mapped if m.frame.empty]
     result.missing = run_missing_values(result, list(ws.canonical.fields))
     for name, columns in result.unmapped.items():
@@ -324,14 +386,15 @@ def _run(ws: Workspace, progress: Progress, *, write: bool, output_dir: Path | N
             "changes": (entity_changes, ("csv",)),
             "missing": (result.missing, ("csv",)),
             "failures": (failures.astype({c: "string" for c in failures.columns}), ("csv",)),
-        }, profiles)
+        }, profiles, carry=lambda folder: write_carry(folder, records, match.prepared, match.pairs, match.copy_of,
+                                                      match.model, ws.canonical, fingerprint))
     tick("done")
     return result
 
 
 def _publish(result: RunResult, ws: Workspace, store: StateStore, out_dir: Path, keep_runs: int | None,
              run: NewRun, tables: dict[str, tuple[pd.DataFrame, tuple[str, ...]]],
-             profiles: SourceProfiles | None = None) -> None:
+             profiles: SourceProfiles | None = None, carry: Callable[[Path], None] | None = None) -> None:
     """Write the set into a new run folder, record it, then switch the pointer (see outputs/publish.py)."""
     from .outputs import publish
     from .outputs.report import render_report
@@ -342,6 +405,8 @@ def _publish(result: RunResult, ws: Workspace, store: StateStore, out_dir: Path,
     result.report_path = ws.reports_dir / f"run-{result.started.strftime('%Y%m%dT%H%M%SZ')}.html"
     partial = publish.start_run_folder(out_dir, run_id)
     write_tables(partial, tables)
+    if carry is not None:
+        carry(partial)  # what the next incremental run builds on (incremental.py)
     publish.write_report_file(partial, render_report(result, ws))
     result.run_dir = publish.seal_run_folder(partial, run_id, run.started_at)
     run.run_id, run.output_dir = run_id, str(result.run_dir.resolve())

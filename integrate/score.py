@@ -513,9 +513,11 @@ def random_sample_grades(prepared: pd.DataFrame, canonical: CanonicalSchema,
 
 def score(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchema,
           *, groups: np.ndarray | None = None, thresholds: Thresholds | None = None,
-          grades: pd.DataFrame | None = None, estimator: Callable[..., ScoreModel] | None = None
-          ) -> tuple[pd.DataFrame, ScoreModel]:
+          grades: pd.DataFrame | None = None, estimator: Callable[..., ScoreModel] | None = None,
+          model: ScoreModel | None = None) -> tuple[pd.DataFrame, ScoreModel]:
     """Grades, weights, match probability and decision for every candidate pair.
+
+    ``model``: score with this model (an earlier run's) instead of estimating one.
 
     Returns:
         (scored pairs: the input columns + ``g_<field>`` grades + ``w_<field>`` weights +
@@ -525,6 +527,8 @@ def score(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchem
     if grades is None:
         grades = compare(prepared, pairs, canonical)
     field_types = {f: canonical.fields[f].type for f in grades.columns}
+    if model is not None:
+        return weigh(prepared, pairs, grades, field_types, model, thresholds), model
     joint, types = model_grades(grades, field_types)
     random_joint, _ = model_grades(random_sample_grades(prepared, canonical, groups), field_types)
     u_random = {f: _level_freq(random_joint[f].to_numpy(np.int64), _levels(types[f])) for f in joint.columns}

@@ -19,6 +19,11 @@ def register(sub: argparse._SubParsersAction) -> None:
                           "(default: a local cluster of two worker processes)")
     run.add_argument("--keep-runs", type=int, metavar="N",
                      help="run folders to keep in the output folder (default: INTEGRATE_KEEP_RUNS or 3)")
+    run.add_argument("--incremental", action="store_true",
+                     help="build on the last run: only new and changed records are standardised and compared, "
+                          "and the last run's model scores the pairs (a full run when that is not possible)")
+    run.add_argument("--refit", action="store_true",
+                     help="with --incremental: estimate the model again instead of keeping the last run's")
     run.set_defaults(func=main)
 
 
@@ -29,13 +34,16 @@ def main(args: argparse.Namespace) -> int:
         check_output_dir(args.out)  # before hours of work, not after
     with stage_progress(STAGES) as progress:
         result = run_pipeline(args.workspace, progress=progress, output_dir=args.out,
-                              keep_runs=args.keep_runs, engine=args.engine, scheduler=args.scheduler)
+                              keep_runs=args.keep_runs, engine=args.engine, scheduler=args.scheduler,
+                              incremental=args.incremental, refit=args.refit)
     records = sum(result.source_counts.values())
     decisions = result.pairs["decision"].value_counts()
     print(f"{records} records from {len(result.source_counts)} sources -> {len(result.merged)} entities")
     for source, count in result.source_counts.items():
         print(f"  {source:<14} {count:>7} records")
     print(f"candidate pairs {len(result.pairs)}: " + ", ".join(f"{k} {v}" for k, v in decisions.items()))
+    if result.incremental is not None:
+        print(result.incremental.text())
     changes = result.changes
     if changes is not None and changes.previous_run is not None:
         print(f"since run {changes.previous_run}: {changes.unchanged} entities unchanged, {changes.created} created, "

@@ -1,0 +1,293 @@
+"""Incremental runs: next month's exports matched against what the last run left behind.
+
+Every run leaves, in a hidden ``.carry`` folder of its run folder, what the next run needs to
+skip work on records that did not change:
+
+- ``prepared.parquet``: each record's standard values (standardise's output), its key, a hash
+  of everything standardising reads, and whether it stood for its identical copies;
+- ``grades.parquet``: the agreement grades of every compared candidate pair, by record position;
+- ``model.json``: the scoring model (m/u probabilities per class, class shares).
+
+An incremental run (``integrate run --incremental``) reads every export as usual (they are full
+exports), then:
+
+- standardises only records that are new or whose content changed; the rest keep their stored
+  standard values;
+- blocks all records (blocking decisions such as splitting a large block depend on all of
+  them), and compares only the candidate pairs it has no stored grades for;
+- scores every pair with the last run's model, unless asked to re-estimate it or the share of
+  new and changed records passes ``REFIT_SHARE``;
+- clusters and resolves as a full run does, so entity IDs follow the same rules.
+
+A stored grade is reused only where the full comparison would give the same grade: both records
+unchanged, and the one way a pair's grade depends on other records (whether each name is a name
+in use, ``compare.established`` / ``compare.rare_words``) answers as it did last time. So with
+the model held fixed an incremental run gives the crosswalk a full run gives (tested).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import logging
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .columns import RECORD_DATE, RECORD_ID, SOURCE
+from .compare import established, rare_words
+from .mapping.spec import CanonicalSchema
+from .score import FieldModel, ScoreModel
+from .standardise import FIRST_WORD, standardise
+
+log = logging.getLogger(__name__)
+
+CARRY = ".carry"  # hidden: not part of the published set, not linked from the output folder
+CARRY_VERSION = 1  # bump when what is stored (or how standard values are made) changes
+REFIT_SHARE = 0.2  # re-estimate the model when more than this share of records is new or changed
+_KEY = "__key"
+_HASH = "__content"
+_STOOD = "__stood_for_copies"
+
+
+def content_hashes(records: pd.DataFrame, canonical: CanonicalSchema) -> np.ndarray:
+    """A hash per record of everything its standard values depend on: canonical fields, source
+    (phone regions) and record date."""
+    columns = [SOURCE, *[c for c in (RECORD_DATE,) if c in records], *canonical.fields]
+    text = records[columns].astype("string").fillna("\x00")
+    return pd.util.hash_pandas_object(text, index=False).to_numpy(np.uint64)
+
+
+def record_key_text(records: pd.DataFrame) -> pd.Index:
+    return pd.Index(records[SOURCE].astype(str).str.cat(records[RECORD_ID].astype(str), sep="\x1f"))
+
+
+def settings_fingerprint(canonical_hash: str, regions: dict[str, str | None]) -> str:
+    """What makes stored standard values and grades valid: the schema file and phone regions."""
+    text = json.dumps({"schema": canonical_hash, "regions": regions, "version": CARRY_VERSION}, sort_keys=True)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+# ---- the model as JSON ----------------------------------------------------------------------
+
+def model_to_json(model: ScoreModel) -> str:
+    return json.dumps({
+        "fields": {n: {"type": f.type, "m": f.m, "u": f.u, "u_random": f.u_random, "related": f.related}
+                   for n, f in model.fields.items()},
+        "prior": model.prior, "iterations": model.iterations, "converged": model.converged,
+        "class_shares": model.class_shares,
+        "theta": {k: {f: np.asarray(v, float).tolist() for f, v in t.items()} for k, t in model._theta.items()},
+    })
+
+
+def model_from_json(text: str) -> ScoreModel:
+    d = json.loads(text)
+    fields = {n: FieldModel(n, f["type"], f["m"], f["u"], f["u_random"], f["related"]) for n, f in d["fields"].items()}
+    theta = {k: {f: np.asarray(v, float) for f, v in t.items()} for k, t in d["theta"].items()}
+    return ScoreModel(fields, float(d["prior"]), int(d["iterations"]), bool(d["converged"]),
+                      {k: float(v) for k, v in d["class_shares"].items()}, [], _theta=theta)
+
+
+# ---- what a run leaves -------------------------------------------------------------------------
+
+def carry_tables(records: pd.DataFrame, prepared: pd.DataFrame, pairs: pd.DataFrame, copy_of: np.ndarray | None,
+                 canonical: CanonicalSchema) -> dict[str, tuple[pd.DataFrame, tuple[str, ...]]]:
+    """The tables a run leaves for the next incremental run (``write_tables`` shape)."""
+    stored = prepared.copy(deep=False)
+    stored[_KEY] = np.asarray(record_key_text(records), dtype=object)
+    stored[_HASH] = content_hashes(records, canonical)
+    stored[_STOOD] = (np.arange(len(records)) if copy_of is None else copy_of) == np.arange(len(records))
+    grades = pd.DataFrame({"i": pairs["i"].to_numpy(np.int64), "j": pairs["j"].to_numpy(np.int64)})
+    for column in pairs.columns:
+        if column.startswith("g_"):
+            grades[column] = pairs[column].to_numpy(np.int8)
+    return {"prepared": (stored, ("parquet",)), "grades": (grades, ("parquet",))}
+
+
+def write_carry(run_folder: Path, records: pd.DataFrame, prepared: pd.DataFrame, pairs: pd.DataFrame,
+                copy_of: np.ndarray | None, model: ScoreModel, canonical: CanonicalSchema, fingerprint: str) -> None:
+    from .outputs.tables import write_tables, write_text_atomic
+
+    folder = run_folder / CARRY
+    write_tables(folder, carry_tables(records, prepared, pairs, copy_of, canonical))
+    write_text_atomic(folder / "model.json", model_to_json(model))
+    write_text_atomic(folder / "settings.json", json.dumps({"fingerprint": fingerprint}))
+
+
+@dataclass
+class Carried:
+    """What the last run left, read back."""
+
+    run_id: int
+    prepared: pd.DataFrame  # standard values + key, content hash, stood-for-copies flag (last run's order)
+    grades: pd.DataFrame  # i, j (last run's positions), g_<field>
+    model: ScoreModel
+
+
+def read_carry(run_folder: str | Path | None, run_id: int, fingerprint: str) -> tuple[Carried | None, str]:
+    """The last run's carried state, or None and why it cannot be used."""
+    if not run_folder:
+        return None, "the last run left no run folder"
+    folder = Path(run_folder) / CARRY
+    if not (folder / "model.json").exists():
+        return None, f"run {run_id} left nothing to build on (made before incremental runs, or not written)"
+    settings = json.loads((folder / "settings.json").read_text(encoding="utf-8"))
+    if settings.get("fingerprint") != fingerprint:
+        return None, f"the schema or phone regions changed since run {run_id}"
+    return Carried(run_id, pd.read_parquet(folder / "prepared.parquet"), pd.read_parquet(folder / "grades.parquet"),
+                   model_from_json((folder / "model.json").read_text(encoding="utf-8"))), ""
+
+
+# ---- this run against it -----------------------------------------------------------------------
+
+@dataclass
+class Plan:
+    """Which of this run's records the last run already knew, unchanged."""
+
+    previous_of: np.ndarray  # per current record: its position in the last run, -1 if new or changed
+    new: int
+    changed: int
+    removed: int
+
+    @property
+    def unchanged(self) -> int:
+        return int((self.previous_of >= 0).sum())
+
+    def share_new(self) -> float:
+        return (self.new + self.changed) / max(len(self.previous_of), 1)
+
+
+def plan(records: pd.DataFrame, canonical: CanonicalSchema, carried: Carried) -> Plan:
+    keys = record_key_text(records)
+    before = pd.Index(carried.prepared[_KEY].astype(str))
+    at = before.get_indexer(keys)
+    same = np.zeros(len(records), bool)
+    known = at >= 0
+    same[known] = carried.prepared[_HASH].to_numpy(np.uint64)[at[known]] == content_hashes(records, canonical)[known]
+    previous_of = np.where(same, at, -1)
+    kept = np.zeros(len(before), bool)
+    kept[at[known]] = True
+    return Plan(previous_of, new=int((~known).sum()), changed=int((known & ~same).sum()),
+                removed=int((~kept).sum()))
+
+
+def prepared_for(records: pd.DataFrame, canonical: CanonicalSchema, regions: dict[str, str | None] | None,
+                 carried: Carried, the_plan: Plan) -> pd.DataFrame:
+    """Standard values of every record: stored ones for unchanged records, fresh ones for the rest."""
+    fresh = np.flatnonzero(the_plan.previous_of < 0)
+    made = standardise(records.iloc[fresh], canonical, regions)
+    columns = list(made.columns)
+    old = np.flatnonzero(the_plan.previous_of >= 0)
+    kept = carried.prepared[columns].iloc[the_plan.previous_of[old]]
+    kept.index = records.index[old]
+    out = pd.concat([kept, made]) if len(made) else kept
+    out = out.loc[records.index] if len(fresh) and len(old) else out
+    for c in columns:  # keep standardise's own column types (an all-missing part may differ)
+        if out[c].dtype != made[c].dtype and len(made):
+            out[c] = out[c].astype(made[c].dtype)
+    return out
+
+
+@dataclass
+class Reuse:
+    """Stored grades this run can take instead of comparing, keyed by the positions blocking uses
+    (this run's records that stand for their copies, 0..n-1)."""
+
+    codes: np.ndarray  # sorted lo * n + hi of current full positions
+    grades: np.ndarray  # rows aligned with codes, columns = fields
+    fields: list[str]
+    n: int
+    stored: int  # pairs the last run compared
+    dropped: int  # stored pairs not reusable (a record changed or left, or a name's standing changed)
+    reused: int = 0  # filled in by the comparison that used it
+    compared: int = 0
+
+    def split(self, i: np.ndarray, j: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """For candidate pairs (i, j): which have stored grades, and those grades (rows of found pairs)."""
+        lo, hi = np.minimum(i, j).astype(np.int64), np.maximum(i, j).astype(np.int64)
+        code = lo * self.n + hi
+        at = np.searchsorted(self.codes, code)
+        at_ok = np.minimum(at, max(len(self.codes) - 1, 0))
+        found = (at < len(self.codes)) & (self.codes[at_ok] == code) if len(self.codes) else np.zeros(len(code), bool)
+        return found, self.grades[at_ok[found]]
+
+
+def _name_standing_changed(carried: Carried, the_plan: Plan, prepared: pd.DataFrame, stood: np.ndarray,
+                           canonical: CanonicalSchema, pi: np.ndarray, pj: np.ndarray) -> np.ndarray:
+    """Per stored pair (last run's positions): whether a name-in-use answer differs now.
+
+    Comparison counts each name over the records that are matched (those standing for their
+    copies); ``stood`` marks them among this run's records.
+    """
+    changed = np.zeros(len(pi), bool)
+    old_stood = carried.prepared[_STOOD].to_numpy(bool)
+    for name, spec in canonical.fields.items():
+        if not (spec.is_compared() and spec.type == "person_name"):
+            continue
+        for column, test in ((name, "pair"), (name + FIRST_WORD, "word")):
+            if column not in prepared or column not in carried.prepared:
+                continue
+            before_values = carried.prepared[column]
+            codes, uniques = pd.factorize(pd.concat([before_values, prepared[column]], ignore_index=True))
+            old_codes, new_codes = codes[:len(before_values)], codes[len(before_values):]
+            size = len(uniques) + 1  # the last entry: missing (-1)
+            old_counts = np.append(np.bincount(old_codes[old_stood & (old_codes >= 0)], minlength=len(uniques)), 0)
+            new_counts = np.append(np.bincount(new_codes[stood & (new_codes >= 0)], minlength=len(uniques)), 0)
+            a, b = old_codes[pi], old_codes[pj]
+            a, b = np.where(a < 0, size - 1, a), np.where(b < 0, size - 1, b)
+            if test == "pair":
+                changed |= established(old_counts[a], old_counts[b]) != established(new_counts[a], new_counts[b])
+            else:
+                flipped = rare_words(old_counts) != rare_words(new_counts)
+                changed |= flipped[a] | flipped[b]
+    return changed
+
+
+def reuse_for(carried: Carried, the_plan: Plan, prepared: pd.DataFrame, copy_of: np.ndarray,
+              canonical: CanonicalSchema) -> Reuse:
+    """The stored grades still valid for this run's records (``copy_of``: identical grouping)."""
+    n = len(the_plan.previous_of)
+    current_of = np.full(len(carried.prepared), -1, np.int64)
+    old = np.flatnonzero(the_plan.previous_of >= 0)
+    current_of[the_plan.previous_of[old]] = old
+    g = carried.grades
+    pi, pj = g["i"].to_numpy(np.int64), g["j"].to_numpy(np.int64)
+    ci, cj = current_of[pi], current_of[pj]
+    ok = (ci >= 0) & (cj >= 0)
+    stood = copy_of == np.arange(n)
+    ok[ok] &= ~_name_standing_changed(carried, the_plan, prepared, stood, canonical, pi[ok], pj[ok])
+    # blocking numbers the records that stand for their copies 0..m-1 (identical.py)
+    positions = np.flatnonzero(stood)
+    matched_as = np.full(n, -1, np.int64)
+    matched_as[positions] = np.arange(len(positions))
+    ri, rj = matched_as[np.where(ok, ci, 0)], matched_as[np.where(ok, cj, 0)]
+    ok &= (ri >= 0) & (rj >= 0)
+    fields = [c for c in g.columns if c.startswith("g_")]
+    lo, hi = np.minimum(ri[ok], rj[ok]), np.maximum(ri[ok], rj[ok])
+    m = len(positions)
+    codes = lo * m + hi
+    order = np.argsort(codes, kind="stable")
+    return Reuse(codes[order], g[fields].to_numpy(np.int8)[ok][order], [f[2:] for f in fields], m,
+                 stored=len(g), dropped=int((~ok).sum()))
+
+
+@dataclass
+class IncrementalSummary:
+    """What an incremental run reused, for the report and the command line."""
+
+    built_on: int  # the run it started from
+    unchanged: int
+    new: int
+    changed: int
+    removed: int
+    pairs_reused: int = 0
+    pairs_compared: int = 0
+    stored_pairs_dropped: int = 0
+    model: str = "kept"  # 'kept' (the last run's) or 're-estimated' (asked, or many new records)
+
+    def text(self) -> str:
+        return (f"incremental run on run {self.built_on}: {self.unchanged:,} records unchanged, {self.new:,} new, "
+                f"{self.changed:,} changed, {self.removed:,} removed; {self.pairs_reused:,} candidate pairs' grades "
+                f"reused, {self.pairs_compared:,} compared; model {self.model}")
