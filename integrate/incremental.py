@@ -36,7 +36,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .columns import RECORD_DATE, RECORD_ID, SOURCE
+from .columns import RECORD_DATE, RECORD_ID, SOURCE, TRUST
 from .compare import established, rare_words
 from .mapping.spec import CanonicalSchema
 from .score import FieldModel, ScoreModel
@@ -50,12 +50,13 @@ REFIT_SHARE = 0.2  # re-estimate the model when more than this share of records 
 _KEY = "__key"
 _HASH = "__content"
 _STOOD = "__stood_for_copies"
+_ENTITY = "__entity"
 
 
 def content_hashes(records: pd.DataFrame, canonical: CanonicalSchema) -> np.ndarray:
-    """A hash per record of everything its standard values depend on: canonical fields, source
-    (phone regions) and record date."""
-    columns = [SOURCE, *[c for c in (RECORD_DATE,) if c in records], *canonical.fields]
+    """A hash per record of everything its standard values and its part in merged values depend
+    on: canonical fields, source (phone regions), trust rank and record date."""
+    columns = [SOURCE, *[c for c in (TRUST, RECORD_DATE) if c in records], *canonical.fields]
     text = records[columns].astype("string").fillna("\x00")
     return pd.util.hash_pandas_object(text, index=False).to_numpy(np.uint64)
 
@@ -93,9 +94,12 @@ def model_from_json(text: str) -> ScoreModel:
 # ---- what a run leaves -------------------------------------------------------------------------
 
 def carry_tables(records: pd.DataFrame, prepared: pd.DataFrame, pairs: pd.DataFrame, copy_of: np.ndarray | None,
-                 canonical: CanonicalSchema) -> dict[str, tuple[pd.DataFrame, tuple[str, ...]]]:
+                 canonical: CanonicalSchema, entity_ids: object = None
+                 ) -> dict[str, tuple[pd.DataFrame, tuple[str, ...]]]:
     """The tables a run leaves for the next incremental run (``write_tables`` shape)."""
     stored = prepared.copy(deep=False)
+    if entity_ids is not None:
+        stored[_ENTITY] = np.asarray(entity_ids, dtype=object)
     stored[_KEY] = np.asarray(record_key_text(records), dtype=object)
     stored[_HASH] = content_hashes(records, canonical)
     stored[_STOOD] = (np.arange(len(records)) if copy_of is None else copy_of) == np.arange(len(records))
@@ -107,11 +111,12 @@ def carry_tables(records: pd.DataFrame, prepared: pd.DataFrame, pairs: pd.DataFr
 
 
 def write_carry(run_folder: Path, records: pd.DataFrame, prepared: pd.DataFrame, pairs: pd.DataFrame,
-                copy_of: np.ndarray | None, model: ScoreModel, canonical: CanonicalSchema, fingerprint: str) -> None:
+                copy_of: np.ndarray | None, model: ScoreModel, canonical: CanonicalSchema, fingerprint: str,
+                entity_ids: object) -> None:
     from .outputs.tables import write_tables, write_text_atomic
 
     folder = run_folder / CARRY
-    write_tables(folder, carry_tables(records, prepared, pairs, copy_of, canonical))
+    write_tables(folder, carry_tables(records, prepared, pairs, copy_of, canonical, entity_ids))
     write_text_atomic(folder / "model.json", model_to_json(model))
     write_text_atomic(folder / "settings.json", json.dumps({"fingerprint": fingerprint}))
 
@@ -121,9 +126,10 @@ class Carried:
     """What the last run left, read back."""
 
     run_id: int
-    prepared: pd.DataFrame  # standard values + key, content hash, stood-for-copies flag (last run's order)
+    prepared: pd.DataFrame  # standard values + key, content hash, stood-for-copies flag, entity (last run's order)
     grades: pd.DataFrame  # i, j (last run's positions), g_<field>
     model: ScoreModel
+    run_folder: Path | None = None  # its merged table and provenance
 
 
 def read_carry(run_folder: str | Path | None, run_id: int, fingerprint: str) -> tuple[Carried | None, str]:
@@ -137,7 +143,7 @@ def read_carry(run_folder: str | Path | None, run_id: int, fingerprint: str) -> 
     if settings.get("fingerprint") != fingerprint:
         return None, f"the schema or phone regions changed since run {run_id}"
     return Carried(run_id, pd.read_parquet(folder / "prepared.parquet"), pd.read_parquet(folder / "grades.parquet"),
-                   model_from_json((folder / "model.json").read_text(encoding="utf-8"))), ""
+                   model_from_json((folder / "model.json").read_text(encoding="utf-8")), Path(run_folder)), ""
 
 
 # ---- this run against it -----------------------------------------------------------------------
@@ -273,6 +279,54 @@ def reuse_for(carried: Carried, the_plan: Plan, prepared: pd.DataFrame, copy_of:
                  stored=len(g), dropped=int((~ok).sum()))
 
 
+def settled(carried: Carried, the_plan: Plan, entity_ids: object) -> np.ndarray:
+    """Per current record: whether its entity is exactly as the last run left it (the same ID,
+    the same members, none of them changed), so its merged row and provenance stand."""
+    current = np.asarray(entity_ids, dtype=object)
+    before = carried.prepared[_ENTITY].to_numpy(object)
+    same = the_plan.previous_of >= 0
+    same[same] = before[the_plan.previous_of[same]] == current[same]
+    codes, names = pd.factorize(pd.Series(current, dtype=object))
+    members = np.bincount(codes, minlength=len(names))
+    kept = np.bincount(codes, weights=same.astype(float), minlength=len(names))
+    had = pd.Series(before).value_counts().reindex(pd.Index(names)).fillna(0).to_numpy()
+    whole = (kept == members) & (had == members)
+    return whole[codes]
+
+
+def resolve_changed(records: pd.DataFrame, entity_ids: pd.Series, canonical: CanonicalSchema, prepared: pd.DataFrame,
+                    carried: Carried, stands: np.ndarray) -> tuple[pd.DataFrame, pd.DataFrame, int]:
+    """``resolve`` for entities that changed; the last run's merged rows and provenance for the
+    rest (``stands``: per record, from ``settled``). Returns merged, provenance, entities resolved."""
+    from .resolve import resolve
+
+    todo = ~stands
+    if not todo.any():  # resolve one entity anyway: its result carries the table's column types
+        todo = np.asarray(entity_ids) == np.asarray(entity_ids)[0]
+    rows = np.flatnonzero(todo)
+    merged, provenance = resolve(records.iloc[rows].reset_index(drop=True),
+                                 pd.Series(np.asarray(entity_ids, dtype=object)[rows]), canonical,
+                                 prepared.iloc[rows].reset_index(drop=True))
+    folder = carried.run_folder
+    kept_ids = pd.Index(np.asarray(entity_ids, dtype=object)[~todo]).unique()
+    old_merged = pd.read_parquet(folder / "merged.parquet")
+    old_merged = old_merged[old_merged["entity_id"].isin(kept_ids)]
+    old_prov = pd.read_parquet(folder / "provenance.parquet")
+    old_prov = old_prov[old_prov["entity_id"].isin(kept_ids)]
+    out_merged = _joined(merged, old_merged).sort_values("entity_id", kind="mergesort").reset_index(drop=True)
+    out_merged.attrs = merged.attrs
+    rank = {name: k for k, name in enumerate(canonical.fields)}
+    out_prov = _joined(provenance, old_prov)
+    order = np.lexsort((out_prov["entity_id"].to_numpy(str), out_prov["field"].map(rank).to_numpy()))
+    return out_merged, out_prov.iloc[order].reset_index(drop=True), len(merged)
+
+
+def _joined(fresh: pd.DataFrame, stored: pd.DataFrame) -> pd.DataFrame:
+    """Fresh rows and stored ones (read back from Parquet) in the fresh rows' column types."""
+    stored = stored[list(fresh.columns)].astype(fresh.dtypes.to_dict())
+    return pd.concat([fresh, stored], ignore_index=True)
+
+
 @dataclass
 class IncrementalSummary:
     """What an incremental run reused, for the report and the command line."""
@@ -285,9 +339,12 @@ class IncrementalSummary:
     pairs_reused: int = 0
     pairs_compared: int = 0
     stored_pairs_dropped: int = 0
+    entities_resolved: int = 0  # entities whose merged row was made again (the rest kept theirs)
+    entities_kept: int = 0
     model: str = "kept"  # 'kept' (the last run's) or 're-estimated' (asked, or many new records)
 
     def text(self) -> str:
         return (f"incremental run on run {self.built_on}: {self.unchanged:,} records unchanged, {self.new:,} new, "
                 f"{self.changed:,} changed, {self.removed:,} removed; {self.pairs_reused:,} candidate pairs' grades "
-                f"reused, {self.pairs_compared:,} compared; model {self.model}")
+                f"reused, {self.pairs_compared:,} compared; {self.entities_resolved:,} entities resolved again, "
+                f"{self.entities_kept:,} kept; model {self.model}")

@@ -30,8 +30,10 @@ from .incremental import (
     plan,
     prepared_for,
     read_carry,
+    resolve_changed,
     reuse_for,
     settings_fingerprint,
+    settled,
     write_carry,
 )
 from .killpoints import reached
@@ -283,7 +285,7 @@ def _build_on_last_run(ws: Workspace, records: pd.DataFrame, regions: dict[str, 
         model = found.model
     else:
         summary.model = "given" if model is not None else "re-estimated"
-    return {"prepared": prepared, "model": model, "summary": summary,
+    return {"prepared": prepared, "model": model, "summary": summary, "found": found, "plan": the_plan,
             "reuse": lambda full, copy_of: reuse_for(found, the_plan, full, copy_of, ws.canonical)}, []
 
 
@@ -345,7 +347,13 @@ def _run(ws: Workspace, progress: Progress, *, write: bool, output_dir: Path | N
                                                         history.previous_run_id)
     match.entities["entity_id"] = stable.to_numpy()
     tick("resolve")
-    merged, provenance = resolve(records, match.entities["entity_id"], ws.canonical, match.prepared)
+    if summary is not None:  # an incremental run: entities exactly as the last run left them keep their rows
+        stands = settled(carried["found"], carried["plan"], match.entities["entity_id"])
+        merged, provenance, summary.entities_resolved = resolve_changed(
+            records, match.entities["entity_id"], ws.canonical, match.prepared, carried["found"], stands)
+        summary.entities_kept = len(merged) - summary.entities_resolved
+    else:
+        merged, provenance = resolve(records, match.entities["entity_id"], ws.canonical, match.prepared)
     conflict_pairs = source_pair_conflicts(records, match.entities["entity_id"], ws.canonical, match.prepared)
     crosswalk = crosswalk_frame(records, match)
     types = {c[2:]: ws.canonical.fields[c[2:]].type for c in match.pairs.columns if c.startswith("g_")}
@@ -387,7 +395,8 @@ def _run(ws: Workspace, progress: Progress, *, write: bool, output_dir: Path | N
             "missing": (result.missing, ("csv",)),
             "failures": (failures.astype({c: "string" for c in failures.columns}), ("csv",)),
         }, profiles, carry=lambda folder: write_carry(folder, records, match.prepared, match.pairs, match.copy_of,
-                                                      match.model, ws.canonical, fingerprint))
+                                                      match.model, ws.canonical, fingerprint,
+                                                      match.entities["entity_id"]))
     tick("done")
     return result
 

@@ -101,6 +101,9 @@ def test_an_incremental_run_gives_the_crosswalk_of_a_full_run_with_the_model_hel
     # every candidate pair with the same grades and probability
     pd.testing.assert_frame_equal(inc.pairs, full.pairs)
     pd.testing.assert_frame_equal(inc.merged, full.merged)
+    pd.testing.assert_frame_equal(inc.provenance, full.provenance)
+    assert inc.merged.attrs == full.merged.attrs
+    assert 0 < inc.incremental.entities_resolved < 0.3 * len(inc.merged)
     assert inc.changes.as_dict() == full.changes.as_dict()
     # the month's changes were seen as such, and most pairs were not compared again
     summary = inc.incremental
