@@ -79,8 +79,10 @@ class Client:
                           headers={"Content-Type": "application/octet-stream"})
 
     # -- runs ------------------------------------------------------------------------------------
-    def start_run(self, ws: str) -> dict[str, Any]:
-        return self._call("POST", f"/workspaces/{ws}/runs")
+    def start_run(self, ws: str, *, incremental: bool = False, refit: bool = False) -> dict[str, Any]:
+        """Start a run (``incremental``: build on the last run, see ``integrate run --incremental``)."""
+        params = {k: "true" for k, v in (("incremental", incremental), ("refit", refit)) if v}
+        return self._call("POST", f"/workspaces/{ws}/runs", params=params)
 
     def job(self, ws: str, job_id: str) -> dict[str, Any]:
         return self._call("GET", f"/workspaces/{ws}/jobs/{job_id}")

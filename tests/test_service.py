@@ -118,6 +118,15 @@ def test_upload_run_follow_look_up_review_rerun(served) -> None:  # noqa: ANN001
                            headers={"Authorization": f"Bearer {tokens['reader']}"})
         assert report.status_code == 200 and "<html" in report.text.lower()
 
+        # an incremental run through the service builds on the run just made
+        again = api.start_run(ws, incremental=True)
+        ended = list(api.events(ws, again["job_id"]))[-1]
+        assert ended[0] == "end" and ended[1]["state"] == "succeeded", ended
+        latest = httpx.get(f"{server.url}/api/v1/workspaces/{ws}/report",
+                           headers={"Authorization": f"Bearer {tokens['reader']}"}).text
+        assert f"An incremental run built on run {runs[0]['run_id']}" in latest
+        assert api.record_entity(ws, a["source"], a["record_id"])["entity_id"] == ea  # the decision still holds
+
     # the entity story is what `integrate show` builds
     from integrate.commands.show import entity_story, output_folder
 

@@ -166,11 +166,25 @@ def _changes_section(result: RunResult) -> str:
         return (f"<h2>Changes since the previous run</h2><p>First run recorded in the state store: "
                 f"{changes.created} entities, all with new IDs.</p>")
     values = changes.as_dict()
+    built = result.incremental
+    extra = ""
+    if built is not None:  # what the incremental run took from the last one (incremental.py)
+        rows = pd.DataFrame({
+            "what": ["records unchanged", "records new", "records changed", "records removed",
+                     "candidate pairs' grades reused", "candidate pairs compared", "entities kept as they were",
+                     "entities resolved again"],
+            "count": [built.unchanged, built.new, built.changed, built.removed, built.pairs_reused,
+                      built.pairs_compared, built.entities_kept, built.entities_resolved]})
+        model = {"kept": "the last run's model scored every pair",
+                 "re-estimated": "the model was estimated again on this run's pairs",
+                 "given": "the model given to the run scored every pair"}.get(built.model, built.model)
+        extra = (f"<p>An incremental run built on run {built.built_on}: only new and changed records were "
+                 f"standardised and compared; {_e(model)}.</p>" + _table(rows, ("count",)))
     table = pd.DataFrame({"what": list(CHANGE_LABELS.values()), "count": [values[k] for k in CHANGE_LABELS]})
     return (f"<h2>Changes since the previous run</h2><p>Compared with run {changes.previous_run}. Each entity "
             "keeps the ID of the earlier entity it shares most records with; "
             "<code>changes.csv</code> lists every entity that is not unchanged, and "
-            "<code>integrate changes</code> prints this summary.</p>" + _table(table, ("count",)))
+            "<code>integrate changes</code> prints this summary.</p>" + _table(table, ("count",)) + extra)
 
 
 def _source_pair_section(result: RunResult) -> str:

@@ -284,12 +284,17 @@ def create_app(workspaces: list[str | Path], *, host: str = "127.0.0.1", port: i
     # -- runs as jobs -------------------------------------------------------------------------
     @app.post(f"{PREFIX}/workspaces/{{ws}}/runs", response_model=Job, status_code=202, responses=ERRORS,
               tags=["runs"])
-    async def start_run(ws: str, request: Request) -> Any:
+    async def start_run(ws: str, request: Request,
+                        incremental: Annotated[bool, Query(description=(
+                            "build on the last run: only new and changed records are standardised and "
+                            "compared, and the last run's model scores the pairs"))] = False,
+                        refit: Annotated[bool, Query(description=(
+                            "with incremental: estimate the model again"))] = False) -> Any:
         """Start a run in the background; 409 with the running job when one is under way."""
         ctx = ctx_of(ws)
         who = auth.check(request, ctx, "admin")
         # started from the event loop's thread, which lives as long as the server (the worker dies with it)
-        job, created = ctx.jobs.start(who.name)
+        job, created = ctx.jobs.start(who.name, incremental=incremental, refit=refit)
         if not created:
             raise ApiError(409, "run_in_progress", f"a run is already {job['state']} (job {job['job_id']})",
                            "wait for it or cancel it", job=_job_model(job).model_dump())

@@ -42,14 +42,15 @@ class JobRunner:
         """Mark jobs of a previous server failed (call once at start, before taking requests)."""
         return self.store.fail_abandoned(ABANDONED)
 
-    def start(self, requested_by: str | None) -> tuple[dict[str, Any], bool]:
+    def start(self, requested_by: str | None, *, incremental: bool = False, refit: bool = False
+              ) -> tuple[dict[str, Any], bool]:
         """A new job (True), or the one already queued or running for this workspace (False)."""
         with self._lock:
             job = self.store.create(len(STAGES), requested_by)
             if not job.pop("created"):
                 return job, False
             command = [sys.executable, "-m", "integrate.service.worker", str(self.root), job["job_id"],
-                       str(os.getpid())]
+                       str(os.getpid())] + (["incremental"] if incremental else []) + (["refit"] if refit else [])
             try:
                 process = subprocess.Popen(command, stdin=subprocess.DEVNULL, cwd=str(self.root), env=_worker_env())
             except OSError as exc:

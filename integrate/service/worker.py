@@ -59,7 +59,7 @@ def cli_message(exc: BaseException) -> str:
     return f"error: internal error ({type(exc).__name__}: {exc}); please report it"
 
 
-def run_job(workspace: str, job_id: str) -> int:
+def run_job(workspace: str, job_id: str, *, incremental: bool = False, refit: bool = False) -> int:
     from ..pipeline import STAGES, run_pipeline
 
     jobs = JobStore.for_workspace(workspace)
@@ -79,7 +79,7 @@ def run_job(workspace: str, job_id: str) -> int:
 
     jobs.update(job_id, state="running", started_at=now_iso(), pid=os.getpid(), stages_total=len(STAGES))
     try:
-        result = run_pipeline(workspace, progress=progress)
+        result = run_pipeline(workspace, progress=progress, incremental=incremental, refit=refit)
     except RunCancelled as stop:
         jobs.finish(job_id, "cancelled", error=str(stop), timings=timings)
         return 0
@@ -100,7 +100,7 @@ def main(argv: list[str]) -> int:
     except OSError:
         pass
     logging.basicConfig(level=logging.WARNING, format="%(levelname)s: %(message)s")
-    return run_job(workspace, job_id)
+    return run_job(workspace, job_id, incremental="incremental" in argv[3:], refit="refit" in argv[3:])
 
 
 if __name__ == "__main__":
