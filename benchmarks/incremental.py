@@ -60,7 +60,9 @@ def child(folder: Path, incremental: bool) -> dict:
 
 def run_child(folder: Path, incremental: bool = False) -> dict:
     command = [sys.executable, __file__, "--child", str(folder)] + (["--incremental"] if incremental else [])
-    out = subprocess.run(command, check=True, capture_output=True, text=True)
+    out = subprocess.run(command, capture_output=True, text=True)
+    if out.returncode:
+        raise SystemExit(f"run failed ({' '.join(command)}):\n{out.stderr[-3000:]}")
     return json.loads(out.stdout.strip().splitlines()[-1])
 
 
