@@ -30,7 +30,7 @@ from __future__ import annotations
 import hashlib
 import json
 import logging
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
@@ -38,6 +38,7 @@ import pandas as pd
 
 from .columns import RECORD_DATE, RECORD_ID, SOURCE, TRUST
 from .compare import established, rare_words
+from .mapping.apply import MappedSource
 from .mapping.spec import CanonicalSchema
 from .score import FieldModel, ScoreModel
 from .standardise import FIRST_WORD, standardise
@@ -51,6 +52,19 @@ _KEY = "__key"
 _HASH = "__content"
 _STOOD = "__stood_for_copies"
 _ENTITY = "__entity"
+SAME_SOURCE = ("data", "mapping", "rates")  # what must be unchanged for a source not to be read again
+
+
+def source_states(data_hashes: dict[str, str | None], mapping_hashes: dict[str, str], rates_hash: str | None,
+                  entries: list, display: object) -> dict[str, dict[str, object]]:
+    """Per source: the hashes of its data file and mapping file and of the rates table now (a
+    source read from a database URL has no file hash and is always read)."""
+    out: dict[str, dict[str, object]] = {}
+    for entry, shown in entries:
+        out[entry.mapping.source] = {"data": data_hashes.get(shown) if shown else None,
+                                     "mapping": mapping_hashes.get(display(entry.mapping_file)),  # type: ignore[operator]
+                                     "rates": rates_hash}
+    return out
 
 
 def content_hashes(records: pd.DataFrame, canonical: CanonicalSchema) -> np.ndarray:
@@ -112,13 +126,20 @@ def carry_tables(records: pd.DataFrame, prepared: pd.DataFrame, pairs: pd.DataFr
 
 def write_carry(run_folder: Path, records: pd.DataFrame, prepared: pd.DataFrame, pairs: pd.DataFrame,
                 copy_of: np.ndarray | None, model: ScoreModel, canonical: CanonicalSchema, fingerprint: str,
-                entity_ids: object) -> None:
+                entity_ids: object, sources: dict[str, dict[str, object]] | None = None,
+                failures: pd.DataFrame | None = None) -> None:
+    """Write the ``.carry`` folder. ``sources``: per source, what makes its mapped records valid
+    (data file and mapping hashes, rates hash), its unmapped columns and its columns' types (see
+    ``source_states``); with ``failures``, an unchanged export need not be read again."""
     from .outputs.tables import write_tables, write_text_atomic
 
     folder = run_folder / CARRY
-    write_tables(folder, carry_tables(records, prepared, pairs, copy_of, canonical, entity_ids))
+    tables = carry_tables(records, prepared, pairs, copy_of, canonical, entity_ids)
+    if failures is not None:
+        tables["failures"] = (failures.astype({c: "string" for c in failures.columns}), ("parquet",))
+    write_tables(folder, tables)
     write_text_atomic(folder / "model.json", model_to_json(model))
-    write_text_atomic(folder / "settings.json", json.dumps({"fingerprint": fingerprint}))
+    write_text_atomic(folder / "settings.json", json.dumps({"fingerprint": fingerprint, "sources": sources or {}}))
 
 
 @dataclass
@@ -130,6 +151,33 @@ class Carried:
     grades: pd.DataFrame  # i, j (last run's positions), g_<field>
     model: ScoreModel
     run_folder: Path | None = None  # its merged table and provenance
+    sources: dict[str, dict] | None = None  # per source: hashes, unmapped columns, column types
+    _records: pd.DataFrame | None = None
+    _failures: pd.DataFrame | None = None
+
+    def mapped_source(self, name: str, state: dict[str, object]) -> MappedSource | None:
+        """The last run's mapped records of a source whose export, mapping and rates are as
+        they were (``state``: from ``source_states`` now), or None when it must be read."""
+        before = (self.sources or {}).get(name)
+        if before is None or self.run_folder is None or state.get("data") is None or \
+                any(before.get(k) != state.get(k) for k in SAME_SOURCE) or "columns" not in before:
+            return None
+        failures_file = self.run_folder / CARRY / "failures.parquet"
+        if not failures_file.exists():
+            return None
+        if self._records is None:
+            self._records = pd.read_parquet(self.run_folder / "records.parquet")
+            self._failures = pd.read_parquet(failures_file)
+        columns: dict[str, str] = before["columns"]
+        frame = self._records[self._records[SOURCE].astype(str) == name]
+        frame = frame[list(columns)].reset_index(drop=True)
+        for column, dtype in columns.items():
+            if dtype == "object":  # text kept as Python strings, missing as None
+                frame[column] = frame[column].astype(object).where(frame[column].notna(), None)
+            else:
+                frame[column] = frame[column].astype(dtype)
+        failures = self._failures[self._failures["source"].astype(str) == name].reset_index(drop=True)
+        return MappedSource(name, frame, failures.astype(object), list(before.get("unmapped", [])))
 
 
 def read_carry(run_folder: str | Path | None, run_id: int, fingerprint: str) -> tuple[Carried | None, str]:
@@ -143,7 +191,8 @@ def read_carry(run_folder: str | Path | None, run_id: int, fingerprint: str) -> 
     if settings.get("fingerprint") != fingerprint:
         return None, f"the schema or phone regions changed since run {run_id}"
     return Carried(run_id, pd.read_parquet(folder / "prepared.parquet"), pd.read_parquet(folder / "grades.parquet"),
-                   model_from_json((folder / "model.json").read_text(encoding="utf-8")), Path(run_folder)), ""
+                   model_from_json((folder / "model.json").read_text(encoding="utf-8")), Path(run_folder),
+                   settings.get("sources", {})), ""
 
 
 # ---- this run against it -----------------------------------------------------------------------
@@ -341,10 +390,13 @@ class IncrementalSummary:
     stored_pairs_dropped: int = 0
     entities_resolved: int = 0  # entities whose merged row was made again (the rest kept theirs)
     entities_kept: int = 0
+    sources_not_read: list[str] = field(default_factory=list)  # exports unchanged since the last run
     model: str = "kept"  # 'kept' (the last run's) or 're-estimated' (asked, or many new records)
 
     def text(self) -> str:
         return (f"incremental run on run {self.built_on}: {self.unchanged:,} records unchanged, {self.new:,} new, "
                 f"{self.changed:,} changed, {self.removed:,} removed; {self.pairs_reused:,} candidate pairs' grades "
                 f"reused, {self.pairs_compared:,} compared; {self.entities_resolved:,} entities resolved again, "
-                f"{self.entities_kept:,} kept; model {self.model}")
+                f"{self.entities_kept:,} kept; model {self.model}"
+                + (f"; not read again (unchanged): {', '.join(self.sources_not_read)}" if self.sources_not_read
+                   else ""))

@@ -26,6 +26,7 @@ from .evaluate import Evaluation, evaluate, hard_negatives, read_crosswalk_file
 from .ids import ChangeSummary, assign_stable_ids, canonical_order, money_digits, record_hashes
 from .incremental import (
     REFIT_SHARE,
+    Carried,
     IncrementalSummary,
     plan,
     prepared_for,
@@ -34,6 +35,7 @@ from .incremental import (
     reuse_for,
     settings_fingerprint,
     settled,
+    source_states,
     write_carry,
 )
 from .killpoints import reached
@@ -46,7 +48,7 @@ from .outputs.missing import run_missing_values
 from .resolve import check_orders, resolve, source_pair_conflicts
 from .score import ScoreModel
 from .sources import add_read_failures, read_source
-from .state import NewRun, RunHistory, RunLock, StateStore, input_hashes
+from .state import NewRun, RunHistory, RunLock, StateStore, file_hash, input_hashes
 from .workspace import Workspace, load_workspace
 
 if TYPE_CHECKING:
@@ -126,10 +128,14 @@ def judge_against_truth(ws: Workspace, records: pd.DataFrame, match: MatchResult
 
 
 def read_and_map(ws: Workspace, progress: Progress = _quiet,
-                 on_read: Callable[[Any, pd.DataFrame], None] | None = None) -> tuple[pd.DataFrame, list[MappedSource]]:
+                 on_read: Callable[[Any, pd.DataFrame], None] | None = None,
+                 reuse: Callable[[Any], MappedSource | None] | None = None
+                 ) -> tuple[pd.DataFrame, list[MappedSource]]:
     """Read every source and map it to canonical columns; all input problems are raised together.
 
-    ``on_read`` is called with each source entry and its frame as read (the run profiles it there).
+    ``on_read`` is called with each source entry and its frame as read (the run profiles it there);
+    ``reuse`` may give a source's mapped records without reading it (an incremental run, for an
+    export unchanged since the last run).
     """
     rates: RatesTable | None = None
     if ws.canonical.rates:
@@ -145,6 +151,10 @@ def read_and_map(ws: Workspace, progress: Progress = _quiet,
         mapping = entry.mapping
         data_path = entry.data_path(ws.root)
         data_file = ws.display(data_path) if data_path else str(mapping.read.url)
+        same = reuse(entry) if reuse is not None else None
+        if same is not None:
+            mapped.append(same)
+            continue
         try:
             raw = read_source(mapping.read, ws.root, name=mapping.source)
             if on_read is not None:
@@ -265,28 +275,39 @@ def incremental_settings(ws: Workspace, regions: dict[str, str | None]) -> str:
     return settings_fingerprint(ws.mapping_hashes()[ws.display(ws.canonical_file)], regions)
 
 
-def _build_on_last_run(ws: Workspace, records: pd.DataFrame, regions: dict[str, str | None], history: RunHistory,
-                       fingerprint: str, refit: bool, engine: str, model: ScoreModel | None
-                       ) -> tuple[dict[str, Any], list[str]]:
-    """What an incremental run takes from the last one: standard values, reusable grades, model."""
+def _last_carry(history: RunHistory, fingerprint: str, engine: str) -> tuple[Carried | None, list[str]]:
+    """What the last run left for an incremental run, or None and a warning saying why not."""
     previous = history.previous
     if engine != "local":
-        return {"model": model}, [f"incremental runs use the local engine; this run on '{engine}' ran in full"]
+        return None, [f"incremental runs use the local engine; this run on '{engine}' ran in full"]
     if previous is None:
-        return {"model": model}, ["no earlier run to build on: this incremental run ran in full"]
+        return None, ["no earlier run to build on: this incremental run ran in full"]
     found, why = read_carry(previous.output_dir, previous.run_id, fingerprint)
     if found is None:
-        return {"model": model}, [f"incremental run not possible ({why}): ran in full"]
+        return None, [f"incremental run not possible ({why}): ran in full"]
+    return found, []
+
+
+def _source_states(ws: Workspace, inputs: dict[str, str | None]) -> dict[str, dict[str, object]]:
+    rates = file_hash(ws.root / ws.canonical.rates) if ws.canonical.rates and (ws.root / ws.canonical.rates).is_file() \
+        else None
+    entries = [(e, ws.display(e.data_path(ws.root)) if e.data_path(ws.root) is not None else None) for e in ws.sources]
+    return source_states(inputs, ws.mapping_hashes(), rates, entries, ws.display)
+
+
+def _build_on_last_run(ws: Workspace, records: pd.DataFrame, regions: dict[str, str | None], found: Carried,
+                       refit: bool, model: ScoreModel | None, not_read: list[str]) -> dict[str, Any]:
+    """What an incremental run takes from the last one: standard values, reusable grades, model."""
     the_plan = plan(records, ws.canonical, found)
     prepared = prepared_for(records, ws.canonical, regions, found, the_plan)
-    summary = IncrementalSummary(previous.run_id, the_plan.unchanged, the_plan.new, the_plan.changed,
-                                 the_plan.removed)
+    summary = IncrementalSummary(found.run_id, the_plan.unchanged, the_plan.new, the_plan.changed,
+                                 the_plan.removed, sources_not_read=not_read)
     if model is None and not refit and the_plan.share_new() <= REFIT_SHARE:
         model = found.model
     else:
         summary.model = "given" if model is not None else "re-estimated"
     return {"prepared": prepared, "model": model, "summary": summary, "found": found, "plan": the_plan,
-            "reuse": lambda full, copy_of: reuse_for(found, the_plan, full, copy_of, ws.canonical)}, []
+            "reuse": lambda full, copy_of: reuse_for(found, the_plan, full, copy_of, ws.canonical)}
 
 
 def _run(ws: Workspace, progress: Progress, *, write: bool, output_dir: Path | None, keep_runs: int | None,
@@ -311,22 +332,35 @@ def _run(ws: Workspace, progress: Progress, *, write: bool, output_dir: Path | N
     from .history_store import SourceProfiles  # column profiles for drift checks, taken as each source is read
 
     profiles = SourceProfiles(ws) if write else None
-    records, mapped = read_and_map(ws, tick, on_read=profiles)
-    records = canonical_order(records)  # nothing downstream may depend on the order of rows in the files
     regions = {e.mapping.source: e.mapping.region for e in ws.sources}
+    history = RunHistory.load(ws.root, create=write)
+    fingerprint = incremental_settings(ws, regions)
+    found, notes = _last_carry(history, fingerprint, engine) if incremental else (None, [])
+    states = _source_states(ws, inputs) if write else {}
+    not_read: list[str] = []
+
+    def unchanged_source(entry: Any) -> MappedSource | None:
+        """An export, mapping and rates table as the last run had them: its mapped records, not read again."""
+        same = found.mapped_source(entry.mapping.source, states[entry.mapping.source]) if found and states else None
+        if same is not None:
+            not_read.append(same.name)
+        return same
+
+    records, mapped = read_and_map(ws, tick, on_read=profiles, reuse=unchanged_source if found else None)
+    for m in mapped:
+        if m.name in states:
+            states[m.name].update(columns={c: str(t) for c, t in m.frame.dtypes.items()}, unmapped=m.unmapped_columns)
+    records = canonical_order(records)  # nothing downstream may depend on the order of rows in the files
     # reviewers' decisions (state store) are applied on every run, whatever the scores say
     from .review.apply import decision_constraints, summarise_review
 
     decided = decision_constraints(ws.root, records)
     from .engine import open_engine
 
-    history = RunHistory.load(ws.root, create=write)
-    fingerprint = incremental_settings(ws, regions)
     carried: dict[str, Any] = {"model": model}
-    notes: list[str] = []
-    if incremental:
+    if found is not None:
         tick("standardise")
-        carried, notes = _build_on_last_run(ws, records, regions, history, fingerprint, refit, engine, model)
+        carried = _build_on_last_run(ws, records, regions, found, refit, model, not_read)
     with open_engine(engine, scheduler) as runner:
         match = match_records(records, ws.canonical, regions=regions, progress=tick, must_link=decided.must_link,
                               cannot_link=decided.cannot_link, estimator=decided.estimator,
@@ -396,7 +430,7 @@ def _run(ws: Workspace, progress: Progress, *, write: bool, output_dir: Path | N
             "failures": (failures.astype({c: "string" for c in failures.columns}), ("csv",)),
         }, profiles, carry=lambda folder: write_carry(folder, records, match.prepared, match.pairs, match.copy_of,
                                                       match.model, ws.canonical, fingerprint,
-                                                      match.entities["entity_id"]))
+                                                      match.entities["entity_id"], states, failures))
     tick("done")
     return result
 

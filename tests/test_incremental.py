@@ -108,6 +108,10 @@ def test_an_incremental_run_gives_the_crosswalk_of_a_full_run_with_the_model_hel
     # the month's changes were seen as such, and most pairs were not compared again
     summary = inc.incremental
     assert summary is not None and summary.model == "kept"
+    # the exports that did not change were not read again: their mapped records came from the last run
+    assert sorted(summary.sources_not_read) == ["events", "membership"]
+    pd.testing.assert_frame_equal(inc.failures.astype(str), full.failures.astype(str))
+    assert inc.unmapped == full.unmapped and inc.source_counts == full.source_counts
     assert (summary.new, summary.changed, summary.removed) == (counts["added"], counts["changed"], counts["removed"])
     assert summary.pairs_reused + summary.pairs_compared == len(inc.pairs)
     assert summary.pairs_compared < 0.25 * len(inc.pairs)
