@@ -334,18 +334,29 @@ def test_show_prints_an_entity_and_its_records(two_runs: TwoRuns, capsys: pytest
     assert "entity 'ENOSUCHID' is not in the last run's merged table" in capsys.readouterr().err
 
 
-def test_show_points_from_an_old_id_to_where_its_records_went(two_runs: TwoRuns,
+def test_show_points_from_an_old_id_to_where_its_records_went(workspace: Path,
                                                                 capsys: pytest.CaptureFixture[str]) -> None:
-    changes = pd.read_csv(two_runs.root / "out" / "changes.csv", dtype=str, keep_default_na=False)
-    merged = changes[changes["change"] == "merged"]
-    # an earlier entity merged into another whole is gone; one that gave up only some records lives on
-    current = set(pd.read_csv(two_runs.root / "out" / "crosswalk.csv", dtype=str)["entity_id"])
-    gone = [e for row in merged.itertuples() for e in row.related_ids.split()
-            if e != row.entity_id and e not in current]
-    if not gone:
-        pytest.skip("this run merged no two earlier entities")
-    assert cli.main(["show", gone[0], str(two_runs.root)]) == 2
-    assert "its records are now in:" in capsys.readouterr().err
+    """A constructed merge: a reviewer decides that two records of two one-record entities are the
+    same person, so the next run merges the entities and one ID stops being current."""
+    from integrate.review.store import DecisionStore, NewDecision
+
+    first = run(workspace)
+    crosswalk = first.crosswalk
+    alone = crosswalk[crosswalk.groupby("entity_id")["entity_id"].transform("size") == 1]
+    a = alone[alone["source"] == "webshop"].iloc[0]
+    b = alone[alone["source"] == "rentals"].iloc[0]
+    DecisionStore.for_workspace(workspace).record(NewDecision(
+        source_a=a["source"], record_id_a=a["record_id"], source_b=b["source"], record_id_b=b["record_id"],
+        decision="same", reviewer="test"))
+    second = run(workspace)
+    now = second.crosswalk.set_index(["source", "record_id"])["entity_id"]
+    kept = now[(a["source"], a["record_id"])]
+    assert kept == now[(b["source"], b["record_id"])]  # merged
+    gone = ({a["entity_id"], b["entity_id"]} - {kept}).pop()
+    assert gone not in set(second.crosswalk["entity_id"])  # the IDs are never reused; this one is retired
+    assert cli.main(["show", gone, str(workspace)]) == 2
+    err = capsys.readouterr().err
+    assert "its records are now in:" in err and kept in err
 
 
 # --- row order -----------------------------------------------------------------------------------
