@@ -155,6 +155,12 @@ class Carried:
     _records: pd.DataFrame | None = None
     _failures: pd.DataFrame | None = None
 
+    def after_matching(self) -> None:
+        """Let go of what only reading and matching needed (memory): keep each record's entity."""
+        self.prepared = self.prepared[[_ENTITY]] if _ENTITY in self.prepared else self.prepared.iloc[:, :0]
+        self.grades = self.grades.iloc[:0]
+        self._records = self._failures = None
+
     def mapped_source(self, name: str, state: dict[str, object]) -> MappedSource | None:
         """The last run's mapped records of a source whose export, mapping and rates are as
         they were (``state``: from ``source_states`` now), or None when it must be read."""

@@ -368,6 +368,8 @@ def _run(ws: Workspace, progress: Progress, *, write: bool, output_dir: Path | N
                               engine=runner, prepared=carried.get("prepared"), reuse=carried.get("reuse"),
                               model=carried.get("model"))
     summary = carried.get("summary")
+    if found is not None:
+        found.after_matching()
     if summary is not None and match.reuse is not None:
         summary.pairs_reused, summary.pairs_compared = match.reuse.reused, match.reuse.compared
         summary.stored_pairs_dropped = match.reuse.dropped
