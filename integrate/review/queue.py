@@ -126,10 +126,10 @@ def load_review_data(workspace: str | Path) -> ReviewData:
     joined = pairs[pairs["decision"].isin(["link", "possible link"])]
     cases = suspicious_clusters(joined, crosswalk, clusters, splits)
     queue = order_queue(pairs, cases=cases)
+    anchored = queue.loc[queue["cluster_id"] != "", KEY_COLUMNS + ["cluster_id"]]
     return ReviewData(Path(workspace), pairs.set_index(KEY_COLUMNS, drop=False).sort_index(), queue, records,
                       fields, as_of, trust, {c.cluster_id: c for c in cases},
-                      {k: c for *k, c in queue.loc[queue["cluster_id"] != "", KEY_COLUMNS + ["cluster_id"]]
-                       .itertuples(index=False, name=None)})
+                      {tuple(row[:4]): row[4] for row in anchored.itertuples(index=False, name=None)})
 
 
 def _differs(frame: pd.DataFrame, field: str, ftype: str) -> pd.Series:

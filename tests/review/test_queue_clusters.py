@@ -29,7 +29,8 @@ CROSSWALK = pd.DataFrame({"source": ["s"] * 11, "record_id": [str(i) for i in ra
                           "entity_id": ["X", "X", "X", "X", "Y", "Y", "Z", "W", "V", "U", "U"]})
 CLUSTERS = pd.DataFrame({
     "entity_id": ["X", "Y", "Z", "W", "V", "U"], "records": [4, 2, 1, 1, 1, 2], "sources": [1] * 6,
-    "weakest_link": [0.85, 0.99, None, None, None, 0.99], "lowest_pair_probability": [0.05, 0.99, None, None, None, 0.99],
+    "weakest_link": [0.85, 0.99, None, None, None, 0.99],
+    "lowest_pair_probability": [0.05, 0.99, None, None, None, 0.99],
     "possible_links_inside": [0] * 6, "cut_by": ["", "", "", "", "chaining guard", "chaining guard"]})
 SPLITS = pd.DataFrame([{"reason": "chaining guard", "detail": None, "source_a": "s", "record_id_a": "11",
                         "source_b": "s", "record_id_b": "9", "probability": 0.001, "links_cut": 1, "weight_cut": 0.9}])
