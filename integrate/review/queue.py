@@ -4,13 +4,13 @@ The queue holds the last run's possible links (the band between the two threshol
 suspicious cluster as a whole (``review.clusters``: cut by the run, two records compared as clearly
 different, or three or more records hanging by a weak link), listed under the link its proposed
 split cuts; an audit queue holds a random sample of automatic links drawn by ``integrate review
---audit``. Items are ordered by how many records a decision would settle, weighed by how uncertain
-the run was: priority = uncertainty × log2(1 + reach), where uncertainty = 1 − |2p − 1| is 1 at
-match probability 0.5 and 0 at 0 or 1 (p of the pair, or of the link a cluster's split cuts), and
-reach is the number of records the decision settles: for a possible link, the records of the group
-it belongs to when links and possible links are joined (a decision there can move them all); for a
-cluster, its records (one decision places every one of them). Audit items keep their random order,
-so stopping part-way still leaves a random sample.
+--audit``. Items are ordered by how many records a decision would settle (``reach``), and among
+items of equal reach the most uncertain first: priority = reach + uncertainty / 2, where
+uncertainty = 1 − |2p − 1| is 1 at match probability 0.5 and 0 at 0 or 1 (p of the pair, or of the
+link a cluster's proposed split cuts; halved, it stays below 1 and only breaks ties). Reach is, for
+a possible link, the records of the group it belongs to when links and possible links are joined
+(a decision there can move them all); for a cluster, its records (one decision places every one of
+them). Audit items keep their random order, so stopping part-way still leaves a random sample.
 """
 
 from __future__ import annotations
@@ -101,7 +101,7 @@ def order_queue(pairs: pd.DataFrame, crosswalk: pd.DataFrame | None = None,
     possible = possible[possible["_merge"] == "left_only"].drop(columns="_merge")
     queue = pd.concat([possible, whole], ignore_index=True)
     queue["uncertainty"] = 1.0 - (2.0 * queue["probability"] - 1.0).abs()
-    queue["priority"] = queue["uncertainty"] * np.log2(1.0 + queue["reach"])
+    queue["priority"] = queue["reach"] + queue["uncertainty"] / 2  # records settled first; uncertainty breaks ties
     return queue.sort_values(["priority"] + KEY_COLUMNS, ascending=[False] + [True] * 4,
                              kind="mergesort").reset_index(drop=True)
 

@@ -54,14 +54,20 @@ def test_a_cut_of_the_run_is_a_case_of_both_entities_split_where_the_run_split_t
     assert cut.anchor == ("s", "10", "s", "9")  # the link the cut removed
 
 
+def test_equal_reach_puts_the_most_uncertain_first() -> None:
+    pairs = pd.DataFrame([_pair("1", "2", 0.9, "possible link"), _pair("3", "4", 0.6, "possible link")])
+    queue = order_queue(pairs)
+    assert list(queue["record_id_a"]) == ["3", "1"] and list(queue["reach"]) == [2, 2]
+
+
 def test_the_queue_holds_each_cluster_once_with_its_records_as_reach() -> None:
     queue = order_queue(PAIRS, CROSSWALK, CLUSTERS, SPLITS)
     rows = {(r.record_id_a, r.record_id_b): (r.cluster_id, r.reach) for r in queue.itertuples()}
     assert rows == {("7", "8"): ("", 2), ("2", "3"): ("X", 4), ("10", "9"): ("U+V", 3)}
-    # priority = uncertainty x log2(1 + reach): 7~8 1.0 x log2 3 = 1.58, X 0.3 x log2 5 = 0.70,
-    # U+V 0.2 x log2 4 = 0.40
-    assert list(queue["record_id_a"]) == ["7", "2", "10"]
-    expected = (1 - np.abs(2 * queue["probability"] - 1)) * np.log2(1 + queue["reach"])
+    # by records settled: X (4 records), U+V (3), then the possible link (2), although 7~8 at 0.5 is
+    # the most uncertain
+    assert list(queue["record_id_a"]) == ["2", "10", "7"]
+    expected = queue["reach"] + (1 - np.abs(2 * queue["probability"] - 1)) / 2
     assert np.allclose(queue["priority"], expected)
 
 
