@@ -46,10 +46,11 @@ NOTES = {
     "trust": "Trust rank: how far each source is believed when records disagree (1 = trusted most). It is set in "
              "each source's mapping file ('trust:') and decides which value the merged row keeps; it does not change "
              "the match probability.",
-    "queue": "The queue can be longer than the number of possible links: besides the pairs between the two "
-             "thresholds it holds, for every suspicious cluster (cut by a constraint or the chaining guard, two "
-             "records compared as clearly different, or three or more records held by a weak link), the weakest "
-             "link holding that cluster together. Judging it decides whether the cluster stays whole.",
+    "queue": "The queue holds the pairs between the two thresholds and every suspicious cluster as a whole (cut "
+             "by the run, two records compared as clearly different, or three or more records held by a weak link): "
+             "a cluster shows all its records side by side with a proposed split into part A and part B, and one "
+             "decision (keep together, or split) settles every record in it. Items that settle the most records "
+             "come first; among those, the most uncertain.",
     "weights": "Weight (bits): the evidence each field adds for (+) or against (-) the two records being one "
                "person; the total decides the match probability.",
 }
