@@ -40,7 +40,7 @@ from .clusters import (
     within,
 )
 from .diff import diff_segments
-from .store import KEY_COLUMNS, DecisionStore, NewDecision, order_pairs, ordered_pair, pair_text
+from .store import KEY_COLUMNS, DecisionStore, NewDecision, order_pairs, pair_text
 
 POSSIBLE, AUDIT = "possible", "audit"
 Key = tuple[str, str, str, str]
@@ -275,8 +275,7 @@ def cluster_item(data: ReviewData, store: DecisionStore, cluster_id: str) -> dic
     """Everything the page shows about a suspicious cluster, with the standing decisions on it."""
     case = data.cases[cluster_id]
     pairs = within(data.pairs.reset_index(drop=True), list(case.members))
-    decided = {k: v for k, v in ((ordered_pair(*k), store.get(k)) for k in
-                                 pairs[KEY_COLUMNS].itertuples(index=False, name=None)) if v}
+    decided = store.decisions_on(list(pairs[KEY_COLUMNS].itertuples(index=False, name=None)))
     payload = cluster_payload(case, pairs, data.records, data.fields, data.as_of, data.trust, decided,
                               format_value)
     standing = store.cluster_decisions(cluster_id)
