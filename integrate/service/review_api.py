@@ -48,7 +48,8 @@ NOTES = {
              "the match probability.",
     "queue": "The queue holds the pairs between the two thresholds and every suspicious cluster as a whole (cut "
              "by the run, two records compared as clearly different, or three or more records held by a weak link): "
-             "a cluster shows all its records side by side with a proposed split into part A and part B, and one "
+             "a cluster shows all its records side by side with a proposed split into part A and part B (where "
+             "the run cut it, or else at its weakest link), and one "
              "decision (keep together, or split) settles every record in it. Items that settle the most records "
              "come first; among those, the most uncertain.",
     "weights": "Weight (bits): the evidence each field adds for (+) or against (-) the two records being one "
