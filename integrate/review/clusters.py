@@ -1,12 +1,13 @@
 """Suspicious clusters reviewed as a whole: their records, the pairs inside, and a proposed split.
 
-A cluster is suspicious when the run cut it (the chaining guard, a one-per-person source or a
-``different`` decision), when two of its records compared as clearly different (a pair below
-``SUSPICIOUS_PAIR``), or when it has at least three records and hangs by a link weaker than
-``SUSPICIOUS_LINK``. Each becomes one review case:
+A cluster is suspicious when the run cut it (the chaining guard or a one-per-person source), when
+two of its records compared as clearly different (a pair below ``SUSPICIOUS_PAIR``), or when it has
+at least three records and hangs by a link weaker than ``SUSPICIOUS_LINK``. Each becomes one review case:
 
-- **cut by the run**: every cut in ``splits.csv`` between two entities of this run is a case of
-  both entities together, split where the run split them (part A one entity, part B the other);
+- **cut by the run**: every cut in ``splits.csv`` between two entities of this run that the run
+  made itself (the chaining guard, a one-per-person source; not a reviewer's ``different``
+  decision) is a case of both entities together, split where the run split them (part A one
+  entity, part B the other);
 - **whole but doubtful**: the entity's records, split at the weakest link of a maximum spanning
   tree of its links (the figure ``cluster.py`` reports as ``weakest_link``); when two records
   compared below ``SUSPICIOUS_PAIR``, at the weakest link on the tree's path between the most
@@ -169,7 +170,8 @@ def _run_cuts(links: pd.DataFrame, entity: pd.Series, members_of: dict[str, list
     """One case per pair of entities a cut of this run separated (the cut's strongest link as anchor)."""
     if splits is None or splits.empty:
         return []
-    cuts = splits[splits["reason"].isin(["chaining guard", "one record per person", "different decision"])]
+    # a cut a reviewer's 'different' decision made was reviewed already: only the run's own cuts are asked
+    cuts = splits[splits["reason"].isin(["chaining guard", "one record per person"])]
     ea = entity.reindex(pd.MultiIndex.from_arrays([links["source_a"], links["record_id_a"]])).to_numpy()
     eb = entity.reindex(pd.MultiIndex.from_arrays([links["source_b"], links["record_id_b"]])).to_numpy()
     across = links.assign(entity_a=ea, entity_b=eb)

@@ -60,6 +60,11 @@ def test_equal_reach_puts_the_most_uncertain_first() -> None:
     assert list(queue["record_id_a"]) == ["3", "1"] and list(queue["reach"]) == [2, 2]
 
 
+def test_a_cut_a_reviewer_made_is_not_asked_again() -> None:
+    decided = SPLITS.assign(reason="different decision")
+    assert "U+V" not in {c.cluster_id for c in suspicious_clusters(PAIRS, CROSSWALK, CLUSTERS, decided)}
+
+
 def test_the_queue_holds_each_cluster_once_with_its_records_as_reach() -> None:
     queue = order_queue(PAIRS, CROSSWALK, CLUSTERS, SPLITS)
     rows = {(r.record_id_a, r.record_id_b): (r.cluster_id, r.reach) for r in queue.itertuples()}
