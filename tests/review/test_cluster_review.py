@@ -161,3 +161,8 @@ def test_bad_cluster_requests_get_clear_errors(reviewed_ws: Path) -> None:
             api.undo_cluster(WS)
         assert nothing.value.status == 404 and nothing.value.body["error"]["reason"] == "nothing_to_undo"
     assert DecisionStore.for_workspace(reviewed_ws).decisions().empty
+
+
+def test_a_decided_split_is_not_asked_again_next_run(decided: Decided) -> None:
+    both = set(_records(decided.split))
+    assert not any(set(c.members) >= both for c in load_review_data(decided.root).cases.values())
