@@ -10,6 +10,8 @@ Example (against a running server; the token from ``integrate serve token create
         story = api.entity("demo", entity["entity_id"])  # merged row, members, provenance
         pair = api.next_pair("demo")["item"]
         api.decide("demo", pair["key"], "same")
+        # a suspicious cluster as a whole: one decision on all its records
+        # api.decide_cluster("demo", cluster_id, "split")   # or "keep together"
 
 Every error response raises ``ServiceError`` with the status and the server's JSON error.
 """
@@ -156,3 +158,22 @@ class Client:
 
     def decisions(self, ws: str) -> list[dict[str, Any]]:
         return self._call("GET", f"/workspaces/{ws}/review/decisions")["decisions"]
+
+    def cluster(self, ws: str, cluster_id: str) -> dict[str, Any]:
+        """A suspicious cluster as a whole: records side by side, its pairs, the proposed split."""
+        return self._call("GET", f"/workspaces/{ws}/review/clusters/{cluster_id}")
+
+    def decide_cluster(self, ws: str, cluster_id: str, choice: str, *, part_a: list[tuple[str, str]] | None = None,
+                       note: str | None = None) -> dict[str, Any]:
+        """One decision on a whole cluster: ``choice`` 'keep together' or 'split' (as proposed, or with
+        ``part_a`` as (source, record ID) pairs); returns the stored cluster decision."""
+        body: dict[str, Any] = {"choice": choice, "note": note}
+        if part_a is not None:
+            body["part_a"] = [{"source": s, "record_id": r} for s, r in part_a]
+        return self._call("POST", f"/workspaces/{ws}/review/clusters/{cluster_id}/decision",
+                          json=body)["cluster_decision"]
+
+    def undo_cluster(self, ws: str, cluster_decision_id: int | None = None) -> dict[str, Any]:
+        """Undo a cluster decision (by default your most recent) with every pairwise decision it stored."""
+        return self._call("POST", f"/workspaces/{ws}/review/clusters/undo",
+                          json={"cluster_decision_id": cluster_decision_id})

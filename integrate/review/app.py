@@ -22,6 +22,8 @@ SHORTCUTS = [  # key, what it does (shown on the page, handled by review.js)
     ("S", "same person"),
     ("D", "different people"),
     ("L", "decide later"),
+    ("K", "keep a cluster together (a cluster shown as a whole)"),
+    ("P", "split a cluster as proposed (or as you set the parts)"),
     ("U", "undo my last decision"),
     ("N", "write a note (Esc leaves the note)"),
 ]

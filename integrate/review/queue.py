@@ -1,21 +1,21 @@
-"""The review queue: which pair a reviewer sees next, and everything shown about it.
+"""The review queue: which item a reviewer sees next, and everything shown about it.
 
-The queue holds the last run's possible links (the band between the two thresholds) and, for every
-suspicious cluster, the weakest link holding it together; an audit queue holds a random sample of
-automatic links drawn by ``integrate review --audit``. A cluster is suspicious when it was cut (by
-the chaining guard or a constraint), when two of its records compared as clearly different
-(lowest pair probability below ``SUSPICIOUS_PAIR``), or when it has at least three records hanging
-by a link weaker than ``SUSPICIOUS_LINK``: judging its weakest link decides whether it stays whole
-(a ``different`` decision cuts it there on the next run). Possible
-links are ordered so that each decision counts most: priority = uncertainty × log2(1 + reach),
-where uncertainty = 1 − |2p − 1| is 1 at match probability 0.5 and 0 at 0 or 1, and reach is the
-number of records in the group the pair belongs to when links and possible links are joined
-(a decision there can move the most records). Audit items keep their random order, so stopping
-part-way still leaves a random sample.
+The queue holds the last run's possible links (the band between the two thresholds) and every
+suspicious cluster as a whole (``review.clusters``: cut by the run, two records compared as clearly
+different, or three or more records hanging by a weak link), listed under the link its proposed
+split cuts; an audit queue holds a random sample of automatic links drawn by ``integrate review
+--audit``. Items are ordered by how many records a decision would settle (``reach``), and among
+items of equal reach the most uncertain first: priority = reach + uncertainty / 2, where
+uncertainty = 1 − |2p − 1| is 1 at match probability 0.5 and 0 at 0 or 1 (p of the pair, or of the
+link a cluster's proposed split cuts; halved, it stays below 1 and only breaks ties). Reach is, for
+a possible link, the records of the group it belongs to when links and possible links are joined
+(a decision there can move them all); for a cluster, its records (one decision places every one of
+them). Audit items keep their random order, so stopping part-way still leaves a random sample.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass
 from pathlib import Path
@@ -28,12 +28,21 @@ import pandas as pd
 from ..compare import GRADE_NAMES
 from ..errors import InputError
 from ..workspace import load_workspace
+from .clusters import (
+    KEEP,
+    Choice,
+    ClusterCase,
+    Record,
+    cluster_payload,
+    equivalent_decisions,
+    queue_rows,
+    suspicious_clusters,
+    within,
+)
 from .diff import diff_segments
-from .store import KEY_COLUMNS, DecisionStore, order_pairs, pair_text
+from .store import KEY_COLUMNS, DecisionStore, NewDecision, order_pairs, pair_text
 
 POSSIBLE, AUDIT = "possible", "audit"
-SUSPICIOUS_LINK = 0.95  # a cluster of 3+ records held by a link below this is worth a look
-SUSPICIOUS_PAIR = 0.2  # ... and so is one holding two records that compared below this
 Key = tuple[str, str, str, str]
 
 
@@ -48,6 +57,8 @@ class ReviewData:
     fields: dict[str, str]  # canonical field -> type, in schema order
     as_of: dict[str, str]  # source -> as-of date (ISO 8601)
     trust: dict[str, int]  # source -> trust rank
+    cases: dict[str, ClusterCase] = dataclasses.field(default_factory=dict)  # suspicious clusters by cluster ID
+    anchors: dict[Key, str] = dataclasses.field(default_factory=dict)  # queued anchor pair -> cluster ID
 
     @property
     def sources(self) -> list[str]:
@@ -74,43 +85,23 @@ def reach_of(pairs: pd.DataFrame) -> np.ndarray:
     return a.map(size).to_numpy(np.int64) if len(a) else np.zeros(0, np.int64)
 
 
-def suspicious_links(pairs: pd.DataFrame, crosswalk: pd.DataFrame | None, clusters: pd.DataFrame | None
-                     ) -> pd.DataFrame:
-    """The weakest link of every suspicious cluster (see the module docstring), with a ``reason``."""
-    if crosswalk is None or clusters is None or pairs.empty:
-        return pairs.iloc[0:0].assign(reason="")
-    cut = clusters["cut_by"].fillna("").astype(str) != ""
-    odd = (clusters["lowest_pair_probability"] < SUSPICIOUS_PAIR) | (
-        (clusters["records"] >= 3) & (clusters["weakest_link"] < SUSPICIOUS_LINK))
-    flagged = clusters[cut | odd].set_index("entity_id")
-    entity = crosswalk.astype({"source": str, "record_id": str}).set_index(["source", "record_id"])["entity_id"]
-    links = pairs[pairs["decision"] == "link"]
-    ea = entity.reindex(pd.MultiIndex.from_arrays([links["source_a"], links["record_id_a"]])).to_numpy()
-    eb = entity.reindex(pd.MultiIndex.from_arrays([links["source_b"], links["record_id_b"]])).to_numpy()
-    held = (ea == eb) & pd.Series(ea).isin(flagged.index).to_numpy()
-    inside = links[held].assign(entity_id=ea[held])
-    weakest = inside.sort_values(["probability"] + KEY_COLUMNS, kind="mergesort").drop_duplicates("entity_id")
-    info = flagged.loc[weakest["entity_id"]]
-    reasons = [
-        f"weakest link of entity {e} ({n} records from {k} sources"
-        + (f"; cut by {c}" if c else "") + f"; lowest pair probability {low:.3f})"
-        for e, n, k, c, low in zip(weakest["entity_id"], info["records"], info["sources"],
-                                    info["cut_by"].fillna("").astype(str), info["lowest_pair_probability"])
-    ]
-    return weakest.drop(columns="entity_id").assign(reason=reasons)
-
-
 def order_queue(pairs: pd.DataFrame, crosswalk: pd.DataFrame | None = None,
-                clusters: pd.DataFrame | None = None) -> pd.DataFrame:
-    """Possible links and suspicious clusters' weakest links with ``uncertainty``, ``reach`` and
-    ``priority``, highest priority first."""
+                clusters: pd.DataFrame | None = None, splits: pd.DataFrame | None = None,
+                cases: list[ClusterCase] | None = None) -> pd.DataFrame:
+    """Possible links and suspicious clusters (``cluster_id`` set, under their anchor pair) with
+    ``uncertainty``, ``reach`` and ``priority``, highest priority first."""
     joined = pairs[pairs["decision"].isin(["link", "possible link"])].copy()
     joined["reach"] = reach_of(joined)
-    possible = joined[joined["decision"] == "possible link"].assign(reason="possible link")
-    weakest = suspicious_links(joined, crosswalk, clusters)
-    queue = pd.concat([possible, weakest], ignore_index=True)
+    possible = joined[joined["decision"] == "possible link"].assign(reason="possible link", cluster_id="")
+    if cases is None:
+        cases = suspicious_clusters(joined, crosswalk, clusters, splits)
+    whole = queue_rows(cases, joined)
+    # a possible link that is also a cluster's anchor is reviewed with its cluster
+    possible = possible.merge(whole[KEY_COLUMNS], on=KEY_COLUMNS, how="left", indicator=True)
+    possible = possible[possible["_merge"] == "left_only"].drop(columns="_merge")
+    queue = pd.concat([possible, whole], ignore_index=True)
     queue["uncertainty"] = 1.0 - (2.0 * queue["probability"] - 1.0).abs()
-    queue["priority"] = queue["uncertainty"] * np.log2(1.0 + queue["reach"])
+    queue["priority"] = queue["reach"] + queue["uncertainty"] / 2  # records settled first; uncertainty breaks ties
     return queue.sort_values(["priority"] + KEY_COLUMNS, ascending=[False] + [True] * 4,
                              kind="mergesort").reset_index(drop=True)
 
@@ -130,9 +121,15 @@ def load_review_data(workspace: str | Path) -> ReviewData:
     trust = {e.mapping.source: e.mapping.trust for e in ws.sources}
     crosswalk = pd.read_csv(out / "crosswalk.csv", dtype=str) if (out / "crosswalk.csv").exists() else None
     clusters = pd.read_parquet(out / "clusters.parquet") if (out / "clusters.parquet").exists() else None
-    queue = order_queue(pairs, crosswalk, clusters)
+    splits = (pd.read_csv(out / "splits.csv", dtype={c: str for c in KEY_COLUMNS + ["reason", "detail"]})
+              if (out / "splits.csv").exists() else None)
+    joined = pairs[pairs["decision"].isin(["link", "possible link"])]
+    cases = suspicious_clusters(joined, crosswalk, clusters, splits)
+    queue = order_queue(pairs, cases=cases)
+    anchored = queue.loc[queue["cluster_id"] != "", KEY_COLUMNS + ["cluster_id"]]
     return ReviewData(Path(workspace), pairs.set_index(KEY_COLUMNS, drop=False).sort_index(), queue, records,
-                      fields, as_of, trust)
+                      fields, as_of, trust, {c.cluster_id: c for c in cases},
+                      {tuple(row[:4]): row[4] for row in anchored.itertuples(index=False, name=None)})
 
 
 def _differs(frame: pd.DataFrame, field: str, ftype: str) -> pd.Series:
@@ -272,3 +269,36 @@ def scores_snapshot(data: ReviewData, key: Key) -> dict[str, Any]:
               for c in row.index if str(c).startswith(("grade_", "weight_", "value_frequency_"))}
     return {"probability": float(row["probability"]), "weight": float(row["weight"]),
             "run_decision": str(row["decision"]), "scores": scores}
+
+
+def cluster_item(data: ReviewData, store: DecisionStore, cluster_id: str) -> dict[str, Any]:
+    """Everything the page shows about a suspicious cluster, with the standing decisions on it."""
+    case = data.cases[cluster_id]
+    pairs = within(data.pairs.reset_index(drop=True), list(case.members))
+    decided = store.decisions_on(list(pairs[KEY_COLUMNS].itertuples(index=False, name=None)))
+    payload = cluster_payload(case, pairs, data.records, data.fields, data.as_of, data.trust, decided,
+                              format_value)
+    standing = store.cluster_decisions(cluster_id)
+    payload["decision"] = standing[-1] if standing else None
+    return payload
+
+
+def decide_cluster(data: ReviewData, store: DecisionStore, cluster_id: str, choice: Choice, reviewer: str, *,
+                   part_a: list[Record] | None = None, note: str | None = None) -> dict[str, Any]:
+    """Record one decision on a whole cluster as its equivalent pairwise decisions (``review.clusters``).
+
+    Raises:
+        BadSplit: ``part_a`` names a record outside the cluster or leaves a part empty.
+        DecisionConflict: someone else decided one of the pairs otherwise (nothing is stored).
+    """
+    case = data.cases[cluster_id]
+    pairs = within(data.pairs.reset_index(drop=True), list(case.members))
+    wanted = equivalent_decisions(case, pairs, choice, part_a)
+    news = []
+    for key, decision in wanted:
+        snapshot = scores_snapshot(data, key) if key in data.pairs.index else {}
+        news.append(NewDecision(**dict(zip(KEY_COLUMNS, key)), decision=decision, reviewer=reviewer,  # type: ignore[arg-type]
+                                note=note, origin="cluster", **snapshot))
+    side = set(case.members if choice == KEEP else (case.part_a if part_a is None else part_a))
+    parts = {"A": [list(m) for m in case.members if m in side], "B": [list(m) for m in case.members if m not in side]}
+    return store.record_cluster(cluster_id, choice, parts, news)

@@ -51,6 +51,7 @@ from sqlalchemy import (
     insert,
     or_,
     select,
+    tuple_,
     update,
 )
 from sqlalchemy.exc import IntegrityError
@@ -114,6 +115,26 @@ audit_table = Table(
     Column("seed", Integer, nullable=False),
     Column("probability", Float),
     UniqueConstraint(*KEY_COLUMNS, name="uq_review_audit_pair"),
+)
+
+
+# a decision on a whole cluster: the pairwise decisions it stored, undone together
+cluster_decision_table = Table(
+    "review_cluster_decision", metadata,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("cluster_id", String, nullable=False),  # as the queue named it (entity IDs of that run)
+    Column("choice", String(16), nullable=False),  # keep together / split
+    Column("reviewer", String(200), nullable=False),
+    Column("decided_at", String(32), nullable=False),
+    Column("note", Text),
+    Column("parts", Text, nullable=False),  # JSON: {"A": [[source, record ID], ...], "B": [...]}
+)
+
+cluster_member_table = Table(
+    "review_cluster_member", metadata,
+    Column("cluster_decision_id", Integer, primary_key=True),
+    Column("decision_id", Integer, primary_key=True),
+    Column("revision", Integer, nullable=False),  # the pair's decision as the cluster decision left it
 )
 
 
@@ -259,11 +280,135 @@ class DecisionStore:
             self._log(conn, row, "undo")
         return row
 
+    def record_cluster(self, cluster_id: str, choice: str, parts: dict[str, list[tuple[str, str]]],
+                       decisions: list[NewDecision]) -> dict[str, Any]:
+        """Store a decision on a whole cluster as its pairwise ``decisions``, all in one transaction.
+
+        A pair that already holds the same decision is left as it is (and is not undone with the
+        cluster); the reviewer's own or a deferred decision is replaced; nothing is stored if any
+        pair was decided otherwise by someone else. Returns the cluster decision with its ``decisions``.
+
+        Raises:
+            DecisionConflict: another reviewer decided one of the pairs otherwise.
+        """
+        if not decisions:
+            raise IntegrateError(f"a decision on cluster {cluster_id} needs at least one pair")
+        reviewer = decisions[0].reviewer
+        for _ in range(_RETRIES):
+            try:
+                with self.engine.begin() as conn:
+                    # the write comes first, so the transaction holds the write lock before it reads
+                    group = {"cluster_id": cluster_id, "choice": choice, "reviewer": reviewer,
+                             "decided_at": now_iso(), "note": decisions[0].note or None,
+                             "parts": json.dumps(parts, sort_keys=True)}
+                    group_id = int(conn.execute(insert(cluster_decision_table).values(**group))
+                                   .inserted_primary_key[0])
+                    rows = [r for r in (self._record_in(conn, new, group_id) for new in decisions) if r]
+                    return {**group, "parts": parts, "id": group_id, "decisions": rows}
+            except IntegrityError:
+                continue  # another reviewer decided one of the pairs meanwhile: look again
+        raise IntegrateError(f"could not store the decision on cluster {cluster_id}: its pairs kept changing")
+
+    def _record_in(self, conn: Any, new: NewDecision, group_id: int) -> dict[str, Any] | None:
+        """One pair of a cluster decision inside the caller's transaction (None: it stood already)."""
+        key = ordered_pair(new.source_a, new.record_id_a, new.source_b, new.record_id_b)
+        values = {
+            **dict(zip(KEY_COLUMNS, key)), "decision": new.decision, "reviewer": new.reviewer,
+            "decided_at": new.decided_at or now_iso(), "note": (new.note or None),
+            "probability": new.probability, "weight": new.weight, "run_decision": new.run_decision,
+            "scores": json.dumps(new.scores, sort_keys=True) if new.scores else None, "origin": new.origin,
+        }
+        current = conn.execute(select(decision_table).where(self._where(key))).mappings().first()
+        if current is None:
+            result = conn.execute(insert(decision_table).values(**values, revision=1))
+            row = {**values, "id": int(result.inserted_primary_key[0]), "revision": 1}
+            action = "decide"
+        elif current["decision"] == new.decision:
+            return None
+        elif current["decision"] == "defer" or current["reviewer"] == new.reviewer:
+            conn.execute(update(decision_table).where(decision_table.c.id == current["id"])
+                         .values(**values, revision=current["revision"] + 1))
+            row = {**dict(current), **values, "revision": current["revision"] + 1}
+            action = "replace"
+        else:
+            raise DecisionConflict(dict(current))  # leaving the block rolls every pair back
+        conn.execute(insert(cluster_member_table).values(cluster_decision_id=group_id, decision_id=row["id"],
+                                                         revision=row["revision"]))
+        self._log(conn, row, action)
+        return row
+
+    def undo_cluster(self, cluster_decision_id: int, reviewer: str) -> dict[str, Any]:
+        """Remove a whole cluster decision: each pair it decided, unless decided again since.
+
+        Raises:
+            NothingToUndo: the cluster decision is gone already.
+            DecisionConflict: it is someone else's (``existing`` is the cluster decision).
+        """
+        t, m = cluster_decision_table, cluster_member_table
+        with self.engine.begin() as conn:
+            group = conn.execute(select(t).where(t.c.id == cluster_decision_id)).mappings().first()
+            if group is None:
+                raise NothingToUndo(f"cluster decision {cluster_decision_id} does not exist (already undone?)")
+            group = {**group, "parts": json.loads(group["parts"])}
+            if group["reviewer"] != reviewer:
+                raise DecisionConflict({**group, "decision": group["choice"], "source_a": group["cluster_id"],
+                                        "record_id_a": "", "source_b": "", "record_id_b": ""})
+            members = conn.execute(select(m).where(m.c.cluster_decision_id == cluster_decision_id)).all()
+            undone = []
+            for _, decision_id, revision in members:
+                row = conn.execute(select(decision_table).where(
+                    decision_table.c.id == decision_id, decision_table.c.revision == revision)).mappings().first()
+                if row is None:
+                    continue  # undone or decided again since: that later decision stands
+                conn.execute(delete(decision_table).where(decision_table.c.id == decision_id))
+                self._log(conn, dict(row), "undo")
+                undone.append(dict(row))
+            conn.execute(delete(m).where(m.c.cluster_decision_id == cluster_decision_id))
+            conn.execute(delete(t).where(t.c.id == cluster_decision_id))
+        return {**group, "decisions": undone}
+
+    def cluster_decision_of(self, decision_id: int) -> int | None:
+        """The cluster decision a pair's decision belongs to, if any (and it still stands as it left it)."""
+        m = cluster_member_table
+        with self.engine.connect() as conn:
+            row = conn.execute(select(m.c.cluster_decision_id).join(
+                decision_table, and_(decision_table.c.id == m.c.decision_id,
+                                     decision_table.c.revision == m.c.revision))
+                .where(m.c.decision_id == decision_id)).first()
+        return int(row[0]) if row else None
+
+    def cluster_decisions(self, cluster_id: str | None = None) -> list[dict[str, Any]]:
+        """Standing cluster decisions (of one cluster, or all), oldest first."""
+        t = cluster_decision_table
+        query = select(t).order_by(t.c.id)
+        if cluster_id is not None:
+            query = query.where(t.c.cluster_id == cluster_id)
+        with self.engine.connect() as conn:
+            return [{**r, "parts": json.loads(r["parts"])} for r in conn.execute(query).mappings().all()]
+
+    def last_cluster_decision_of(self, reviewer: str) -> dict[str, Any] | None:
+        """The reviewer's most recent cluster decision that still stands."""
+        t = cluster_decision_table
+        with self.engine.connect() as conn:
+            row = conn.execute(select(t).where(t.c.reviewer == reviewer).order_by(t.c.id.desc())).mappings().first()
+        return {**row, "parts": json.loads(row["parts"])} if row else None
+
     def get(self, key: tuple[str, str, str, str]) -> dict[str, Any] | None:
         """The standing decision on a pair (ends in any order), if any."""
         with self.engine.connect() as conn:
             row = conn.execute(select(decision_table).where(self._where(ordered_pair(*key)))).mappings().first()
         return dict(row) if row else None
+
+    def decisions_on(self, keys: list[tuple[str, str, str, str]]) -> dict[tuple[str, str, str, str], dict[str, Any]]:
+        """The standing decisions on these pairs (ends in the store's order), by pair, in few queries."""
+        t = decision_table
+        found: dict[tuple[str, str, str, str], dict[str, Any]] = {}
+        with self.engine.connect() as conn:
+            for start in range(0, len(keys), 400):  # bound the statement's size
+                chunk = keys[start:start + 400]
+                rows = conn.execute(select(t).where(tuple_(*[t.c[c] for c in KEY_COLUMNS]).in_(chunk))).mappings()
+                found.update({tuple(r[c] for c in KEY_COLUMNS): dict(r) for r in rows})  # type: ignore[misc]
+        return found
 
     def last_decision_of(self, reviewer: str) -> dict[str, Any] | None:
         """The reviewer's most recent decision that still stands."""

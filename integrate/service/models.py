@@ -9,6 +9,7 @@ from pydantic import BaseModel, ConfigDict, Field
 JobState = Literal["queued", "running", "succeeded", "failed", "cancelled"]
 Queue = Literal["possible", "audit"]
 Decision = Literal["same", "different", "defer"]
+ClusterChoice = Literal["keep together", "split"]
 Name = Field(min_length=1, max_length=200)
 
 
@@ -181,9 +182,62 @@ class QueueProgress(BaseModel):
     remaining: int
 
 
+class ClusterRecord(BaseModel):
+    source: str
+    record_id: str
+    as_of: str
+    trust: int | None
+    entity_id: str | None  # its entity in the last run
+    part: Literal["A", "B"]  # the side of the proposed split it falls on
+    values: dict[str, str]  # canonical field -> value as shown ('' when missing)
+
+
+class ClusterField(BaseModel):
+    name: str
+    type: str
+    varies: bool  # the records hold more than one value in it
+
+
+class ClusterPair(BaseModel):
+    key: PairKey
+    probability: float
+    run_decision: str
+    where: Literal["inside part A", "inside part B", "across the split"]
+    proposed_cut: bool  # the link the proposed split cuts
+    decision: Decision | None  # the standing decision on the pair, if any
+    decided_by: str | None
+
+
+class ClusterDecisionRow(BaseModel):
+    id: int
+    cluster_id: str
+    choice: ClusterChoice
+    reviewer: str
+    decided_at: str
+    note: str | None
+    parts: dict[str, list[list[str]]]  # "A" and "B": [source, record ID] of each record
+    decisions: list[DecisionRow] = []  # the pairwise decisions it stored (or undid)
+
+
+class ClusterItem(BaseModel):
+    cluster_id: str
+    entity_ids: list[str]
+    proposal: Literal["run cut", "weakest link"]  # where the proposed split comes from
+    reason: str
+    anchor: PairKey  # the link the proposed split cuts; the queue lists the cluster under it
+    probability: float  # the anchor's match probability
+    records: list[ClusterRecord]
+    fields: list[ClusterField]
+    pairs: list[ClusterPair]  # candidate pairs inside the cluster, strongest first
+    part_a: int
+    part_b: int
+    decision: ClusterDecisionRow | None = None  # the standing decision on the whole cluster, if any
+
+
 class NextResponse(BaseModel):
     item: PairItem | None
     progress: QueueProgress
+    cluster: ClusterItem | None = None  # set when the item is a suspicious cluster (reviewed as a whole)
 
 
 class NextRequest(BaseModel):
@@ -202,13 +256,14 @@ class QueueEntry(BaseModel):
     record_id_b: str
     probability: float
     state: Literal["open", "deferred", "decided"]
+    cluster_id: str | None = None  # a suspicious cluster, listed under the link its proposed split cuts
 
 
 class QueueResponse(BaseModel):
     queue: Queue
     progress: QueueProgress
     possible_links: int  # of the queue, pairs in the band between the thresholds
-    weakest_links: int  # ... and weakest links of suspicious clusters
+    weakest_links: int  # ... and suspicious clusters (each under the link its proposed split cuts)
     items: list[QueueEntry]
 
 
@@ -256,6 +311,38 @@ class UndoRequest(BaseModel):
 class UndoResponse(BaseModel):
     undone: DecisionRow
     item: PairItem | None
+    cluster_decision: ClusterDecisionRow | None = None  # the pair was part of it: all of it was undone
+
+
+class RecordRef(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+    source: str = Name
+    record_id: str = Name
+
+
+class ClusterDecisionRequest(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+    choice: ClusterChoice
+    part_a: list[RecordRef] | None = Field(None, max_length=10000)  # a split other than the proposed one
+    note: str | None = Field(None, max_length=4000)
+    queue: Queue = "possible"
+
+
+class ClusterDecisionResponse(BaseModel):
+    cluster_decision: ClusterDecisionRow
+
+
+class ClusterUndoRequest(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+    cluster_decision_id: int | None = None  # default: your most recent cluster decision
+
+
+class ClusterUndoResponse(BaseModel):
+    undone: ClusterDecisionRow
+    cluster: ClusterItem | None
 
 
 class DecisionList(BaseModel):

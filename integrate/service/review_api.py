@@ -40,15 +40,18 @@ from .models import (
     UndoResponse,
 )
 from .results import plain
+from .review_clusters_api import add_cluster_routes, cluster_decision_row
 
 NOTES = {
     "trust": "Trust rank: how far each source is believed when records disagree (1 = trusted most). It is set in "
              "each source's mapping file ('trust:') and decides which value the merged row keeps; it does not change "
              "the match probability.",
-    "queue": "The queue can be longer than the number of possible links: besides the pairs between the two "
-             "thresholds it holds, for every suspicious cluster (cut by a constraint or the chaining guard, two "
-             "records compared as clearly different, or three or more records held by a weak link), the weakest "
-             "link holding that cluster together. Judging it decides whether the cluster stays whole.",
+    "queue": "The queue holds the pairs between the two thresholds and every suspicious cluster as a whole (cut "
+             "by the run, two records compared as clearly different, or three or more records held by a weak link): "
+             "a cluster shows all its records side by side with a proposed split into part A and part B (where "
+             "the run cut it, or else at its weakest link), and one "
+             "decision (keep together, or split) settles every record in it. Items that settle the most records "
+             "come first; among those, the most uncertain.",
     "weights": "Weight (bits): the evidence each field adds for (+) or against (-) the two records being one "
                "person; the total decides the match probability.",
 }
@@ -94,6 +97,8 @@ def add_review_routes(app: FastAPI, contexts: dict[str, Any], auth: Any, ctx_of:
             raise api_error(404, "not_found", f"no file '{name}'")
         return Response((static / name).read_bytes(), media_type=allowed[name])
 
+    add_cluster_routes(app, auth, ctx_of, api_error, ERRORS)
+
     @app.get("/favicon.ico", include_in_schema=False)
     def no_icon() -> Response:
         return Response(status_code=204)
@@ -130,6 +135,8 @@ def add_review_routes(app: FastAPI, contexts: dict[str, Any], auth: Any, ctx_of:
             progress = {"total": len(items), "decided": decided, "deferred": int((items["state"] == "deferred").sum()),
                         "remaining": len(items) - decided}
             shown = [_row(r) for r in items.iloc[offset:offset + limit].to_dict("records")]
+        for entry in shown:
+            entry["cluster_id"] = data.anchors.get(tuple(entry[c] for c in KEY_COLUMNS)) if queue != AUDIT else None
         return QueueResponse(queue=queue, progress=progress, possible_links=possible,  # type: ignore[arg-type]
                              weakest_links=(len(reasons) - possible) if reasons is not None else 0, items=shown)
 
@@ -142,7 +149,9 @@ def add_review_routes(app: FastAPI, contexts: dict[str, Any], auth: Any, ctx_of:
             raise api_error(422, "unknown_field", f"no field named '{field}'", "fields: " + ", ".join(data.fields))
         key, progress = next_key(data, ctx.decisions, reviewer, queue, source=source, field=field, skip=skip,
                                  claim=claim)
-        return {"item": item(ctx, key, queue) if key else None, "progress": progress}
+        cluster_id = data.anchors.get(key) if key and queue != AUDIT else None
+        return {"item": item(ctx, key, queue) if key else None, "progress": progress,
+                "cluster": app.state.cluster_item(ctx, cluster_id) if cluster_id else None}
 
     @app.get(f"{base}/next", response_model=NextResponse, responses=ERRORS, tags=["review"])
     def peek_next(ws: str, request: Request, queue: Annotated[str, Query(pattern="^(possible|audit)$")] = "possible",
@@ -223,8 +232,13 @@ def add_review_routes(app: FastAPI, contexts: dict[str, Any], auth: Any, ctx_of:
             if last is None:
                 raise api_error(404, "nothing_to_undo", f"{who.name} has no decision to undo")
             decision_id = int(last["id"])
+        group_id = ctx.decisions.cluster_decision_of(decision_id)
         try:
-            row = ctx.decisions.undo(decision_id, who.name)
+            if group_id is not None:  # part of a decision on a whole cluster: all of it goes
+                group = ctx.decisions.undo_cluster(group_id, who.name)
+                row = next(r for r in group["decisions"] if int(r["id"]) == decision_id)
+            else:
+                group, row = None, ctx.decisions.undo(decision_id, who.name)
         except NothingToUndo as gone:
             raise api_error(404, "nothing_to_undo", str(gone)) from None
         except DecisionConflict as conflict:
@@ -232,7 +246,8 @@ def add_review_routes(app: FastAPI, contexts: dict[str, Any], auth: Any, ctx_of:
                             existing=_row(conflict.existing)) from None
         key = ordered_pair(row["source_a"], row["record_id_a"], row["source_b"], row["record_id_b"])
         shown = item(ctx, key, body.queue) if key in ctx.review_data().pairs.index else None
-        return {"undone": _row(row), "item": shown}
+        return {"undone": _row(row), "item": shown,
+                "cluster_decision": cluster_decision_row(group) if group is not None else None}
 
     @app.post(f"{base}/import", response_model=ImportResult, responses=ERRORS, tags=["review"])
     async def import_file(ws: str, request: Request) -> Any:

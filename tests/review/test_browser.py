@@ -194,3 +194,61 @@ def test_hostile_values_everywhere_stay_inert_and_the_page_fits_800px(reviewed_w
         assert page.locator("#entity table tr").count() > 3
         assert "integrate explain" in page.locator("#explanation").inner_text()
         page.close()
+
+
+CLUSTER_SCREENSHOT = SCREENSHOT.with_name("review-cluster.png")
+
+
+def test_a_suspicious_cluster_is_shown_whole_and_decided_in_one_go(reviewed_ws: Path, browser) -> None:  # noqa: ANN001
+    from integrate.review.store import DecisionStore, NewDecision
+
+    data = load_review_data(reviewed_ws)
+    queue = data.queue
+    first = int((queue["cluster_id"] != "").to_numpy().argmax())
+    case = data.cases[queue["cluster_id"].iloc[first]]
+    store = DecisionStore.for_workspace(reviewed_ws)
+    for row in queue.iloc[:first].itertuples():  # put off what comes before it, so the queue offers the cluster
+        store.record(NewDecision(source_a=row.source_a, record_id_a=row.record_id_a, source_b=row.source_b,
+                                 record_id_b=row.record_id_b, decision="defer", reviewer="zed"))
+    with running_server(reviewed_ws, reviewer="ana") as url:
+        page = browser.new_page(viewport={"width": 1800, "height": 900})
+        page.goto(url)
+        page.wait_for_selector("body[data-ready=yes]")
+        assert page.locator("#pair").get_attribute("data-cluster") == case.cluster_id
+        assert page.locator("#cluster").is_visible() and not page.locator("#fields").is_visible()
+        heads = page.locator("#cluster-records thead th").all_inner_texts()[1:]
+        assert len(heads) == len(case.members)
+        parts = [h.split("\n")[0].strip().upper() for h in heads]  # the part is written, not only coloured
+        assert parts == ["PART A"] * len(case.part_a) + ["PART B"] * len(case.part_b)
+        for source, record_id in case.members:
+            assert sum(f"{source} {record_id}" in h for h in heads) == 1
+        assert page.locator("#cluster-records tbody tr").count() >= 3
+        assert page.locator("#cluster-pairs tbody tr", has_text="(the proposed cut)").count() == 1
+        assert page.locator("#btn-keep").is_visible() and page.locator("#btn-split").is_visible()
+        assert not page.locator("#btn-same").is_visible()
+        if os.environ.get("INTEGRATE_UPDATE_SCREENSHOT"):
+            page.screenshot(path=str(CLUSTER_SCREENSHOT), full_page=True)
+
+        page.keyboard.press("p")
+        saved = re.compile(f"^Saved: cluster {re.escape(case.cluster_id)} split")
+        sync_api.expect(page.locator("#status")).to_have_text(saved)
+        stored = store.cluster_decisions(case.cluster_id)
+        assert [g["choice"] for g in stored] == ["split"]
+        assert {tuple(r) for r in stored[0]["parts"]["A"]} == set(case.part_a)
+        assert (load_decisions(reviewed_ws)["reviewer"] == "ana").sum() == len(case.members) - 1
+
+        page.keyboard.press("u")  # undoes the whole cluster decision and shows the cluster again
+        undone = re.compile(f"^Undone: split for cluster {re.escape(case.cluster_id)}")
+        sync_api.expect(page.locator("#status")).to_have_text(undone)
+        assert not (load_decisions(reviewed_ws)["reviewer"] == "ana").any()
+        assert store.cluster_decisions(case.cluster_id) == []
+        assert page.locator("#pair").get_attribute("data-cluster") == case.cluster_id
+
+        # the reviewer's own split: the first record of part A moved to part B
+        page.locator("#move-0").click()
+        assert page.locator("#cluster-records thead th").nth(1).inner_text().upper().startswith("PART B")
+        assert page.locator("#btn-split").inner_text().startswith("Split as shown")
+        page.locator("#btn-split").click()
+        sync_api.expect(page.locator("#status")).to_have_text(re.compile("^Saved: cluster"))
+        moved = store.cluster_decisions(case.cluster_id)[0]["parts"]
+        assert case.members[0] in {tuple(r) for r in moved["B"]}

@@ -118,3 +118,36 @@ def test_many_threads_deciding_the_same_pairs_store_each_pair_once(tmp_path: Pat
     conflicts = sum(o.count("conflict") for o in outcomes.values())
     assert stored == 40 and conflicts == 7 * 40
     assert (store.history()["action"] == "decide").sum() == 40
+
+
+def test_a_cluster_decision_is_stored_whole_or_not_at_all_and_undone_whole(tmp_path: Path) -> None:
+    store = DecisionStore.for_workspace(tmp_path)
+    store.record(_decision("defer", "bo", a="1", b="3"))  # a deferred pair is replaced
+    store.record(_decision("same", "bo", a="1", b="4"))  # a pair already decided alike stays bo's
+    parts = {"A": [["shop", "1"]], "B": [["club", "2"], ["club", "3"], ["club", "4"]]}
+    group = store.record_cluster("E1", "split", parts, [
+        _decision("different", "ana", a="1", b="2"), _decision("different", "ana", a="1", b="3"),
+        _decision("same", "ana", a="1", b="4")])
+    assert [(r["record_id_a"], r["decision"], r["revision"]) for r in group["decisions"]] == [
+        ("2", "different", 1), ("3", "different", 2)]
+    assert store.cluster_decisions("E1")[0]["parts"] == parts
+
+    # bo decided 1~5 'same': ana's cluster decision that needs it 'different' stores nothing at all
+    store.record(_decision("same", "bo", a="1", b="5"))
+    before = store.decisions()
+    with pytest.raises(DecisionConflict, match="already decided 'same' by bo"):
+        store.record_cluster("E2", "split", {"A": [], "B": []}, [
+            _decision("different", "ana", a="1", b="6"), _decision("different", "ana", a="1", b="5")])
+    assert store.decisions().equals(before) and [g["cluster_id"] for g in store.cluster_decisions()] == ["E1"]
+
+    # undoing any one pair of it (as the service does) finds the cluster decision; undo removes its pairs only
+    assert store.cluster_decision_of(int(group["decisions"][1]["id"])) == group["id"]
+    with pytest.raises(DecisionConflict):
+        store.undo_cluster(group["id"], "bo")
+    undone = store.undo_cluster(group["id"], "ana")
+    assert len(undone["decisions"]) == 2 and store.cluster_decisions() == []
+    left = store.decisions()
+    assert sorted(zip(left["record_id_a"], left["decision"])) == [("4", "same"), ("5", "same")]
+    assert list(store.history()["action"]).count("undo") == 2
+    with pytest.raises(NothingToUndo):
+        store.undo_cluster(group["id"], "ana")

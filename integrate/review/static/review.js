@@ -2,7 +2,7 @@
 // never as HTML, so a value such as <script> stays inert.
 "use strict";
 
-const state = { item: null, busy: false, undo: [], reviewer: "", kind: "possible" };
+const state = { item: null, cluster: null, busy: false, undo: [], reviewer: "", kind: "possible" };
 const $ = (id) => document.getElementById(id);
 const LABELS = { same: "same person", different: "different people", defer: "decide later" };
 
@@ -28,6 +28,7 @@ function pairName(key) {
 const ws = decodeURIComponent(location.pathname.split("/")[2] || "");
 const base = `/api/v1/workspaces/${encodeURIComponent(ws)}`;
 const queue = new URLSearchParams(location.search).get("queue") === "audit" ? "audit" : "possible";
+const askedCluster = new URLSearchParams(location.search).get("cluster");
 (function takeToken() {
   const found = /(?:^#|&)token=([^&]+)/.exec(location.hash);
   if (found) {
@@ -124,9 +125,108 @@ async function showEntity(entityId) {
   panel.focus();
 }
 
-function render(item) {
+function recordName(r) {
+  return `${r.source} ${r.record_id}`;
+}
+
+// A cluster shown as a whole: one column per record (part A first), every canonical field a row.
+// Each record's part is written in its header and in every cell it holds ("Part A" / "Part B"),
+// and the reviewer can move a record to the other part before splitting.
+function renderCluster(cluster) {
+  state.cluster = cluster;
+  const section = $("cluster");
+  section.hidden = !cluster;
+  $("btn-keep").hidden = !cluster;
+  $("btn-split").hidden = !cluster;
+  $("btn-same").hidden = Boolean(cluster);
+  $("btn-different").hidden = Boolean(cluster);
+  if (!cluster) return;
+  $("pair").dataset.cluster = cluster.cluster_id;
+  $("fields").hidden = true;
+  $("both-empty").textContent = "";
+  const records = [...cluster.records].sort((x, y) => (x.part === y.part ? 0 : x.part === "A" ? -1 : 1));
+  state.parts = Object.fromEntries(records.map((r) => [recordName(r), r.part]));
+  const summary = $("summary");
+  summary.textContent = "";
+  summary.appendChild(el("p", `Cluster of ${records.length} records`, "probability"));
+  summary.appendChild(el("p", `In the queue as: ${cluster.reason}.`));
+  const from = cluster.proposal === "run cut" ? "where the last run cut it" : "at its weakest link";
+  summary.appendChild(el("p", `Proposed split (${from}): part A ${cluster.part_a} records, part B ${cluster.part_b} records; the link cut has match probability ${(100 * cluster.probability).toFixed(1)} %.`));
+  if (cluster.decision) summary.appendChild(el("p", `Decided: ${cluster.decision.choice} by ${cluster.decision.reviewer}.`));
+  drawCluster(records);
+}
+
+function drawCluster(records) {
+  const cluster = state.cluster;
+  const head = $("cluster-records").tHead.rows[0];
+  head.textContent = "";
+  const corner = el("th", "Field");
+  corner.scope = "col";
+  head.appendChild(corner);
+  records.forEach((r, n) => {
+    const part = state.parts[recordName(r)];
+    const cell = el("th", null, part === "A" ? "part-a" : "part-b");
+    cell.scope = "col";
+    cell.appendChild(el("span", `Part ${part}`, "part-label"));
+    cell.appendChild(el("span", recordName(r), "record-name"));
+    const trust = r.trust === null || r.trust === undefined ? "" : `, trust rank ${r.trust}`;
+    cell.appendChild(el("span", `as of ${r.as_of}${trust}${r.entity_id ? `; entity ${r.entity_id}` : ""}`, "note"));
+    const move = el("button", part === "A" ? "Move to part B" : "Move to part A", "link");
+    move.type = "button";
+    move.id = `move-${n}`;
+    move.addEventListener("click", () => {
+      state.parts[recordName(r)] = part === "A" ? "B" : "A";
+      $("btn-split").textContent = "";
+      $("btn-split").append("Split as shown ", el("kbd", "P"));
+      drawCluster(records);
+    });
+    cell.appendChild(move);
+    head.appendChild(cell);
+  });
+  const body = $("cluster-records").tBodies[0];
+  body.textContent = "";
+  for (const field of cluster.fields) {
+    if (records.every((r) => !r.values[field.name])) continue;
+    const row = el("tr", null, field.varies ? "varies" : "");
+    const name = el("th", field.name);
+    name.scope = "row";
+    if (field.varies) name.appendChild(el("span", "values differ", "note"));
+    row.appendChild(name);
+    for (const r of records) {
+      const part = state.parts[recordName(r)];
+      const cell = el("td", null, `value ${part === "A" ? "part-a" : "part-b"}`);
+      cell.appendChild(el("span", `${part}:`, "visually-hidden"));
+      if (r.values[field.name]) cell.appendChild(document.createTextNode(r.values[field.name]));
+      else cell.appendChild(el("span", "(empty)", "missing"));
+      row.appendChild(cell);
+    }
+    body.appendChild(row);
+  }
+  const a = records.filter((r) => state.parts[recordName(r)] === "A").map(recordName);
+  const b = records.filter((r) => state.parts[recordName(r)] === "B").map(recordName);
+  $("cluster-split").textContent = `Part A: ${a.join(", ") || "(none)"}. Part B: ${b.join(", ") || "(none)"}.`;
+  const pairs = $("cluster-pairs").tBodies[0];
+  pairs.textContent = "";
+  for (const p of cluster.pairs) {
+    const x = `${p.key.source_a} ${p.key.record_id_a}`;
+    const y = `${p.key.source_b} ${p.key.record_id_b}`;
+    const inA = state.parts[x] === "A";
+    const inB = state.parts[y] === "A";
+    const where = inA && inB ? "inside part A" : (!inA && !inB ? "inside part B" : "across the split");
+    const row = el("tr", null, p.proposed_cut ? "cut" : "");
+    row.appendChild(el("td", `${x} and ${y}`));
+    row.appendChild(el("td", `${(100 * p.probability).toFixed(1)} %`, "num"));
+    row.appendChild(el("td", where + (p.proposed_cut ? " (the proposed cut)" : "")));
+    row.appendChild(el("td", p.decision ? `${LABELS[p.decision]} (${p.decided_by})` : ""));
+    pairs.appendChild(row);
+  }
+}
+
+function render(item, cluster) {
   state.item = item;
   $("pair").dataset.item = item ? item.id : "";
+  $("pair").dataset.cluster = "";
+  state.cluster = null;
   $("entity").hidden = true;
   const body = $("fields").tBodies[0];
   body.textContent = "";
@@ -136,7 +236,10 @@ function render(item) {
   $("empty").hidden = !empty;
   $("both-empty").textContent = "";
   $("fields").hidden = empty;
-  for (const id of ["btn-same", "btn-different", "btn-defer"]) $(id).disabled = empty;
+  for (const id of ["btn-same", "btn-different", "btn-defer", "btn-keep", "btn-split"]) $(id).disabled = empty;
+  $("btn-split").textContent = "";
+  $("btn-split").append("Split as proposed ", el("kbd", "P"));
+  renderCluster(null);
   if (empty) return;
   const percent = (100 * item.probability).toFixed(1);
   summary.appendChild(el("p", `Match probability ${percent} %`, "probability"));
@@ -169,13 +272,50 @@ function render(item) {
   }
   $("both-empty").textContent = bothEmpty.length ? `Empty in both records: ${bothEmpty.join(", ")}.` : "";
   $("note").value = "";
+  if (cluster) renderCluster(cluster);
 }
 
 async function loadNext(skip) {
   const result = await api("POST", "/review/next", nextBody(skip));
   if (result.status !== 200) { say(`Could not load the next pair (HTTP ${result.status}).`, true); return; }
   showProgress(result.body.progress);
-  render(result.body.item);
+  render(result.body.item, result.body.cluster);
+}
+
+async function showCluster(clusterId) {
+  const result = await api("GET", `/review/clusters/${encodeURIComponent(clusterId)}`);
+  if (result.status !== 200) { say(`Could not load cluster ${clusterId} (HTTP ${result.status}).`, true); return; }
+  const anchor = await api("GET", `/review/pair?${new URLSearchParams({ ...result.body.anchor, queue })}`);
+  render(anchor.status === 200 ? anchor.body : null, result.body);
+  if (anchor.status !== 200) renderCluster(result.body);
+}
+
+async function decideCluster(choice) {
+  if (state.busy || !state.cluster) return;
+  state.busy = true;
+  const cluster = state.cluster;
+  const body = { choice, note: $("note").value || null, queue };
+  const partA = cluster.records.filter((r) => state.parts[recordName(r)] === "A");
+  const edited = cluster.records.some((r) => state.parts[recordName(r)] !== r.part);
+  if (choice === "split" && edited) body.part_a = partA.map((r) => ({ source: r.source, record_id: r.record_id }));
+  try {
+    const result = await api("POST", `/review/clusters/${encodeURIComponent(cluster.cluster_id)}/decision`, body);
+    if (result.status === 201) {
+      const stored = result.body.cluster_decision;
+      state.undo.push({ cluster: stored.id });
+      await loadNext(null);
+      const how = choice === "split" ? `split (part A: ${stored.parts.A.length}, part B: ${stored.parts.B.length} records)` : "kept together";
+      say(`Saved: cluster ${cluster.cluster_id} ${how}, as ${stored.decisions.length} pair decisions.`);
+    } else if (result.status === 409) {
+      const e = result.body.existing;
+      say(`Not saved: ${e.reviewer} already decided ${LABELS[e.decision]} for ${pairName(e)} in this cluster.`, true);
+    } else {
+      const why = result.body && result.body.error ? result.body.error.message : `HTTP ${result.status}`;
+      say(`Not saved: ${why}.`, true);
+    }
+  } finally {
+    state.busy = false;
+  }
 }
 
 async function decide(decision) {
@@ -207,6 +347,10 @@ async function undo() {
   const id = state.undo.pop();
   if (id === undefined) { say("Nothing to undo in this session.", true); return; }
   state.busy = true;
+  if (typeof id === "object") {
+    try { await undoCluster(id.cluster); } finally { state.busy = false; }
+    return;
+  }
   try {
     const result = await api("POST", "/review/undo", { decision_id: id, queue });
     if (result.status === 200) {
@@ -223,6 +367,19 @@ async function undo() {
   }
 }
 
+async function undoCluster(groupId) {
+  const result = await api("POST", "/review/clusters/undo", { cluster_decision_id: groupId });
+  if (result.status !== 200) {
+    say(`Could not undo: ${result.body && result.body.error ? result.body.error.message : "HTTP " + result.status}.`, true);
+    return;
+  }
+  const undone = result.body.undone;
+  if (result.body.cluster) await showCluster(undone.cluster_id);
+  const progress = await api("GET", `/review/next?${filters()}`);
+  if (progress.status === 200) showProgress(progress.body.progress);
+  say(`Undone: ${undone.choice} for cluster ${undone.cluster_id} (${undone.decisions.length} pair decisions). Decide again.`);
+}
+
 function onKey(event) {
   if (event.ctrlKey || event.metaKey || event.altKey) return;
   const typing = ["TEXTAREA", "INPUT", "SELECT"].includes(event.target.tagName);
@@ -231,8 +388,10 @@ function onKey(event) {
     return;
   }
   const key = event.key.toLowerCase();
-  const actions = { s: () => decide("same"), d: () => decide("different"), l: () => decide("defer"), u: undo,
-                    n: () => $("note").focus() };
+  const cluster = Boolean(state.cluster);
+  const actions = { l: () => decide("defer"), u: undo, n: () => $("note").focus() };
+  if (cluster) Object.assign(actions, { k: () => decideCluster("keep together"), p: () => decideCluster("split") });
+  else Object.assign(actions, { s: () => decide("same"), d: () => decide("different") });
   if (actions[key]) { event.preventDefault(); actions[key](); }
 }
 
@@ -266,8 +425,11 @@ async function start() {
     button.addEventListener("click", () => decide(button.dataset.decision));
   }
   $("btn-undo").addEventListener("click", undo);
+  $("btn-keep").addEventListener("click", () => decideCluster("keep together"));
+  $("btn-split").addEventListener("click", () => decideCluster("split"));
   document.addEventListener("keydown", onKey);
-  await loadNext(null);
+  if (askedCluster) await showCluster(askedCluster);
+  else await loadNext(null);
   document.body.dataset.ready = "yes";
 }
 
