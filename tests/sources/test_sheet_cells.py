@@ -178,3 +178,15 @@ def test_a_broken_part_outside_the_cells_fails_as_before(tmp_path: Path) -> None
         read_source(ReadSpec(format="excel", path="t.xlsx"), tmp_path, name="desk")
     assert (caught.value.file, caught.value.reason) == ("t.xlsx", "bad_file")
     assert f"(TypeError: {direct.value})" in caught.value.message
+
+
+def test_a_missing_row_in_a_sheet_without_dimension(tmp_path: Path) -> None:
+    """openpyxl gives a missing row as an empty list when the sheet has no <dimension>; the reader
+    used to fail on it with a TypeError (issue 12, found while reading sheets in bulk)."""
+    path = tmp_path / "t.xlsx"
+    Workbook().save(path)
+    _with_sheet(path, _HEAD + '<sheetData><row r="1"><c r="A1" t="inlineStr"><is><t>id</t></is></c></row>'
+                '<row r="3"><c r="A3"><v>7</v></c></row><row r="4"><c r="A4"><f>1+1</f><v>2</v></c></row>'
+                '</sheetData></worksheet>')  # the formula sends the sheet through openpyxl
+    frame = read_source(ReadSpec(format="excel", path="t.xlsx"), tmp_path, name="desk")
+    assert frame["id"].tolist() == ["7", "2"] and frame["_row"].tolist() == [3, 4]
