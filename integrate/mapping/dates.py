@@ -158,22 +158,12 @@ def _parse_distinct(distinct: pd.Series, layout: _Layout) -> tuple[pd.Series, pd
     if distinct.empty:
         return iso, reason, message
 
-    calendar, calendar_ok = _iso_calendar(distinct)
+    calendar, calendar_ok, shaped = _iso_calendar(distinct)
     iso[calendar_ok] = calendar[calendar_ok]
-    shaped = distinct.str.match(_ISO_DATE)
     reason[shaped & ~calendar_ok] = "bad_date"
     message[shaped & ~calendar_ok] = "is not a real date"
     rest = ~shaped
-
-    if layout.kind == "iso":
-        iso[rest] = _iso_other(distinct[rest])
-    elif layout.kind == "year":
-        year = rest & distinct.str.fullmatch(r"\d{4}") & distinct.ne("0000")
-        iso[year] = distinct[year]
-    elif layout.kind == "excel":
-        iso[rest] = _excel_serials(distinct[rest])
-    else:
-        iso[rest] = distinct[rest].map(lambda v: _strptime_one(v, layout))  # once per distinct value
+    iso[rest] = _parse_other(distinct[rest], layout)
 
     undone = rest & iso.isna()
     reason[undone] = "bad_date"
@@ -185,12 +175,63 @@ def _parse_distinct(distinct: pd.Series, layout: _Layout) -> tuple[pd.Series, pd
     return iso, reason, message
 
 
-def _iso_calendar(distinct: pd.Series) -> tuple[pd.Series, pd.Series]:
-    """``YYYY-MM-DD`` (time part dropped) and whether it is a real date, checked vectorised."""
+def readable_dates(values: pd.Series, formats: list[tuple[str | None, int | None]]) -> list[np.ndarray]:
+    """For each (format, two-digit pivot): which values ``parse_dates`` reads in that format.
+
+    The same answers as ``parse_dates(values, fmt, two_digit_pivot=pivot)[0].notna()`` for each,
+    with the work that does not depend on the format (stripping, distinct values, ISO calendar
+    dates) done once: profiling tries a dozen layouts on every column.
+
+    Raises:
+        ConversionError: as ``parse_dates`` does for a bad format.
+
+    Example:
+        >>> [m.tolist() for m in readable_dates(pd.Series(["13/04/1985", "1985-04-12", ""]),
+        ...                                     [("iso", None), ("%d/%m/%Y", None), ("%m/%d/%Y", None)])]
+        [[False, True, False], [True, True, False], [False, True, False]]
+    """
+    layouts = [_layout(fmt, pivot) for fmt, pivot in formats]
+    if pd.api.types.is_datetime64_any_dtype(values.dtype):
+        return [values.notna().to_numpy(dtype=bool) for _ in layouts]
+    text = values.astype("string").str.strip()
+    text = text.mask(text.eq("").fillna(False).astype(bool))
+    distinct = text.dropna().drop_duplicates().astype(object).reset_index(drop=True)
+    if distinct.empty:
+        return [np.zeros(len(values), dtype=bool) for _ in layouts]
+    _, calendar_ok, shaped = _iso_calendar(distinct)
+    rest = ~shaped.to_numpy(dtype=bool)
+    others = distinct[rest]
+    out = []
+    for layout in layouts:
+        read = calendar_ok.to_numpy(dtype=bool, copy=True)
+        if len(others):
+            read[rest] = _parse_other(others, layout).notna().to_numpy(dtype=bool)
+        out.append(text.map(dict(zip(distinct, read))).eq(True).to_numpy(dtype=bool))
+    return out
+
+
+def _parse_other(values: pd.Series, layout: _Layout) -> pd.Series:
+    """ISO text (or a missing value) for distinct values that are not ISO calendar dates."""
+    if layout.kind == "iso":
+        return _iso_other(values)
+    if layout.kind == "year":
+        out = pd.Series(pd.NA, index=values.index, dtype=object)
+        year = values.str.fullmatch(r"\d{4}") & values.ne("0000")
+        out[year] = values[year]
+        return out
+    if layout.kind == "excel":
+        return _excel_serials(values)
+    return values.map(lambda v: _strptime_one(v, layout))  # once per distinct value
+
+
+def _iso_calendar(distinct: pd.Series) -> tuple[pd.Series, pd.Series, pd.Series]:
+    """``YYYY-MM-DD`` (time part dropped), whether it is a real date (checked vectorised), and
+    whether the value is shaped as an ISO calendar date at all."""
     parts = distinct.str.extract(_ISO_DATE)[["y", "m", "d"]]
     y, m, d = (pd.to_numeric(parts[c], errors="coerce").fillna(0).astype("int64") for c in ("y", "m", "d"))
-    real = _is_real_date(y, m, d) & parts["y"].notna()
-    return distinct.str.slice(0, 10), real
+    shaped = parts["y"].notna()
+    real = _is_real_date(y, m, d) & shaped
+    return distinct.str.slice(0, 10), real, shaped
 
 
 def _is_real_date(y: pd.Series, m: pd.Series, d: pd.Series) -> pd.Series:
@@ -208,8 +249,9 @@ def _iso_other(values: pd.Series) -> pd.Series:
     month = pd.to_numeric(values.str.slice(5, 7), errors="coerce")
     ok = reduced & (year >= 1) & ((values.str.len() == 4) | month.between(1, 12))
     out[ok] = values[ok]
-    for at, value in values[~reduced].items():  # rare forms, once per distinct value
-        out[at] = _ordinal_or_week(value)
+    others = values[~reduced]
+    if len(others):  # rare forms, once per distinct value
+        out[others.index] = [_ordinal_or_week(v) for v in others]
     return out
 
 

@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 import pandas as pd
 
 from ..columns import ROW
-from .dates import parse_dates
+from .dates import readable_dates
 from .money import parse_amounts
 from .numbers import DEFAULT, detect_number_format, to_plain_numbers
 
@@ -160,10 +160,9 @@ def _date_shares(distinct: pd.Series, weights: pd.Series) -> dict[str, float]:
     shares: dict[str, float] = {}
     if distinct.str.fullmatch(r"(?:19|20)\d\d").all():
         return {"year": 1.0}
-    for fmt in DATE_FORMATS:
-        pivot = TWO_DIGIT_PIVOT if "%y" in fmt else None
-        parsed, _ = parse_dates(distinct, None if fmt == "iso" else fmt, two_digit_pivot=pivot)
-        share = _share(distinct, weights, parsed.notna().to_numpy())
+    layouts = [(None if fmt == "iso" else fmt, TWO_DIGIT_PIVOT if "%y" in fmt else None) for fmt in DATE_FORMATS]
+    for fmt, read in zip(DATE_FORMATS, readable_dates(distinct, layouts)):
+        share = _share(distinct, weights, read)
         if share > 0:
             shares[fmt] = share
     return shares

@@ -45,9 +45,51 @@ def value_shapes(distinct: pd.Series) -> pd.Series:
         >>> value_shapes(pd.Series(["Smith", "03/04/2026", "AB12 3CD"])).tolist()
         ['Aa', '9/9/9', 'A9 9A']
     """
-    s = distinct.astype(str).str
-    return (s.replace(r"[A-Z]+", "A", regex=True).str.replace(r"[a-z]+", "a", regex=True)
-            .str.replace(r"\d+", "9", regex=True).str.replace(r"([^\w])\1+", r"\1", regex=True))
+    texts = distinct.astype(str).tolist()
+    if not texts:
+        return pd.Series([], index=distinct.index, dtype=object)
+    # All values as one array of code points, classified once per distinct character: the same
+    # shapes as the four regex passes [A-Z]+ -> A, [a-z]+ -> a, \d+ -> 9, ([^\w])\1+ -> \1, without
+    # a regex call per value.
+    codes = np.frombuffer("".join(texts).encode("utf-32-le", "surrogatepass"), dtype=np.uint32)
+    lengths = np.fromiter(map(len, texts), dtype=np.int64, count=len(texts))
+    ends = np.cumsum(lengths)
+    starts = ends - lengths
+    points, inverse = np.unique(codes, return_inverse=True)
+    shape_points, collapsible = _shape_classes(points)
+    shaped = shape_points[inverse]
+    # a character repeating its class (or the same non-word character) right before it is dropped
+    drop = np.zeros(len(codes), dtype=bool)
+    drop[1:] = (shaped[1:] == shaped[:-1]) & collapsible[inverse][1:]
+    drop[starts[lengths > 0]] = False  # never across the boundary of two values
+    kept = np.concatenate(([0], np.cumsum(~drop)))
+    new_ends = kept[ends]
+    new_starts = kept[starts]
+    text = shaped[~drop].astype("<u4").tobytes().decode("utf-32-le", "surrogatepass")
+    return pd.Series([text[a:b] for a, b in zip(new_starts.tolist(), new_ends.tolist())],
+                     index=distinct.index, dtype=object)
+
+
+def _shape_classes(points: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Each code point's shape character, and whether a run of it collapses into one.
+
+    ASCII capitals -> 'A', ASCII small letters -> 'a', decimal digits (``\\d``: any script) -> '9';
+    other characters stay, and runs collapse for the three classes and for non-word characters
+    (``\\w`` is ``str.isalnum()`` or ``_``), as in Python's ``re``.
+    """
+    shape = points.astype(np.uint32)
+    collapsible = np.zeros(len(points), dtype=bool)
+    for k, point in enumerate(points.tolist()):  # once per distinct character
+        char = chr(point)
+        if "A" <= char <= "Z":
+            shape[k], collapsible[k] = ord("A"), True
+        elif "a" <= char <= "z":
+            shape[k], collapsible[k] = ord("a"), True
+        elif char.isdecimal():
+            shape[k], collapsible[k] = ord("9"), True
+        else:
+            collapsible[k] = not (char.isalnum() or char == "_")
+    return shape, collapsible
 
 
 def declared_entry(entry: ColumnMap | None) -> dict[str, Any]:

@@ -7,8 +7,9 @@ import warnings
 import zipfile
 import zlib
 from pathlib import Path
-from typing import BinaryIO
+from typing import Any, BinaryIO
 
+import numpy as np
 import pandas as pd
 from openpyxl import load_workbook
 from openpyxl.utils import get_column_letter
@@ -17,6 +18,7 @@ from integrate.errors import SourceError
 from integrate.mapping.spec import ReadSpec
 from integrate.sources.frame import ReadFailure, SourceFile, attach_failures, cell_text, text_frame, unique_names
 from integrate.sources.limits import ReadLimits, check_columns, over, read_limits
+from integrate.sources.sheet_cells import FAST_MAX_BYTES, SheetContext, read_sheet_grid
 
 _OLE_MAGIC = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"  # compound file: an old .xls, or an encrypted .xlsx
 _FORMULA_TAG = re.compile(rb"<(?:[A-Za-z0-9_]+:)?f[\s>/]")  # <f>, <f t="shared" .../>, <x:f>
@@ -46,22 +48,32 @@ def read_workbook(path: Path, spec: ReadSpec, src: SourceFile) -> pd.DataFrame:
             )
     with path.open("rb") as handle:  # closed here even when openpyxl gives up half-way
         cells, formulas = _read_cells(handle, path, spec, src, limits)
-    header_at = next((i for i, row in enumerate(cells) if any(v is not None for v in row)), None)
+    if isinstance(cells, np.ndarray):
+        filled = np.flatnonzero(np.not_equal(cells, None).any(axis=1)) if cells.size else []
+        header_at = int(filled[0]) if len(filled) else None
+        grid = cells
+    else:
+        header_at = next((i for i, row in enumerate(cells) if any(v is not None for v in row)), None)
     if header_at is None:
         return text_frame(pd.DataFrame(), [], src)
-    width = max(len(row) for row in cells)
+    if not isinstance(cells, np.ndarray):
+        width = max(len(row) for row in cells)
+        check_columns(width, limits, src.shown, src.name)
+        # rows can be shorter than the widest one when the sheet does not record its size
+        grid = np.full((len(cells), width), None, dtype=object)
+        for r, row in enumerate(cells):  # openpyxl's rows, when the sheet is not read in bulk
+            grid[r, : len(row)] = row
+    width = grid.shape[1]
     check_columns(width, limits, src.shown, src.name)
-    header = [cell_text(v).strip() if v is not None else "" for v in cells[header_at]]
-    header += [""] * (width - len(header))
+    header = [cell_text(v).strip() if v is not None else "" for v in grid[header_at]]
     names = unique_names(
         [text or f"column_{get_column_letter(i + 1)}" for i, text in enumerate(header)]
     )
-    # rows can be shorter than the widest one when the sheet does not record its size
-    body = [row + (None,) * (width - len(row)) for row in cells[header_at + 1 :]]
+    body = grid[header_at + 1 :]
     frame = pd.DataFrame(body, columns=range(width), dtype=object)
     frame.columns = names
     first_data_row = header_at + 2  # sheet rows are 1-based; the header takes one
-    lost = _formulas_without_values(cells, formulas, header_at, names)
+    lost = _formulas_without_values(cells, formulas, header_at, names) if formulas else []
     # a column without a header and without values is formatting residue, not data
     residue = [n for n, text in zip(names, header) if not text and not frame[n].notna().any()
                and not any(f[1] == n for f in lost)]
@@ -72,9 +84,13 @@ def read_workbook(path: Path, spec: ReadSpec, src: SourceFile) -> pd.DataFrame:
     return out
 
 
-def _read_cells(handle: BinaryIO, path: Path, spec: ReadSpec, src: SourceFile,
-                limits: ReadLimits) -> tuple[list[tuple[object, ...]], list[tuple[object, ...]]]:
-    """Every row of the sheet as stored values, and (when the sheet has formulas) as formula text."""
+def _read_cells(handle: BinaryIO, path: Path, spec: ReadSpec, src: SourceFile, limits: ReadLimits
+                ) -> tuple[list[tuple[object, ...]] | np.ndarray, list[tuple[object, ...]]]:
+    """Every row of the sheet as stored values, and (when the sheet has formulas) as formula text.
+
+    A sheet without formulas is read in bulk (``sheet_cells``: a grid, one row per sheet row);
+    one that layout does not cover, row by row through openpyxl.
+    """
     try:
         with warnings.catch_warnings():
             # openpyxl warns about features it does not read (data validation, styles);
@@ -85,7 +101,18 @@ def _read_cells(handle: BinaryIO, path: Path, spec: ReadSpec, src: SourceFile,
         raise _bad_file(src, exc) from exc
     try:
         sheet = book[_sheet_name(book.sheetnames, spec.sheet, src)]
-        has_formulas = _check_sheet_xml(path, getattr(sheet, "_worksheet_path", None), limits, src)
+        member = getattr(sheet, "_worksheet_path", None)
+        _check_sheet_xml(path, member, limits, src, scan=False)  # the size limit, before anything unpacks
+        try:
+            # a sheet holding formulas is never read in bulk (a cell with <f> is left to openpyxl)
+            grid = _read_in_bulk(path, member, book, sheet, limits) if member else None
+            if grid is not None:
+                return grid, []
+        except SourceError:
+            raise
+        except Exception as exc:  # noqa: BLE001 - openpyxl failed on the parts around the cells
+            raise _bad_file(src, exc) from exc
+        has_formulas = _check_sheet_xml(path, member, limits, src)
         try:
             # openpyxl reads cell by cell; this is the only way to it, as inside pandas
             cells = list(sheet.iter_rows(min_row=1, values_only=True))
@@ -105,6 +132,39 @@ def _read_cells(handle: BinaryIO, path: Path, spec: ReadSpec, src: SourceFile,
     return cells, formulas
 
 
+def _read_in_bulk(path: Path, member: str, book: Any, sheet: Any, limits: ReadLimits) -> np.ndarray | None:
+    """The sheet's cells by ``sheet_cells`` (None: the layout is left to openpyxl)."""
+    try:
+        data = _unpack(path, member)
+    except (KeyError, zipfile.BadZipFile, OSError, EOFError, zlib.error):
+        return None  # the careful way reports it
+    if data is None:
+        return None
+    context = SheetContext(
+        shared_strings=sheet._shared_strings, epoch=book.epoch, date_styles=book._date_formats,
+        timedelta_styles=book._timedelta_formats, max_row=sheet.max_row, max_col=sheet.max_column,
+        max_columns=limits.max_columns)
+    return read_sheet_grid(data, context)
+
+
+def _unpack(path: Path, member: str) -> bytearray | None:
+    with zipfile.ZipFile(path) as archive:
+        info = archive.getinfo(member.lstrip("/"))
+        if info.file_size > FAST_MAX_BYTES:
+            return None
+        # unpacked into one buffer of the stated size (reading it whole would hold it twice)
+        data = bytearray(info.file_size)
+        view = memoryview(data)
+        at = 0
+        with archive.open(info) as xml:
+            while at < len(data) and (chunk := xml.read(min(1 << 20, len(data) - at))):
+                view[at:at + len(chunk)] = chunk
+                at += len(chunk)
+            if at != len(data) or xml.read(1):
+                return None  # the stated size is wrong: openpyxl reads it (and fails as it does)
+    return data
+
+
 def _bad_file(src: SourceFile, exc: BaseException) -> SourceError:
     detail = str(exc) or type(exc).__name__
     return SourceError(
@@ -116,10 +176,14 @@ def _bad_file(src: SourceFile, exc: BaseException) -> SourceError:
     )
 
 
-def _check_sheet_xml(path: Path, member: str | None, limits: ReadLimits, src: SourceFile) -> bool:
-    """Refuse a sheet that unpacks to more than the limit (a zip bomb); say whether it holds formulas."""
+def _check_sheet_xml(path: Path, member: str | None, limits: ReadLimits, src: SourceFile, *,
+                     scan: bool = True) -> bool:
+    """Refuse a sheet that unpacks to more than the limit (a zip bomb); say whether it holds formulas.
+
+    ``scan=False`` checks the size only (and says False).
+    """
     if not member:
-        return True  # cannot tell: look for formulas the slow way
+        return scan  # cannot tell: look for formulas the slow way
     try:
         with zipfile.ZipFile(path) as archive:
             info = archive.getinfo(member.lstrip("/"))
@@ -131,6 +195,8 @@ def _check_sheet_xml(path: Path, member: str | None, limits: ReadLimits, src: So
                     reason="file_too_large",
                     hint="check the file; raise INTEGRATE_MAX_XLSX_BYTES if the sheet really is this large",
                 )
+            if not scan:
+                return False
             tail = b""
             with archive.open(info) as xml:
                 while chunk := xml.read(1 << 20):

@@ -160,3 +160,28 @@ def test_no_text_crashes(texts: list[str], fmt: str | None) -> None:
     # every non-blank value either parses or is reported
     blank = pd.Series(texts, dtype=object).str.strip().eq("")
     assert set(failures["index"]) == set(out.index[out.isna() & ~blank])
+
+
+# date-like text in many layouts, plus noise: what profiling tries every layout on
+_DATE_LIKE = st.one_of(
+    st.dates(min_value=dt.date(1, 1, 1)).flatmap(lambda d: st.sampled_from([
+        d.isoformat(), d.strftime("%d/%m/%Y"), d.strftime("%m/%d/%y"), d.strftime("%d %b %Y"),
+        d.strftime("%Y-%j"), d.strftime("%d.%m.%y"), str(d.year)])),
+    st.from_regex(r"[0-9]{1,4}[/.\- ][0-9]{1,2}[/.\- ][0-9]{2,4}", fullmatch=True),
+    st.sampled_from(["", "  ", "1985-W15-5", "1985-02-30", "0000", "45658", "12.5"]),
+    st.text(max_size=8),
+)
+
+
+@settings(max_examples=150, deadline=None)
+@given(st.lists(_DATE_LIKE, max_size=12))
+def test_readable_dates_agree_with_parse_dates(values: list[str]) -> None:
+    from integrate.mapping.dates import readable_dates
+    from integrate.mapping.profile import DATE_FORMATS, TWO_DIGIT_PIVOT
+
+    series = pd.Series(values, dtype=object)
+    layouts = [(None if f == "iso" else f, TWO_DIGIT_PIVOT if "%y" in f else None) for f in DATE_FORMATS]
+    layouts += [("excel", None), ("year", None)]
+    for (fmt, pivot), read in zip(layouts, readable_dates(series, layouts)):
+        parsed, _ = parse_dates(series, fmt, two_digit_pivot=pivot)
+        assert read.tolist() == parsed.notna().tolist(), fmt
