@@ -11,6 +11,7 @@ import json
 import os
 import tempfile
 from collections.abc import Callable
+from concurrent.futures import Future, ThreadPoolExecutor
 from pathlib import Path
 
 import numpy as np
@@ -180,16 +181,28 @@ def write_xlsx(sheets: dict[str, pd.DataFrame], path: Path) -> None:
     write_atomic(path, write)
 
 
+def _write_parquet(table: pa.Table, path: Path) -> None:
+    pq.write_table(table, path, compression="snappy")  # to_parquet's default compression
+    fsync_file(path)
+
+
 def write_tables(folder: Path, tables: dict[str, tuple[pd.DataFrame, tuple[str, ...]]]) -> list[Path]:
     """Write each table in its formats ("csv", "parquet"); all temporary files are made first.
 
     Each file is fsynced before the renames, the folder after them. A failure while writing any
     table leaves every previous output in ``folder`` untouched.
+
+    Parquet files are encoded on one worker thread (arrow encodes and compresses without holding
+    the GIL) while this thread makes the next tables; the tables with no CSV go first, so that
+    the largest encoding (the candidate pairs) runs while the CSV files are made.
     """
     folder.mkdir(parents=True, exist_ok=True)
     staged: list[tuple[Path, Path]] = []
+    encoding: list[Future[None]] = []
+    order = sorted(tables.items(), key=lambda item: "csv" in item[1][1])  # stable: otherwise as given
+    encoder = ThreadPoolExecutor(max_workers=1, thread_name_prefix="parquet")
     try:
-        for name, (frame, formats) in tables.items():
+        for name, (frame, formats) in order:
             known = text_arrays(frame)
             for fmt in formats:
                 final = folder / f"{name}.{fmt}"
@@ -197,17 +210,23 @@ def write_tables(folder: Path, tables: dict[str, tuple[pd.DataFrame, tuple[str, 
                 staged.append((tmp, final))
                 if fmt == "csv":
                     write_csv(frame, tmp, known)
+                    fsync_file(tmp)
+                    reached("write:file")
                 elif fmt == "parquet":
-                    pq.write_table(parquet_table(frame, known), tmp, compression="snappy")
+                    encoding.append(encoder.submit(_write_parquet, parquet_table(frame, known), tmp))
                 else:
                     raise ValueError(f"unknown table format '{fmt}'")
-                fsync_file(tmp)
-                reached("write:file")
+        for job in encoding:
+            job.result()  # raises the encoder's error here
+            reached("write:file")
         for tmp, final in staged:
             os.replace(tmp, final)
             reached("write:rename")
         fsync_dir(folder)
     finally:
+        for job in encoding:
+            job.cancel()
+        encoder.shutdown(wait=True)  # no thread may still write a temporary file when it is removed
         for tmp, _ in staged:
             if tmp.exists():
                 tmp.unlink()
