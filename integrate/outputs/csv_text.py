@@ -49,14 +49,18 @@ def text_array(series: pd.Series) -> pa.Array | pa.ChunkedArray | None:
 
 
 def _number_text(series: pd.Series) -> pa.Array | None:
-    """Numbers as pandas' CSV writer prints them (``numpy`` ``astype(str)``; missing floats empty)."""
+    """Numbers as pandas' CSV writer prints them (NumPy's ``astype(str)``; missing floats empty)."""
     values = series.to_numpy()
     if values.dtype.kind == "b":
-        return pa.array(np.where(values, "True", "False"))
+        return pc.if_else(pa.array(values), "True", "False")
     if values.dtype.kind in "iu":
         return pc.cast(pa.array(values), pa.string())
     if values.dtype.kind == "f":
-        text = pa.array(values.astype(str))
+        if values.dtype.itemsize in (2, 4, 8):  # each distinct number printed once; told apart by
+            codes, bits = pd.factorize(values.view(f"i{values.dtype.itemsize}"))  # bits: -0.0 keeps its sign
+            text = pa.array(bits.view(values.dtype).astype(str)).take(pa.array(codes))
+        else:
+            text = pa.array(values.astype(str))
         return pc.if_else(pa.array(np.isnan(values)), pa.scalar(None, pa.string()), text)
     return None
 
