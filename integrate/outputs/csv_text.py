@@ -18,7 +18,7 @@ from __future__ import annotations
 import csv
 import io
 import os
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable
 from typing import BinaryIO
 
 import numpy as np
@@ -74,7 +74,8 @@ def text_arrays(frame: pd.DataFrame) -> TextArrays:
             if frame[c].dtype == np.dtype(object) or isinstance(frame[c].dtype, pd.StringDtype)}
 
 
-def text_columns(frame: pd.DataFrame, known: TextArrays | None = None) -> dict[str, pa.Array] | None:
+def text_columns(frame: pd.DataFrame, known: TextArrays | None = None
+                 ) -> dict[str, pa.Array | pa.ChunkedArray] | None:
     """Each column of ``frame`` as arrow text (missing values null), or None when one can't be rendered here.
 
     ``known``: text arrays already made of these very columns (``text_arrays``).
@@ -82,7 +83,7 @@ def text_columns(frame: pd.DataFrame, known: TextArrays | None = None) -> dict[s
     if frame.shape[1] < 2 or not frame.columns.is_unique:
         return None
     known = known or {}
-    out: dict[str, pa.Array] = {}
+    out: dict[str, pa.Array | pa.ChunkedArray] = {}
     for column in frame.columns:
         series = frame[column]
         is_numpy = isinstance(series.dtype, np.dtype) and series.dtype.kind in "biuf"
@@ -92,8 +93,7 @@ def text_columns(frame: pd.DataFrame, known: TextArrays | None = None) -> dict[s
             text = known[column] if column in known else text_array(series)
         if text is None:
             return None
-        text = text.cast(pa.large_string())  # one array of 64-bit offsets: a column may pass 2 GB of text
-        out[column] = text.combine_chunks() if isinstance(text, pa.ChunkedArray) else text
+        out[column] = text
     return out
 
 
@@ -107,14 +107,19 @@ def _quoted_where_needed(text: pa.Array, specials: str) -> pa.Array:
     return pc.if_else(needs, quoted, text)
 
 
-def write_text_columns(header: Iterable[object], columns: list[pa.Array], handle: BinaryIO,
-                       lineterminator: str = os.linesep) -> None:
+def write_text_columns(header: Iterable[object], columns: list[pa.Array | pa.ChunkedArray], handle: BinaryIO,
+                       lineterminator: str = os.linesep,
+                       prepare: Callable[[int, pa.Array], pa.Array] | None = None) -> None:
     """Write a header row and the rows of ``columns`` (text, null = empty cell) as CSV to a binary handle.
 
     The dialect is the one pandas' ``to_csv`` uses by default: ``,`` between cells, ``"`` around
     a cell holding ``,``, ``"`` or a line-ending character, quotes doubled, ``lineterminator``
     after each row. Cells holding a carriage return must not be given here when lines end in
     ``\\n`` (the csv module leaves such a cell unquoted; see ``tables.write_csv``).
+
+    ``prepare(i, cells)``, if given, changes a block of column ``i``'s cells before they are
+    quoted (formula cells get their quote there). Columns are taken a block of rows at a time,
+    so no copy of a whole column is made.
     """
     head = io.StringIO()
     csv.writer(head, lineterminator=lineterminator).writerow(list(header))
@@ -122,8 +127,15 @@ def write_text_columns(header: Iterable[object], columns: list[pa.Array], handle
     specials = ',"' + "".join(sorted(set(lineterminator)))
     rows = len(columns[0]) if columns else 0
     for start in range(0, rows, ROWS_PER_BLOCK):
-        cells = [_quoted_where_needed(pc.fill_null(c.slice(start, ROWS_PER_BLOCK), ""),
-                                      specials) for c in columns]
+        cells = []
+        for i, column in enumerate(columns):
+            block = column.slice(start, ROWS_PER_BLOCK)
+            if isinstance(block, pa.ChunkedArray):
+                block = block.combine_chunks()
+            block = block.cast(pa.large_string())  # 64-bit offsets: the joined rows may pass 2 GB
+            if prepare is not None:
+                block = prepare(i, block)
+            cells.append(_quoted_where_needed(pc.fill_null(block, ""), specials))
         lines = pc.binary_join_element_wise(*cells, pa.scalar(",", pa.large_string()))
         lines = pc.binary_join_element_wise(lines, pa.scalar("", pa.large_string()),
                                             pa.scalar(lineterminator, pa.large_string()))

@@ -147,12 +147,16 @@ def write_csv(frame: pd.DataFrame, path: Path, known: TextArrays | None = None) 
     fixed = with_fixed_decimals(frame)
     cells = text_columns(fixed, known)  # text columns are the same in both: only numbers got fixed decimals
     if cells is not None:
-        texts = [c for c in fixed.columns if is_text(fixed[c])]
-        if guard_enabled():
-            cells.update({c: neutralise_cells(cells[c]) for c in texts})
-        if not any(pc.any(pc.match_substring(cells[c], "\r")).as_py() for c in texts):
+        texts = [i for i, c in enumerate(fixed.columns) if is_text(fixed[c])]
+        columns = list(cells.values())
+        if not any(pc.any(pc.match_substring(columns[i], "\r")).as_py() for i in texts):
+            guarded = set(texts) if guard_enabled() else set()
+
+            def prepare(i: int, block: pa.Array) -> pa.Array:
+                return neutralise_cells(block) if i in guarded else block
+
             with path.open("wb") as handle:
-                write_text_columns(fixed.columns, list(cells.values()), handle)
+                write_text_columns(fixed.columns, columns, handle, prepare=prepare)
             return
     safe = neutralise_frame(fixed)
     if any_text_holds(safe, "\r"):
