@@ -261,7 +261,6 @@ class StateStore:
     def record_run(self, run: NewRun) -> int:
         """Store a run, its files, crosswalk and changes in one transaction; returns its number."""
         crosswalk = run.crosswalk.reindex(columns=CROSSWALK_COLUMNS)
-        crosswalk = crosswalk.astype(object).where(crosswalk.notna(), None)
         try:
             with self.engine.begin() as conn:
                 numbered = {} if run.run_id is None else {"run_id": int(run.run_id)}
@@ -286,7 +285,7 @@ class StateStore:
                 reached("state:crosswalk")
                 if run.changes is not None and len(run.changes):
                     changes = run.changes.reindex(columns=CHANGE_TABLE_COLUMNS).assign(run_id=run_id)
-                    self._insert(conn, run_change_table, changes.astype(object).where(changes.notna(), None))
+                    self._insert(conn, run_change_table, changes)
         except SQLAlchemyError as exc:
             raise StateError(f"could not record the run in {shown_url(str(self.engine.url))}: {exc}") from exc
         reached("state:commit")
@@ -299,9 +298,28 @@ class StateStore:
 
     @staticmethod
     def _insert(conn: Any, table: Table, frame: pd.DataFrame) -> None:
-        rows = frame.to_dict("records")
-        for start in range(0, len(rows), _INSERT_CHUNK):
-            conn.execute(insert(table), rows[start:start + _INSERT_CHUNK])
+        """Insert a frame's rows (missing values as NULL) in batches of ``_INSERT_CHUNK``.
+
+        The rows go to the driver's ``executemany`` as plain tuples or dicts: SQLAlchemy's own
+        executemany builds a parameter set per row in Python, most of recording a large crosswalk.
+        A column whose type converts values on the way in (none does today) keeps that path.
+        """
+        columns = [str(c) for c in frame.columns]
+        values = [frame[c].astype(object).where(frame[c].notna(), None).tolist() for c in frame.columns]
+        rows = list(zip(*values, strict=True)) if values else []
+        compiled = insert(table).compile(dialect=conn.dialect, column_keys=columns)
+        plain = (set(compiled.params) == set(columns)
+                 and all(table.c[c].type.bind_processor(conn.dialect) is None for c in columns))
+        if plain and compiled.positional:
+            order = [columns.index(name) for name in compiled.positiontup]
+            params: list[Any] = [tuple(row[i] for i in order) for row in rows]
+        else:
+            params = [dict(zip(columns, row, strict=True)) for row in rows]
+        for start in range(0, len(params), _INSERT_CHUNK):
+            if plain:
+                conn.exec_driver_sql(str(compiled), params[start:start + _INSERT_CHUNK])
+            else:
+                conn.execute(insert(table), params[start:start + _INSERT_CHUNK])
 
     def _read(self, statement: Any) -> list[dict[str, Any]]:
         try:

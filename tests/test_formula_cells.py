@@ -11,10 +11,12 @@ import csv
 from pathlib import Path
 
 import pandas as pd
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from openpyxl import load_workbook
 
 import integrate
-from integrate.outputs.cells import SAFE_CELLS_ENV, TRIGGERS, neutralise_frame
+from integrate.outputs.cells import SAFE_CELLS_ENV, TRIGGERS, needs_quote, neutralise_frame, quote_mask
 from integrate.outputs.tables import write_tables, write_xlsx
 
 from .conftest import copy_workspace
@@ -91,3 +93,18 @@ def test_hostile_values_in_a_source_are_inert_in_every_csv_a_run_writes(tmp_path
     assert _dangerous_cells(result.run_dir) == []
     merged = (result.run_dir / "merged.csv").read_text(encoding="utf-8")
     assert "'=HYPERLINK" in merged or "'@SUM" in merged  # the values are kept, only made inert
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.one_of(st.none(), st.text(st.sampled_from(list("=+-@\t\r0123456789.,a é") + ["١", "٢", "߀"]),
+                                             max_size=6)), max_size=20))
+def test_the_vectorised_check_decides_as_needs_quote_does(values: list[str | None]) -> None:
+    series = pd.Series(values, dtype=object)
+    assert quote_mask(series).tolist() == [needs_quote(v) for v in values]
+    assert quote_mask(series.astype("string")).tolist() == [needs_quote(v) for v in values]
+
+
+def test_other_scripts_digits_are_plain_numbers_too() -> None:
+    # Python's re: \d matches any Unicode decimal digit (category Nd), e.g. ARABIC-INDIC DIGIT ONE
+    values = ["-١٢", "+١,٢", "-١a", "=١"]
+    assert quote_mask(pd.Series(values)).tolist() == [False, False, True, True]

@@ -256,10 +256,12 @@ def _quality_section(result: RunResult) -> str:
     return text
 
 
-def _summary(result: RunResult, thresholds: Thresholds) -> str:
-    """The figures to read first: records in, entities out, links, review, precision, changes."""
+def _summary(result: RunResult, thresholds: Thresholds, decisions: pd.Series) -> str:
+    """The figures to read first: records in, entities out, links, review, precision, changes.
+
+    ``decisions``: candidate pairs per decision (counted once for the whole report).
+    """
     records = int(sum(result.source_counts.values()))
-    decisions = result.pairs["decision"].value_counts()
     probability = result.pairs["probability"].to_numpy(float)
     linked = probability[probability >= thresholds.link]
     precision = f"{linked.mean():.1%}" if len(linked) else "n/a"
@@ -325,7 +327,8 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
         f"<title>Run report {_e(result.started)}</title><style>{_CSS}</style></head><body>")
     add(f"<h1>Run report</h1><p>Run started {_e(result.started.isoformat())}; {records:,} records from "
         f"{len(result.source_counts):,} sources became {entities:,} entities.</p>")
-    add(_summary(result, thresholds))
+    decisions = result.pairs["decision"].value_counts()  # one pass over the pairs, used twice
+    add(_summary(result, thresholds, decisions))
     add("<!--toc-->")
     add("<div class='caution' role='note'><strong>Before you use these results</strong><ul>"
         + "".join(f"<li>{_e(c)}</li>" for c in CAUTIONS) + "</ul></div>")
@@ -362,7 +365,6 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
             + "; ".join(f"{_e(r)} = '{_e(k)}' ({n} records)" for r, k, n in b.skipped_blocks[:20]) + "</p>")
 
     add("<h2>Scores</h2>")
-    decisions = result.pairs["decision"].value_counts()
     add(_table(decisions.rename_axis("decision").reset_index(name="pairs"), ("pairs",)))
     weights = result.pairs["weight"].to_numpy(float)
     if len(weights):
