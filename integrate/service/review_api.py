@@ -40,7 +40,7 @@ from .models import (
     UndoResponse,
 )
 from .results import plain
-from .review_clusters_api import add_cluster_routes, cluster_decision_row
+from .review_clusters_api import add_cluster_routes, cluster_decision_row, link_entities, undo_target
 
 NOTES = {
     "trust": "Trust rank: how far each source is believed when records disagree (1 = trusted most). It is set in "
@@ -69,13 +69,7 @@ def add_review_routes(app: FastAPI, contexts: dict[str, Any], auth: Any, ctx_of:
     def item(ctx: Any, key: tuple[str, str, str, str], queue: str) -> dict[str, Any]:
         data = ctx.review_data()
         payload = item_payload(data, key, queue)
-        try:
-            outputs = ctx.results.get()
-        except Exception:  # noqa: BLE001 - the links to entities are extra; the pair shows without them
-            outputs = None
-        for end in payload["records"]:
-            hit = outputs.entity_of_record(end["source"], end["record_id"]) if outputs is not None else None
-            end["entity_id"] = hit["entity_id"] if hit else None
+        link_entities(ctx, payload["records"])
         standing = ctx.decisions.get(key)
         payload["decision"] = _row(standing) if standing else None
         return payload
@@ -226,12 +220,7 @@ def add_review_routes(app: FastAPI, contexts: dict[str, Any], auth: Any, ctx_of:
         """Remove one of the caller's own decisions (by default their most recent one)."""
         ctx = ctx_of(ws)
         who = auth.check(request, ctx, "reviewer")
-        decision_id = body.decision_id
-        if decision_id is None:
-            last = ctx.decisions.last_decision_of(who.name)
-            if last is None:
-                raise api_error(404, "nothing_to_undo", f"{who.name} has no decision to undo")
-            decision_id = int(last["id"])
+        decision_id = undo_target(body.decision_id, ctx.decisions.last_decision_of, who.name, "decision", api_error)
         group_id = ctx.decisions.cluster_decision_of(decision_id)
         try:
             if group_id is not None:  # part of a decision on a whole cluster: all of it goes

@@ -24,6 +24,27 @@ from .models import (
 )
 from .results import plain
 
+
+def link_entities(ctx: Any, records: list[dict[str, Any]]) -> None:
+    """Each shown record's entity in the last run's outputs (None where unknown or unreadable)."""
+    try:
+        outputs = ctx.results.get()
+    except Exception:  # noqa: BLE001 - the links to entities are extra; the records show without them
+        outputs = None
+    for record in records:
+        hit = outputs.entity_of_record(record["source"], record["record_id"]) if outputs is not None else None
+        record["entity_id"] = hit["entity_id"] if hit else None
+
+
+def undo_target(given: int | None, last_of: Any, who: str, what: str, api_error: Any) -> int:
+    """The decision an undo request names, or the caller's most recent one (404 when none)."""
+    if given is not None:
+        return given
+    last = last_of(who)
+    if last is None:
+        raise api_error(404, "nothing_to_undo", f"{who} has no {what} to undo")
+    return int(last["id"])
+
 ClusterId = Annotated[str, Path(min_length=1, max_length=200, pattern=r"^[A-Za-z0-9_.+-]+$")]
 
 
@@ -51,13 +72,7 @@ def add_cluster_routes(app: FastAPI, auth: Any, ctx_of: Any, api_error: Any, err
             raise api_error(404, "unknown_cluster", f"no suspicious cluster '{cluster_id}' in the last run",
                             "the queue (GET .../review/queue) names each cluster by its cluster_id")
         payload = cluster_item(data, ctx.decisions, cluster_id)
-        try:
-            outputs = ctx.results.get()
-        except Exception:  # noqa: BLE001 - the links to entities are extra; the cluster shows without them
-            outputs = None
-        for record in payload["records"]:
-            hit = outputs.entity_of_record(record["source"], record["record_id"]) if outputs is not None else None
-            record["entity_id"] = hit["entity_id"] if hit else None
+        link_entities(ctx, payload["records"])
         if payload["decision"] is not None:
             payload["decision"] = cluster_decision_row(payload["decision"])
         return payload
@@ -101,12 +116,8 @@ def add_cluster_routes(app: FastAPI, auth: Any, ctx_of: Any, api_error: Any, err
         pairwise decision it stored."""
         ctx = ctx_of(ws)
         who = auth.check(request, ctx, "reviewer")
-        group_id = body.cluster_decision_id
-        if group_id is None:
-            last = ctx.decisions.last_cluster_decision_of(who.name)
-            if last is None:
-                raise api_error(404, "nothing_to_undo", f"{who.name} has no cluster decision to undo")
-            group_id = int(last["id"])
+        group_id = undo_target(body.cluster_decision_id, ctx.decisions.last_cluster_decision_of, who.name,
+                               "cluster decision", api_error)
         try:
             group = ctx.decisions.undo_cluster(group_id, who.name)
         except NothingToUndo as gone:
