@@ -36,7 +36,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .columns import RECORD_DATE, RECORD_ID, SOURCE, TRUST
+from .cluster import record_keys
+from .columns import RECORD_DATE, SOURCE, TRUST
 from .compare import established, rare_words
 from .mapping.apply import MappedSource
 from .mapping.spec import CanonicalSchema
@@ -75,10 +76,6 @@ def content_hashes(records: pd.DataFrame, canonical: CanonicalSchema) -> np.ndar
     return pd.util.hash_pandas_object(text, index=False).to_numpy(np.uint64)
 
 
-def record_key_text(records: pd.DataFrame) -> pd.Index:
-    return pd.Index(records[SOURCE].astype(str).str.cat(records[RECORD_ID].astype(str), sep="\x1f"))
-
-
 def settings_fingerprint(canonical_hash: str, regions: dict[str, str | None]) -> str:
     """What makes stored standard values and grades valid: the schema file and phone regions."""
     text = json.dumps({"schema": canonical_hash, "regions": regions, "version": CARRY_VERSION}, sort_keys=True)
@@ -114,7 +111,7 @@ def carry_tables(records: pd.DataFrame, prepared: pd.DataFrame, pairs: pd.DataFr
     stored = prepared.copy(deep=False)
     if entity_ids is not None:
         stored[_ENTITY] = np.asarray(entity_ids, dtype=object)
-    stored[_KEY] = np.asarray(record_key_text(records), dtype=object)
+    stored[_KEY] = record_keys(records)
     stored[_HASH] = content_hashes(records, canonical)
     stored[_STOOD] = (np.arange(len(records)) if copy_of is None else copy_of) == np.arange(len(records))
     grades = pd.DataFrame({"i": pairs["i"].to_numpy(np.int64), "j": pairs["j"].to_numpy(np.int64)})
@@ -221,7 +218,7 @@ class Plan:
 
 
 def plan(records: pd.DataFrame, canonical: CanonicalSchema, carried: Carried) -> Plan:
-    keys = record_key_text(records)
+    keys = pd.Index(record_keys(records))
     before = pd.Index(carried.prepared[_KEY].astype(str))
     at = before.get_indexer(keys)
     same = np.zeros(len(records), bool)
@@ -275,7 +272,7 @@ class Reuse:
         return found, self.grades[at_ok[found]]
 
 
-def _name_standing_changed(carried: Carried, the_plan: Plan, prepared: pd.DataFrame, stood: np.ndarray,
+def _name_standing_changed(carried: Carried, prepared: pd.DataFrame, stood: np.ndarray,
                            canonical: CanonicalSchema, pi: np.ndarray, pj: np.ndarray) -> np.ndarray:
     """Per stored pair (last run's positions): whether a name-in-use answer differs now.
 
@@ -318,7 +315,7 @@ def reuse_for(carried: Carried, the_plan: Plan, prepared: pd.DataFrame, copy_of:
     ci, cj = current_of[pi], current_of[pj]
     ok = (ci >= 0) & (cj >= 0)
     stood = copy_of == np.arange(n)
-    ok[ok] &= ~_name_standing_changed(carried, the_plan, prepared, stood, canonical, pi[ok], pj[ok])
+    ok[ok] &= ~_name_standing_changed(carried, prepared, stood, canonical, pi[ok], pj[ok])
     # blocking numbers the records that stand for their copies 0..m-1 (identical.py)
     positions = np.flatnonzero(stood)
     matched_as = np.full(n, -1, np.int64)
