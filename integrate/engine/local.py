@@ -49,7 +49,7 @@ def compare_with_reuse(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: C
     found, stored = reuse.split(pairs["i"].to_numpy(), pairs["j"].to_numpy())
     fresh = compare_in_chunks(prepared, pairs[~found], canonical, count=count)
     columns = list(fresh.columns)
-    if found.any() and [f for f in reuse.fields] != columns:
+    if found.any() and reuse.fields != columns:
         raise ValueError(f"stored grades hold fields {reuse.fields}, this run compares {columns}")
     out = np.empty((len(pairs), len(columns)), np.int8)
     out[~found] = fresh.to_numpy(np.int8)
