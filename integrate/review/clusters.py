@@ -28,6 +28,7 @@ from dataclasses import dataclass
 from typing import Any, Literal
 
 import networkx as nx
+import numpy as np
 import pandas as pd
 
 from .store import KEY_COLUMNS, ordered_pair
@@ -90,12 +91,17 @@ def within(pairs: pd.DataFrame, members: list[Record]) -> pd.DataFrame:
     return pairs[_keys(pairs, "a").isin(wanted).to_numpy() & _keys(pairs, "b").isin(wanted).to_numpy()]
 
 
-def _graph(links: pd.DataFrame) -> nx.Graph:
+def _link_rows(links: pd.DataFrame) -> list[tuple[str, str, str, str, float]]:
+    """The links as (key..., probability) tuples in their frame's order (a cluster has few: no frame ops)."""
+    return list(zip(links["source_a"], links["record_id_a"], links["source_b"], links["record_id_b"],
+                    links["probability"].astype(float)))
+
+
+def _graph(links: pd.DataFrame | list[tuple[str, str, str, str, float]]) -> nx.Graph:
     """Records as nodes, links as edges weighted by probability, entered in key order (deterministic ties)."""
     graph = nx.Graph()
-    ordered = links.sort_values(KEY_COLUMNS, kind="mergesort")
-    for sa, ra, sb, rb, p in zip(ordered["source_a"], ordered["record_id_a"], ordered["source_b"],
-                                 ordered["record_id_b"], ordered["probability"].astype(float)):
+    rows = _link_rows(links) if isinstance(links, pd.DataFrame) else links
+    for sa, ra, sb, rb, p in sorted(rows, key=lambda r: r[:4]):  # stable, as a mergesort on the key columns
         graph.add_edge((sa, ra), (sb, rb), probability=p)
     return graph
 
@@ -106,13 +112,14 @@ def _weakest(tree: nx.Graph, edges: list[tuple[Record, Record]]) -> tuple[Record
 
 def propose_split(links: pd.DataFrame, members: list[Record]) -> tuple[tuple[Record, ...], Key, float]:
     """Part A and the cut link for one whole cluster (see the module docstring), from its links."""
-    tree = nx.maximum_spanning_tree(_graph(links), weight="probability", algorithm="kruskal")
+    rows = _link_rows(links)
+    tree = nx.maximum_spanning_tree(_graph(rows), weight="probability", algorithm="kruskal")
     edges = [tuple(sorted(e)) for e in tree.edges()]
     if not edges:
         raise BadSplit("the cluster has no link to cut")
-    lowest = links.sort_values(["probability"] + KEY_COLUMNS, kind="mergesort").iloc[0]
-    a, b = (lowest["source_a"], lowest["record_id_a"]), (lowest["source_b"], lowest["record_id_b"])
-    if float(lowest["probability"]) < SUSPICIOUS_PAIR and nx.has_path(tree, a, b):
+    lowest = min(rows, key=lambda r: (r[4], r[:4]))  # the first of the lowest, as a stable sort would give
+    a, b = (lowest[0], lowest[1]), (lowest[2], lowest[3])
+    if lowest[4] < SUSPICIOUS_PAIR and nx.has_path(tree, a, b):
         path = nx.shortest_path(tree, a, b)
         cut = _weakest(tree, [tuple(sorted(e)) for e in zip(path, path[1:])])
     else:
@@ -140,19 +147,18 @@ def suspicious_clusters(pairs: pd.DataFrame, crosswalk: pd.DataFrame | None, clu
     crosswalk = crosswalk.astype({"source": str, "record_id": str, "entity_id": str})
     entity = crosswalk.set_index(["source", "record_id"])["entity_id"]
     entity = entity[~entity.index.duplicated()]
-    members_of = {e: sorted(zip(g["source"], g["record_id"])) for e, g in crosswalk.groupby("entity_id")}
+    members_of = _Members(crosswalk)
     table = clusters.set_index("entity_id")
     cut = table["cut_by"].fillna("").astype(str) != ""
     odd = (table["lowest_pair_probability"] < SUSPICIOUS_PAIR) | (
         (table["records"] >= 3) & (table["weakest_link"] < SUSPICIOUS_LINK))
+    asked = table.index[(odd & ~cut).to_numpy()].astype(str)
     links = pairs[pairs["decision"] == "link"]
     inside = _inside_links(pairs, entity)
-    inside_links = inside[inside["decision"] == "link"]
+    inside_links = inside[(inside["decision"] == "link").to_numpy() & inside["entity_id"].isin(asked).to_numpy()]
     cases: list[ClusterCase] = []
     # one case per suspicious cluster (a few hundred at most): a small graph each, not a row loop
     for entity_id, group in inside_links.groupby("entity_id", sort=True):
-        if entity_id not in table.index or cut.get(entity_id, False) or not odd.get(entity_id, False):
-            continue
         members = members_of[entity_id]
         part_a, anchor, p = propose_split(group, members)
         info = table.loc[entity_id]
@@ -165,7 +171,23 @@ def suspicious_clusters(pairs: pd.DataFrame, crosswalk: pd.DataFrame | None, clu
     return sorted(cases, key=lambda c: c.cluster_id)
 
 
-def _run_cuts(links: pd.DataFrame, entity: pd.Series, members_of: dict[str, list[Record]],
+class _Members:
+    """An entity's records, sorted, from the crosswalk sorted once (an entity's rows are one slice)."""
+
+    def __init__(self, crosswalk: pd.DataFrame) -> None:
+        ordered = crosswalk.sort_values(["entity_id", "source", "record_id"], kind="mergesort")
+        self.ids = ordered["entity_id"].to_numpy(dtype=object)
+        self.records = list(zip(ordered["source"], ordered["record_id"]))
+
+    def __getitem__(self, entity_id: str) -> list[Record]:
+        lo = int(np.searchsorted(self.ids, entity_id, side="left"))
+        hi = int(np.searchsorted(self.ids, entity_id, side="right"))
+        if lo == hi:
+            raise KeyError(entity_id)
+        return self.records[lo:hi]
+
+
+def _run_cuts(links: pd.DataFrame, entity: pd.Series, members_of: _Members,
               splits: pd.DataFrame | None) -> list[ClusterCase]:
     """One case per pair of entities a cut of this run separated (the cut's strongest link as anchor)."""
     if splits is None or splits.empty:
