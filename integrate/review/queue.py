@@ -59,6 +59,19 @@ class ReviewData:
     trust: dict[str, int]  # source -> trust rank
     cases: dict[str, ClusterCase] = dataclasses.field(default_factory=dict)  # suspicious clusters by cluster ID
     anchors: dict[Key, str] = dataclasses.field(default_factory=dict)  # queued anchor pair -> cluster ID
+    _snapshot: Any = dataclasses.field(default=None, repr=False, compare=False)  # scores_snapshot's columns
+
+    def position(self, key: Key) -> int | None:
+        """The row of a candidate pair in ``pairs`` (its first, were it there twice), or None."""
+        try:
+            at = self.pairs.index.get_loc(key)
+        except KeyError:
+            return None
+        if isinstance(at, slice):
+            return int(at.start)
+        if isinstance(at, np.ndarray):
+            return int(np.flatnonzero(at)[0])
+        return int(at)
 
     @property
     def sources(self) -> list[str]:
@@ -260,15 +273,30 @@ def _queue_reason(data: ReviewData, key: Key) -> str:
     return str(hits.iloc[0]) if len(hits) else ""
 
 
+SNAPSHOT_PREFIXES = ("grade_", "weight_", "value_frequency_")
+
+
 def scores_snapshot(data: ReviewData, key: Key) -> dict[str, Any]:
-    """The scores at the time of a decision: probability, weight, grades and weights per field."""
-    row = data.pairs.loc[key]
-    if isinstance(row, pd.DataFrame):
-        row = row.iloc[0]
-    scores = {c: (None if pd.isna(row[c]) else (str(row[c]) if c.startswith("grade_") else float(row[c])))
-              for c in row.index if str(c).startswith(("grade_", "weight_", "value_frequency_"))}
-    return {"probability": float(row["probability"]), "weight": float(row["weight"]),
-            "run_decision": str(row["decision"]), "scores": scores}
+    """The scores at the time of a decision: probability, weight, grades and weights per field.
+
+    Read from the pair's row of column arrays taken once per review data (a row of a wide mixed
+    frame costs far more than a decision's other work).
+    """
+    if data._snapshot is None:
+        pairs = data.pairs
+        data._snapshot = ([(str(c), str(c).startswith("grade_"), pairs[c].array) for c in pairs.columns
+                           if str(c).startswith(SNAPSHOT_PREFIXES)],
+                          pairs["probability"].array, pairs["weight"].array, pairs["decision"].array)
+    columns, probability, weight, decision = data._snapshot
+    at = data.position(key)
+    if at is None:
+        raise KeyError(key)
+    scores = {}
+    for name, is_grade, values in columns:
+        value = values[at]
+        scores[name] = None if pd.isna(value) else (str(value) if is_grade else float(value))
+    return {"probability": float(probability[at]), "weight": float(weight[at]),
+            "run_decision": str(decision[at]), "scores": scores}
 
 
 def cluster_item(data: ReviewData, store: DecisionStore, cluster_id: str) -> dict[str, Any]:
