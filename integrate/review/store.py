@@ -219,19 +219,71 @@ class DecisionStore:
         return cls(state_engine(workspace))
 
     # -- deciding -----------------------------------------------------------------------------
+    @staticmethod
+    def _values(new: NewDecision) -> tuple[tuple[str, str, str, str], dict[str, Any]]:
+        key = ordered_pair(new.source_a, new.record_id_a, new.source_b, new.record_id_b)
+        return key, {
+            **dict(zip(KEY_COLUMNS, key)), "decision": new.decision, "reviewer": new.reviewer,
+            "decided_at": new.decided_at or now_iso(), "note": (new.note or None),
+            "probability": new.probability, "weight": new.weight, "run_decision": new.run_decision,
+            "scores": json.dumps(new.scores, sort_keys=True) if new.scores else None, "origin": new.origin,
+        }
+
+    def record_many(self, news: list[NewDecision]) -> list[dict[str, Any] | DecisionConflict]:
+        """Store several decisions in ONE transaction (one commit, so one sync to disk for all).
+
+        Each decision follows the rules of ``record`` in the order given (a later one in the list
+        sees the earlier ones); the answer per decision is its stored row or the
+        ``DecisionConflict`` ``record`` would raise. Nothing is stored if the transaction fails.
+        On SQLite the transaction takes the write lock first, reads the batch's pairs in one query
+        and writes only what changes (a conflict costs no statement); other databases take the
+        decisions one transaction at a time (``record``).
+        """
+        if self.engine.dialect.name != "sqlite":
+            out: list[dict[str, Any] | DecisionConflict] = []
+            for new in news:
+                try:
+                    out.append(self.record(new))
+                except DecisionConflict as conflict:
+                    out.append(conflict)
+            return out
+        answers: list[dict[str, Any] | DecisionConflict] = []
+        logged: list[tuple[dict[str, Any], str]] = []
+        t = decision_table
+        prepared = [self._values(new) for new in news]
+        with self.engine.begin() as conn:
+            # a write that changes nothing, first: the transaction holds the write lock before it reads
+            conn.execute(update(t).where(t.c.id == -1).values(revision=t.c.revision))
+            keys = sorted({key for key, _ in prepared})
+            standing = {tuple(r[c] for c in KEY_COLUMNS): dict(r) for r in conn.execute(
+                select(t).where(tuple_(*(t.c[c] for c in KEY_COLUMNS)).in_(keys))).mappings()}
+            for new, (key, values) in zip(news, prepared):
+                current = standing.get(key)
+                if current is None:  # nobody decided the pair
+                    result = conn.execute(insert(t).values(**values, revision=1))
+                    row = {**values, "id": int(result.inserted_primary_key[0]), "revision": 1}
+                    action = "decide"
+                elif current["decision"] == "defer" or current["reviewer"] == new.reviewer:
+                    conn.execute(update(t).where(t.c.id == current["id"]).values(**values, revision=t.c.revision + 1))
+                    row = {**current, **values, "revision": int(current["revision"]) + 1}
+                    action = "replace"
+                else:
+                    answers.append(DecisionConflict(dict(current)))
+                    continue
+                standing[key] = row
+                logged.append((row, action))
+                answers.append(row)
+            if logged:  # the history rows of the whole batch in one statement, in the order decided
+                conn.execute(insert(history_table), [self._history_row(row, action) for row, action in logged])
+        return answers
+
     def record(self, new: NewDecision) -> dict[str, Any]:
         """Store a decision in one transaction; returns the stored row.
 
         Raises:
             DecisionConflict: another reviewer already decided the pair ``same`` or ``different``.
         """
-        key = ordered_pair(new.source_a, new.record_id_a, new.source_b, new.record_id_b)
-        values = {
-            **dict(zip(KEY_COLUMNS, key)), "decision": new.decision, "reviewer": new.reviewer,
-            "decided_at": new.decided_at or now_iso(), "note": (new.note or None),
-            "probability": new.probability, "weight": new.weight, "run_decision": new.run_decision,
-            "scores": json.dumps(new.scores, sort_keys=True) if new.scores else None, "origin": new.origin,
-        }
+        key, values = self._values(new)
         where = self._where(key)
         for _ in range(_RETRIES):
             try:
@@ -488,9 +540,13 @@ class DecisionStore:
         return and_(*[table.c[c] == v for c, v in zip(KEY_COLUMNS, key)])
 
     @staticmethod
-    def _log(conn: Any, row: dict[str, Any], action: str) -> None:
-        conn.execute(insert(history_table).values(decision_id=row["id"], action=action, at=now_iso(),
-                                                  row=json.dumps(row, sort_keys=True, default=str)))
+    def _history_row(row: dict[str, Any], action: str) -> dict[str, Any]:
+        return {"decision_id": row["id"], "action": action, "at": now_iso(),
+                "row": json.dumps(row, sort_keys=True, default=str)}
+
+    @classmethod
+    def _log(cls, conn: Any, row: dict[str, Any], action: str) -> None:
+        conn.execute(insert(history_table).values(**cls._history_row(row, action)))
 
 
 def load_decisions(workspace: str | Path) -> pd.DataFrame:

@@ -11,6 +11,7 @@ from ..review.queue import ReviewData, load_review_data
 from ..review.store import DecisionStore
 from ..state import StateStore, state_engine
 from ..workspace import Workspace, load_workspace
+from .decision_writer import DecisionWriter
 from .jobs import JobRunner
 from .queue_cache import QueueState
 from .results import ResultsCache
@@ -29,6 +30,7 @@ class WorkspaceContext:
     _review: tuple[object, ReviewData] | None = None
     _queue: tuple[object, QueueState] | None = None
     _lock: threading.Lock = field(default_factory=threading.Lock)
+    _writer: DecisionWriter | None = None
 
     @classmethod
     def open(cls, name: str, root: Path) -> WorkspaceContext:
@@ -36,6 +38,15 @@ class WorkspaceContext:
         full_sync(state_engine(root))  # every acknowledged write survives a crash (see store.full_sync)
         return cls(name, root, TokenStore.for_workspace(root), DecisionStore.for_workspace(root),
                    StateStore.for_workspace(root), JobRunner(root), ResultsCache(root))
+
+    @property
+    def writer(self) -> DecisionWriter:
+        """The thread that stores this workspace's decisions from the service (``decision_writer``)."""
+        if self._writer is None:
+            with self._lock:
+                if self._writer is None:
+                    self._writer = DecisionWriter(self.decisions)
+        return self._writer
 
     def workspace(self) -> Workspace:
         return load_workspace(self.root)
@@ -47,6 +58,16 @@ class WorkspaceContext:
             self.queue_state()
         except Exception:  # noqa: BLE001 - a request will report the problem when it asks
             return
+
+    def fresh_review_data(self) -> ReviewData | None:
+        """The review data when it is known to be current without asking anything (cheap: for the event loop)."""
+        stamp, cached = self.results.known_stamp(), self._review
+        return cached[1] if stamp is not None and cached is not None and cached[0] == stamp else None
+
+    def fresh_queue_state(self) -> QueueState | None:
+        """The queue state when it is known to be current without asking anything (for the event loop)."""
+        data, cached = self.fresh_review_data(), self._queue
+        return cached[1] if data is not None and cached is not None and cached[0] is data else None
 
     def review_data(self) -> ReviewData:
         """The last run's pairs for reviewing, reloaded when a new output set appears."""

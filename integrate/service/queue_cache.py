@@ -12,6 +12,7 @@ The items are the same as ``queue_items`` gives for the possible-links queue (a 
 from __future__ import annotations
 
 import json
+import sqlite3
 import threading
 from typing import Any
 
@@ -37,9 +38,19 @@ class QueueState:
         self.codes = np.zeros(len(self.keys), np.int8)
         self._filters: dict[tuple[str | None, str | None], np.ndarray] = {}
         self._lock = threading.Lock()
-        self._sqlite = store.engine.dialect.name == "sqlite"
+        self._sqlite = store.engine.dialect.name == "sqlite" and store.engine.url.database not in (None, "", ":memory:")
+        self._reader: sqlite3.Connection | None = None
+        reasons = queue["reason"]
+        self.possible_links = int((reasons == "possible link").sum())
+        self.weakest_links = len(reasons) - self.possible_links
         self._last = -1
         self._reload()
+
+    @property
+    def reads_cheaply(self) -> bool:
+        """A read follows the few history rows written since the last one (SQLite) instead of reading every
+        decision again: cheap enough for the server's event loop."""
+        return self._sqlite
 
     def _set(self, key: Key, decision: str | None) -> None:
         at = self.position.get(key)
@@ -61,15 +72,30 @@ class QueueState:
             if not self._sqlite:
                 self._reload()
                 return
-            t = history_table
-            with self.store.engine.connect() as conn:
-                changes = conn.execute(select(t.c.id, t.c.action, t.c.row).where(t.c.id > self._last)
-                                       .order_by(t.c.id)).all()
+            changes = self._history_since(self._last)
             for change_id, action, text in changes:
                 row = json.loads(text)
                 key = tuple(str(row[c]) for c in KEY_COLUMNS)
                 self._set(key, None if action == "undo" else str(row["decision"]))  # type: ignore[arg-type]
                 self._last = int(change_id)
+
+    def _history_since(self, last: int) -> list[tuple[int, str, str]]:
+        """History rows after ``last``, read on a plain connection of this cache's own: a read per queue
+        request, so without the pool and statement building of the engine (a few microseconds, not hundreds)."""
+        if self._reader is None:
+            self._reader = sqlite3.connect(self.store.engine.url.database, timeout=30, check_same_thread=False)
+        t = history_table
+        cursor = self._reader.execute(f"SELECT {t.c.id.name}, {t.c.action.name}, {t.c.row.name} FROM {t.name} "
+                                      f"WHERE {t.c.id.name} > ? ORDER BY {t.c.id.name}", (last,))
+        return cursor.fetchall()
+
+    def close(self) -> None:
+        if self._reader is not None:
+            self._reader.close()
+            self._reader = None
+
+    def __del__(self) -> None:
+        self.close()
 
     def positions(self, source: str | None, field: str | None) -> np.ndarray:
         """Queue positions kept by the source and field filters (computed once per filter)."""

@@ -163,6 +163,13 @@ class ResultsCache:
         except OSError:
             return folder, (str(folder), -1)
 
+    def known_stamp(self) -> tuple[str, int] | None:
+        """The current output set's stamp when it was checked less than ``RECHECK`` seconds ago, else None."""
+        checked = self._checked
+        if checked is None or time.monotonic() - checked[0] >= self.RECHECK:
+            return None
+        return checked[2]
+
     def fresh(self) -> OutputSet | None:
         """The loaded set when it is known to be current without asking anything (cheap: for the event loop)."""
         checked, current = self._checked, self._current

@@ -39,6 +39,7 @@ from .models import (
     UndoRequest,
     UndoResponse,
 )
+from .queue_cache import QueueState
 from .results import plain
 from .review_clusters_api import add_cluster_routes, cluster_decision_row, link_entities, undo_target
 
@@ -109,30 +110,42 @@ def add_review_routes(app: FastAPI, contexts: dict[str, Any], auth: Any, ctx_of:
                              sources=data.sources, fields=list(data.fields), trust=data.trust, as_of=data.as_of,
                              shortcuts=[{"key": k, "action": a} for k, a in SHORTCUTS], notes=NOTES)
 
-    @app.get(f"{base}/queue", response_model=QueueResponse, responses=ERRORS, tags=["review"])
-    def queue(ws: str, request: Request, queue: Annotated[str, Query(pattern="^(possible|audit)$")] = "possible",
-              source: Annotated[str | None, Query(max_length=200)] = None,
-              field: Annotated[str | None, Query(max_length=200)] = None,
-              offset: Annotated[int, Query(ge=0, le=10**9)] = 0,
-              limit: Annotated[int, Query(ge=1, le=1000)] = 100) -> QueueResponse:
-        """The queue in review order with each pair's state (open / deferred / decided)."""
-        ctx = ctx_of(ws)
-        auth.check(request, ctx, "reader")
-        data = ctx.review_data()
-        reasons = data.queue["reason"] if queue != AUDIT else None
-        possible = int((reasons == "possible link").sum()) if reasons is not None else 0
+    def _queue_answer(ctx: Any, queue: str, source: str | None, field: str | None, offset: int, limit: int,
+                      state: QueueState | None = None) -> bytes:
         if queue != AUDIT:  # kept in memory and followed decision by decision (queue_cache)
-            progress, shown = ctx.queue_state().page(source or None, field or None, offset, limit)
+            state = state or ctx.queue_state()
+            data = state.data
+            progress, shown = state.page(source, field, offset, limit)
+            for entry in shown:
+                entry["cluster_id"] = data.anchors.get(tuple(entry[c] for c in KEY_COLUMNS))
+            possible, weakest = state.possible_links, state.weakest_links
         else:
-            items = queue_items(data, ctx.decisions, queue, source=source or None, field=field or None)
+            data = ctx.review_data()
+            items = queue_items(data, ctx.decisions, queue, source=source, field=field)
             decided = int((items["state"] == "decided").sum())
             progress = {"total": len(items), "decided": decided, "deferred": int((items["state"] == "deferred").sum()),
                         "remaining": len(items) - decided}
-            shown = [_row(r) for r in items.iloc[offset:offset + limit].to_dict("records")]
-        for entry in shown:
-            entry["cluster_id"] = data.anchors.get(tuple(entry[c] for c in KEY_COLUMNS)) if queue != AUDIT else None
+            shown = [{**_row(r), "cluster_id": None} for r in items.iloc[offset:offset + limit].to_dict("records")]
+            possible = weakest = 0
         return QueueResponse(queue=queue, progress=progress, possible_links=possible,  # type: ignore[arg-type]
-                             weakest_links=(len(reasons) - possible) if reasons is not None else 0, items=shown)
+                             weakest_links=weakest, items=shown).model_dump_json().encode()
+
+    @app.get(f"{base}/queue", response_model=QueueResponse, responses=ERRORS, tags=["review"])
+    async def queue(ws: str, request: Request,
+                    queue: Annotated[str, Query(pattern="^(possible|audit)$")] = "possible",
+                    source: Annotated[str | None, Query(max_length=200)] = None,
+                    field: Annotated[str | None, Query(max_length=200)] = None,
+                    offset: Annotated[int, Query(ge=0, le=10**9)] = 0,
+                    limit: Annotated[int, Query(ge=1, le=1000)] = 100) -> QueueResponse:
+        """The queue in review order with each pair's state (open / deferred / decided)."""
+        ctx = ctx_of(ws)
+        auth.check(request, ctx, "reader")
+        state = ctx.fresh_queue_state() if queue != AUDIT else None
+        if state is not None and state.reads_cheaply:  # a few array reads: answered on the event loop
+            answer = _queue_answer(ctx, queue, source or None, field or None, offset, limit, state)
+        else:  # loading a new output set, or reading every decision again: in a thread
+            answer = await asyncio.to_thread(_queue_answer, ctx, queue, source or None, field or None, offset, limit)
+        return Response(answer, media_type="application/json")  # type: ignore[return-value]
 
     def _next(ctx: Any, reviewer: str, queue: str, source: str | None, field: str | None,
               skip: tuple[str, str, str, str] | None, claim: bool) -> dict[str, Any]:
@@ -200,16 +213,18 @@ def add_review_routes(app: FastAPI, contexts: dict[str, Any], auth: Any, ctx_of:
     # -- writing ----------------------------------------------------------------------------
     @app.post(f"{base}/decisions", response_model=DecisionResponse, status_code=201, responses=ERRORS,
               tags=["review"])
-    def decide(ws: str, body: DecisionRequest, request: Request) -> Any:
+    async def decide(ws: str, body: DecisionRequest, request: Request) -> Any:
         """Record the caller's decision: 201, or 409 with the decision another reviewer made."""
         ctx = ctx_of(ws)
         who = auth.check(request, ctx, "reviewer")
+        data = ctx.fresh_review_data() or await asyncio.to_thread(ctx.review_data)
         key = ordered_pair(body.source_a, body.record_id_a, body.source_b, body.record_id_b)
-        known(ctx, key)
+        if key not in data.pairs.index:
+            raise api_error(404, "unknown_pair", "no such candidate pair in the last run")
         new = NewDecision(**dict(zip(KEY_COLUMNS, key)), decision=body.decision, reviewer=who.name,
-                          note=body.note, origin=body.queue, **scores_snapshot(ctx.review_data(), key))
-        try:
-            row = ctx.decisions.record(new)
+                          note=body.note, origin=body.queue, **scores_snapshot(data, key))
+        try:  # stored by the workspace's writer thread, with the decisions that arrive meanwhile
+            row = await asyncio.wrap_future(ctx.writer.submit(new))
         except DecisionConflict as conflict:
             raise api_error(409, "already_decided", str(conflict), "the decision that stands is in 'existing'",
                             existing=_row(conflict.existing)) from None

@@ -3,9 +3,11 @@ conflicts, replacing, undo, history, load_decisions."""
 
 from __future__ import annotations
 
+import random
 import threading
 from pathlib import Path
 
+import pandas as pd
 import pytest
 
 from integrate.review.store import (
@@ -151,3 +153,88 @@ def test_a_cluster_decision_is_stored_whole_or_not_at_all_and_undone_whole(tmp_p
     assert list(store.history()["action"]).count("undo") == 2
     with pytest.raises(NothingToUndo):
         store.undo_cluster(group["id"], "ana")
+
+
+def _random_decisions(seed: int, n: int, b: str) -> list[NewDecision]:
+    """Decisions of three reviewers on four pairs, drawn so that new pairs, replacements, deferrals and
+    conflicts all occur (seeded, so a failure can be replayed)."""
+    rng = random.Random(seed)
+    return [_decision(rng.choice(["same", "different", "defer"]), rng.choice(["ana", "bo", "cy"]),
+                      a=str(rng.randrange(4)), b=b) for _ in range(n)]
+
+
+def _outcome(answer: object) -> tuple[str, ...]:
+    if isinstance(answer, DecisionConflict):
+        return ("conflict", answer.existing["reviewer"], answer.existing["decision"])
+    assert isinstance(answer, dict)
+    return ("stored", answer["reviewer"], answer["decision"], str(answer["revision"]))
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_decisions_stored_in_batches_end_as_they_would_one_at_a_time(tmp_path: Path, seed: int) -> None:
+    """``record_many`` (one transaction, the service's group commit) gives each decision the answer
+    ``record`` gives it, and leaves the same decisions and history, whatever the batch sizes."""
+    # two workspaces; on PostgreSQL both use the one database, so each has pairs of its own (b = x / y)
+    single = DecisionStore.for_workspace(tmp_path / "single")
+    expected = []
+    for new in _random_decisions(seed, 60, "x"):
+        try:
+            expected.append(_outcome(single.record(new)))
+        except DecisionConflict as conflict:
+            expected.append(_outcome(conflict))
+    batched = DecisionStore.for_workspace(tmp_path / "batched")
+    news = _random_decisions(seed, 60, "y")
+    rng, got, at = random.Random(seed + 100), [], 0
+    while at < len(news):
+        size = rng.randint(1, 9)
+        got += [_outcome(a) for a in batched.record_many(news[at:at + size])]
+        at += size
+    assert got == expected
+    assert {"conflict", "stored"} <= {g[0] for g in got}  # the draw exercised both answers
+    keep = ["record_id_b", "decision", "reviewer", "revision"]
+
+    def mine(frame: pd.DataFrame, b: str) -> pd.DataFrame:  # stored ends are ordered: (club, b) comes first
+        if "record_id_a" in frame:
+            ends = frame["record_id_a"]
+        else:  # a history row holds the decision as JSON
+            ends = frame["row"].str.extract(r'"record_id_a": "(\w+)"')[0]
+        return frame[(ends == b).to_numpy()].reset_index(drop=True)
+
+    assert mine(batched.decisions(), "y")[keep].equals(mine(single.decisions(), "x")[keep])
+    assert mine(batched.history(), "y")["action"].tolist() == mine(single.history(), "x")["action"].tolist()
+
+
+def test_the_writer_thread_answers_every_decision_once_and_stores_each_pair_once(tmp_path: Path) -> None:
+    """Eight threads hand 40 decisions each to the service's decision writer: every future is answered
+    (a stored row or a conflict), each pair is stored once, and the answers agree with the store."""
+    from integrate.service.decision_writer import DecisionWriter
+
+    store = DecisionStore.for_workspace(tmp_path)
+    writer = DecisionWriter(store)
+    barrier = threading.Barrier(8)
+    answers: dict[str, list[str]] = {}
+
+    def work(name: str) -> None:
+        barrier.wait()
+        futures = [writer.submit(_decision("same", name, a=str(pair), b=str(pair))) for pair in range(40)]
+        outcome = []
+        for future in futures:
+            try:
+                outcome.append(future.result(timeout=60)["reviewer"])
+            except DecisionConflict as conflict:
+                outcome.append("conflict:" + conflict.existing["reviewer"])
+        answers[name] = outcome
+
+    threads = [threading.Thread(target=work, args=(f"r{k}",)) for k in range(8)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    frame = store.decisions()
+    assert len(frame) == 40
+    owner = dict(zip(frame["record_id_a"], frame["reviewer"]))
+    for name, outcome in answers.items():
+        for pair, said in enumerate(outcome):
+            # the one who got the pair was told so; everyone else was told who had it
+            assert said == (name if owner[str(pair)] == name else "conflict:" + owner[str(pair)])
+    assert (store.history()["action"] == "decide").sum() == 40
