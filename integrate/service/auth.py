@@ -5,8 +5,9 @@ WS``); the review page's session token (``integrate review``) lives only in the 
 Roles are ordered reader < reviewer < admin: a reader reads, a reviewer also records decisions,
 an admin also uploads files and starts runs. With ``open_reads`` a request without a token may
 read (never write). A decision's reviewer is the token's name, never a name the client sends.
-A token found in a store is remembered for ``REMEMBER`` seconds, so a revoked token stops
-working at most that long after ``token revoke``.
+A store's tokens are read all at once and kept for ``REMEMBER`` seconds (a secret not among
+them makes the server read them again at once), so a revoked token stops working at most that
+long after ``token revoke``.
 """
 
 from __future__ import annotations
@@ -45,7 +46,7 @@ class Auth:
         self.contexts = contexts
         self.open_reads = open_reads
         self.session = session
-        self._known: dict[tuple[int, str], tuple[float, Principal]] = {}
+        self._known: dict[int, tuple[float, dict[str, Any]]] = {}  # store -> (valid until, tokens by hash)
 
     def _session(self, secret: str) -> Principal | None:
         for known, who in self.session.items():
@@ -62,17 +63,16 @@ class Auth:
         if who is not None:
             return who
         now = time.monotonic()
+        hashed = None
         for c in [ctx] if ctx is not None else list(self.contexts.values()):
-            remembered = self._known.get((id(c), secret))
-            if remembered is not None and remembered[0] > now:
-                return remembered[1]
-            token = c.tokens.verify(secret)
+            hashed = hashed or c.tokens.hash_of(secret)
+            known = self._known.get(id(c))
+            token = known[1].get(hashed) if known is not None and known[0] > now else None
+            if token is None:  # stale, or a token made since: read the store's tokens again
+                self._known[id(c)] = (now + REMEMBER, c.tokens.active())
+                token = self._known[id(c)][1].get(hashed)
             if token is not None:
-                who = Principal(name=token.name, role=token.role)
-                if len(self._known) > 10_000:
-                    self._known.clear()
-                self._known[(id(c), secret)] = (now + REMEMBER, who)
-                return who
+                return Principal(name=token.name, role=token.role)
         raise AuthError(401, "bad_token", "the token is unknown or revoked",
                         "make one with: integrate serve token create WORKSPACE --name NAME --role ROLE")
 

@@ -133,6 +133,17 @@ class TokenStore:
                 name=name, role=role, hash=_hash(secret), created_at=created)).inserted_primary_key[0])
         return Token(token_id, name, role, created, None, secret)
 
+    def active(self) -> dict[str, Token]:
+        """Every token not revoked, by the hash of its secret (one query for all)."""
+        t = token_table
+        with self.engine.connect() as conn:
+            rows = conn.execute(select(t).where(t.c.revoked_at.is_(None))).mappings().all()
+        return {r["hash"]: Token(r["token_id"], r["name"], r["role"], r["created_at"]) for r in rows}
+
+    @staticmethod
+    def hash_of(secret: str) -> str:
+        return _hash(secret)
+
     def verify(self, secret: str) -> Token | None:
         """The token behind a secret, if it exists and is not revoked."""
         t = token_table
