@@ -53,8 +53,15 @@ def refuse_open_address(host: str, token_counts: dict[str, int]) -> None:
 
 
 def run(app: Any, sock: socket.socket) -> None:
+    import sys
+
     import uvicorn
 
+    # The event loop rarely waits when many clients are served, so a thread the loop hands work to (the
+    # decision writer, loading a new output set) gets the interpreter lock only when the loop is forced
+    # to give it up: every 5 ms by default, a wait paid per hand-off. 1 ms cut the decisions' p95 under
+    # 50 clients from 184 to 140 ms (benchmarks/service_load.py).
+    sys.setswitchinterval(0.001)
     config = uvicorn.Config(app, log_level="warning", access_log=False, timeout_graceful_shutdown=5)
     uvicorn.Server(config).run(sockets=[sock])
 
