@@ -281,3 +281,36 @@ def test_token_commands(tmp_path: Path, demo_run) -> None:  # noqa: ANN001
     again = subprocess.run([sys.executable, "-m", "integrate", "serve", "token", "revoke", str(ws), "1"],
                            capture_output=True, text=True, timeout=120)
     assert again.returncode == 2 and "no active token" in again.stderr
+
+
+def test_a_look_up_asked_again_is_the_same_answer_with_the_same_guards(served) -> None:  # noqa: ANN001
+    """The second look-up of an entity or a record is answered from the bytes the route made the first time
+    (``service.answer_cache``): same body and headers, and still refused without a token, with a revoked
+    token, and for another Host."""
+    server, tokens = served
+    crosswalk = pd.read_csv(server.ws / "out" / "crosswalk.csv", dtype=str)
+    row = crosswalk.iloc[len(crosswalk) // 2]
+    base = f"{server.url}/api/v1/workspaces/ws"
+    store = TokenStore.for_workspace(server.ws)
+    brief = store.create("brief", "reader")
+    auth = {"Authorization": f"Bearer {brief.secret}"}
+    for path in (f"/entities/{row['entity_id']}", f"/records/{row['source']}/{row['record_id']}"):
+        first, again = httpx.get(base + path, headers=auth), httpx.get(base + path, headers=auth)
+        assert first.status_code == again.status_code == 200
+        assert first.content == again.content
+        drop = {"date", "content-length"}
+        assert {k: v for k, v in first.headers.items() if k not in drop} == {
+            k: v for k, v in again.headers.items() if k not in drop}
+        assert again.headers["x-content-type-options"] == "nosniff"
+        assert again.json()["entity_id"] == row["entity_id"]
+        refused = httpx.get(base + path)
+        assert refused.status_code == 401 and refused.json()["error"]["reason"] == "no_token"
+        assert httpx.get(base + path, headers={**auth, "Host": "evil.example:80"}).status_code == 421
+    assert httpx.get(base + "/entities/E-NOT-THERE", headers=auth).status_code == 404
+    assert store.revoke(brief.token_id)
+    path = f"/entities/{row['entity_id']}"
+    deadline = time.monotonic() + 10  # a revoked token stops working within auth.REMEMBER (2 s)
+    while httpx.get(base + path, headers=auth).status_code == 200 and time.monotonic() < deadline:
+        time.sleep(0.2)
+    gone = httpx.get(base + path, headers=auth)
+    assert gone.status_code == 401 and gone.json()["error"]["reason"] == "bad_token"

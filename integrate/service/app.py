@@ -26,6 +26,7 @@ from starlette.exceptions import HTTPException as StarletteHTTPException
 from ..errors import InputError, InputErrors, IntegrateError
 from ..mapping.load import file_hash
 from ..pipeline import STAGES
+from .answer_cache import CachedAnswers
 from .auth import Auth, AuthError, bearer
 from .context import WorkspaceContext, workspace_names
 from .docs_page import docs_html
@@ -118,6 +119,8 @@ def create_app(workspaces: list[str | Path], *, host: str = "127.0.0.1", port: i
     app.state.auth = auth
     own = {f"http://{h}" for h in allowed_hosts(host, port)}
     origins = own | set(cors_origins or [])
+    # innermost of the middleware: look-ups answered before already are sent again from their bytes
+    app.add_middleware(CachedAnswers, contexts=contexts, auth=auth)
     if cors_origins:
         from fastapi.middleware.cors import CORSMiddleware
 
