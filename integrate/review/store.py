@@ -47,7 +47,9 @@ from sqlalchemy import (
     Text,
     UniqueConstraint,
     and_,
+    bindparam,
     delete,
+    func,
     insert,
     or_,
     select,
@@ -207,6 +209,13 @@ def has_state(workspace: str | Path) -> bool:
     return bool(os.environ.get(STATE_URL_ENV, "").strip()) or state_database(workspace).exists()
 
 
+def _replace_statement() -> Any:
+    """UPDATE of a whole decision row by id, its values as ``new_<column>`` parameters (for executemany)."""
+    t = decision_table
+    return update(t).where(t.c.id == bindparam("new_id")).values(
+        {c.name: bindparam(f"new_{c.name}") for c in t.columns if c.name != "id"})
+
+
 class DecisionStore:
     """Review decisions of one workspace, safe for several reviewers at once."""
 
@@ -249,6 +258,8 @@ class DecisionStore:
             return out
         answers: list[dict[str, Any] | DecisionConflict] = []
         logged: list[tuple[dict[str, Any], str]] = []
+        added: list[dict[str, Any]] = []
+        replaced: list[dict[str, Any]] = []
         t = decision_table
         prepared = [self._values(new) for new in news]
         with self.engine.begin() as conn:
@@ -257,22 +268,28 @@ class DecisionStore:
             keys = sorted({key for key, _ in prepared})
             standing = {tuple(r[c] for c in KEY_COLUMNS): dict(r) for r in conn.execute(
                 select(t).where(tuple_(*(t.c[c] for c in KEY_COLUMNS)).in_(keys))).mappings()}
+            # ids as SQLite would give them one INSERT at a time (the table has no AUTOINCREMENT: the
+            # largest id plus one), so that all new rows go in one statement
+            last_id = int(conn.execute(select(func.max(t.c.id))).scalar() or 0)
             for new, (key, values) in zip(news, prepared):
                 current = standing.get(key)
                 if current is None:  # nobody decided the pair
-                    result = conn.execute(insert(t).values(**values, revision=1))
-                    row = {**values, "id": int(result.inserted_primary_key[0]), "revision": 1}
-                    action = "decide"
+                    last_id += 1
+                    row, action = {**values, "id": last_id, "revision": 1}, "decide"
+                    added.append(row)
                 elif current["decision"] == "defer" or current["reviewer"] == new.reviewer:
-                    conn.execute(update(t).where(t.c.id == current["id"]).values(**values, revision=t.c.revision + 1))
-                    row = {**current, **values, "revision": int(current["revision"]) + 1}
-                    action = "replace"
+                    row, action = {**current, **values, "revision": int(current["revision"]) + 1}, "replace"
+                    replaced.append(row)
                 else:
                     answers.append(DecisionConflict(dict(current)))
                     continue
                 standing[key] = row
                 logged.append((row, action))
                 answers.append(row)
+            if added:  # new rows first: a replacement in the same batch may be of one of them
+                conn.execute(insert(t), added)
+            if replaced:
+                conn.execute(_replace_statement(), [{f"new_{k}": v for k, v in row.items()} for row in replaced])
             if logged:  # the history rows of the whole batch in one statement, in the order decided
                 conn.execute(insert(history_table), [self._history_row(row, action) for row, action in logged])
         return answers

@@ -171,7 +171,8 @@ def _outcome(answer: object) -> tuple[str, ...]:
 
 
 @pytest.mark.parametrize("seed", range(6))
-def test_decisions_stored_in_batches_end_as_they_would_one_at_a_time(tmp_path: Path, seed: int) -> None:
+def test_decisions_stored_in_batches_end_as_they_would_one_at_a_time(tmp_path: Path, seed: int,
+                                                                     state_backend: str) -> None:
     """``record_many`` (one transaction, the service's group commit) gives each decision the answer
     ``record`` gives it, and leaves the same decisions and history, whatever the batch sizes."""
     # two workspaces; on PostgreSQL both use the one database, so each has pairs of its own (b = x / y)
@@ -202,6 +203,9 @@ def test_decisions_stored_in_batches_end_as_they_would_one_at_a_time(tmp_path: P
 
     assert mine(batched.decisions(), "y")[keep].equals(mine(single.decisions(), "x")[keep])
     assert mine(batched.history(), "y")["action"].tolist() == mine(single.history(), "x")["action"].tolist()
+    if state_backend == "sqlite":  # two databases of their own: a batch gives the ids single INSERTs would
+        assert batched.decisions()["id"].tolist() == single.decisions()["id"].tolist()
+        assert batched.history()["decision_id"].tolist() == single.history()["decision_id"].tolist()
 
 
 def test_the_writer_thread_answers_every_decision_once_and_stores_each_pair_once(tmp_path: Path) -> None:
