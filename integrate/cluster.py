@@ -172,9 +172,17 @@ class _Components:
         for a, b, q in zip(*(x.tolist() for x in self._ordered(i[clear], j[clear], p[clear]))):
             self.different.setdefault(a, []).append((b, q))
             self.different.setdefault(b, []).append((a, q))
-        self.pair_probability: dict[tuple[int, int], float] = {}
-        for a, b, q in zip(i.tolist(), j.tolist(), p.tolist()):
-            self.pair_probability.setdefault((a, b), q)
+        # those components' compared pairs, each (i, j) once (its first row), found by binary
+        # search: a dict keyed by pair cost a Python object per pair, and a component that may be
+        # cut can hold millions of pairs on a large input
+        self._n = n
+        self._pair_code, first = np.unique(i * n + j, return_index=True)
+        self._pair_p = p[first]
+        # ... and by component, each component's in the order of its records' ranks (i, then j)
+        i, j, p = i[first], j[first], self._pair_p
+        order = np.lexsort((self.rank[j], self.rank[i], self.component[i]))
+        self._cut_pairs = (i[order], j[order], p[order])
+        self._cut_component = self.component[i[order]]
 
     def _components(self, n: int) -> tuple[np.ndarray, int]:
         """Components of links and must-links, numbered in the order of their first record by rank."""
@@ -245,8 +253,20 @@ class _Components:
         return order, component[order]
 
     def probability_of(self, a: int, b: int) -> float | None:
-        p = self.pair_probability.get((a, b), self.pair_probability.get((b, a)))
-        return None if p is None else float(p)
+        """The compared pair (a, b)'s match probability, else (b, a)'s; None when not compared
+        (or not in a component that may be cut)."""
+        for key in (a * self._n + b, b * self._n + a):
+            at = int(np.searchsorted(self._pair_code, key))
+            if at < len(self._pair_code) and self._pair_code[at] == key:
+                return float(self._pair_p[at])
+        return None
+
+    def pairs_of(self, number: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """The compared pairs (i, j, probability) inside component ``number`` (one that may be
+        cut), ordered by the rank of i, then of j."""
+        span = slice(int(np.searchsorted(self._cut_component, number)),
+                     int(np.searchsorted(self._cut_component, number, "right")))
+        return self._cut_pairs[0][span], self._cut_pairs[1][span], self._cut_pairs[2][span]
 
     def violation(self, part: list[int]) -> tuple[int, int, str, str] | None:
         """The first pair in ``part`` (sorted by rank) that breaks a rule, with its reason."""
@@ -300,16 +320,12 @@ class _Problem:
         self.unit = unit.reshape(-1)
         self.k = len(unique)
         position = {x: u for x, u in zip(members, self.unit.tolist())}
-        a, b, p = [], [], []
-        for x in members:
-            for y in members:
-                q = comp.pair_probability.get((x, y))
-                if q is not None and position[x] != position[y]:
-                    a.append(position[x])
-                    b.append(position[y])
-                    p.append(q)
-        w = _log_odds(np.array(p, float)) if p else np.zeros(0)
-        a_arr, b_arr = np.array(a, np.int64), np.array(b, np.int64)
+        # every compared pair of the component between two units, in the members' (rank) order
+        x, y, q = comp.pairs_of(int(comp.component[members[0]]))
+        unit_x, unit_y = self.unit[_places(members, x)], self.unit[_places(members, y)]
+        apart = unit_x != unit_y
+        a_arr, b_arr = unit_x[apart].astype(np.int64), unit_y[apart].astype(np.int64)
+        w = _log_odds(q[apart]) if apart.any() else np.zeros(0)
         matrix = coo_matrix((np.r_[w, w], (np.r_[a_arr, b_arr], np.r_[b_arr, a_arr])), shape=(self.k, self.k))
         self.weight = matrix.tocsr()
         self.weight.sum_duplicates()
@@ -417,6 +433,40 @@ class _Problem:
         return self.exact(start) if self.k <= EXACT_UP_TO else start
 
 
+def _places(members: list[int], records: np.ndarray) -> np.ndarray:
+    """Each of ``records``' place in ``members`` (all of them are members)."""
+    array = np.asarray(members, np.int64)
+    by_record = np.argsort(array, kind="stable")
+    return by_record[np.searchsorted(array[by_record], records)]
+
+
+def _strongest_between(comp: _Components, members: list[int], number: int, piece_of: dict[int, int]
+                       ) -> dict[tuple[int, int], tuple[int, int]]:
+    """Per two pieces s < t of a cut component, the compared pair (a in s, b in t) with the
+    highest probability (ties: a's rank, then b's), where ``comp.probability_of(a, b)`` gives the
+    probability: what ``_why_apart`` reports when no rule explains the cut."""
+    x, y, q = comp.pairs_of(number)
+    piece = np.array([piece_of[m] for m in members], np.int64)
+    px, py = piece[_places(members, x)], piece[_places(members, y)]
+    # (a, b) = (x, y) where x lies in the lower piece; else (y, x), whose probability is the
+    # stored (y, x) pair's if there is one (then that row stands for it already)
+    forward = px < py
+    backward = px > py
+    if backward.any():
+        reverse = y[backward] * comp._n + x[backward]
+        at = np.minimum(np.searchsorted(comp._pair_code, reverse), len(comp._pair_code) - 1)
+        backward[np.flatnonzero(backward)[comp._pair_code[at] == reverse]] = False
+    a = np.concatenate([x[forward], y[backward]])
+    b = np.concatenate([y[forward], x[backward]])
+    p = np.concatenate([q[forward], q[backward]])
+    s = np.concatenate([px[forward], py[backward]])
+    t = np.concatenate([py[forward], px[backward]])
+    order = np.lexsort((comp.rank[b], comp.rank[a], -p, t, s))
+    a, b, s, t = a[order], b[order], s[order], t[order]
+    first = np.flatnonzero(np.r_[True, (s[1:] != s[:-1]) | (t[1:] != t[:-1])]) if len(s) else np.zeros(0, np.int64)
+    return {(int(s[k]), int(t[k])): (int(a[k]), int(b[k])) for k in first.tolist()}
+
+
 def _cut(comp: _Components, graph: nx.Graph, members: list[int], number: int, splits: list[Split]
          ) -> list[tuple[list[int], tuple[str, ...]]]:
     """Cut one component into the partition with the most evidence kept together (see the module
@@ -436,8 +486,9 @@ def _cut(comp: _Components, graph: nx.Graph, members: list[int], number: int, sp
         if s != t:
             across.setdefault((min(s, t), max(s, t)), []).append((x, y))
     reasons: list[set[str]] = [set() for _ in pieces]
+    strongest = _strongest_between(comp, members, number, piece_of) if across else {}
     for (s, t), cut in sorted(across.items()):
-        a, b, reason, detail = _why_apart(comp, pieces[s], pieces[t])
+        a, b, reason, detail = _why_apart(comp, pieces[s], pieces[t], strongest.get((s, t)))
         weight = float(sum(graph.edges[x, y].get("probability", 0.0) for x, y in cut))
         splits.append(Split((a, b), reason, len(cut), weight, comp.probability_of(a, b), number, detail))
         label = reason if not detail else f"{reason} ({detail})"
@@ -446,10 +497,12 @@ def _cut(comp: _Components, graph: nx.Graph, members: list[int], number: int, sp
     return [(piece, tuple(sorted(r))) for piece, r in zip(pieces, reasons)]
 
 
-def _why_apart(comp: _Components, one: list[int], other: list[int]) -> tuple[int, int, str, str]:
+def _why_apart(comp: _Components, one: list[int], other: list[int], strongest: tuple[int, int] | None
+               ) -> tuple[int, int, str, str]:
     """The pair that explains why two pieces are apart: a different decision, then one record per
     person, then the clearest "different" pair; else (kept apart by weaker evidence) the strongest
-    compared pair between them, reported as the chaining guard."""
+    compared pair between them (``strongest``, from ``_strongest_between``), reported as the
+    chaining guard."""
     second = set(other)
     for a in one:
         for b in sorted(comp.cannot.get(a, ()), key=lambda x: comp.rank[x]):
@@ -468,16 +521,9 @@ def _why_apart(comp: _Components, one: list[int], other: list[int]) -> tuple[int
                 worst = candidate if worst is None or candidate < worst else worst
     if worst is not None:
         return worst[3], worst[4], CHAINING_GUARD, ""
-    strongest: tuple[float, int, int, int, int] | None = None
-    for a in one:
-        for b in other:
-            p = comp.probability_of(a, b)
-            if p is not None:
-                candidate = (-p, int(comp.rank[a]), int(comp.rank[b]), a, b)
-                strongest = candidate if strongest is None or candidate < strongest else strongest
     if strongest is None:
         return one[0], other[0], CHAINING_GUARD, ""
-    return strongest[3], strongest[4], CHAINING_GUARD, ""
+    return strongest[0], strongest[1], CHAINING_GUARD, ""
 
 
 def cluster(records: pd.DataFrame, scored: pd.DataFrame, *, must_link: object = None, cannot_link: object = None,

@@ -162,16 +162,43 @@ class Coded:
         out[both] = np.asarray(scores, dtype=float)[inverse]
         return out
 
+    @cached_property
+    def form_slips(self) -> tuple[list[frozenset[str]], np.ndarray]:
+        """For first words of given names: the formal names each can stand for, a slip undone
+        (see ``_slip_of_a_form``), and whether it is such a slip (by code; the last entry, for
+        missing, is False)."""
+        forms = given_name_forms()
+        table = list(forms)
+        words = self.values.tolist()
+        rare = rare_words(self.counts[:-1])
+        reach: list[frozenset[str]] = [frozenset(forms.get(w, (w,))) for w in words]
+        slips = [k for k, w in enumerate(words) if rare[k] and w not in forms and len(w) >= 3]
+        if slips and table:
+            near = process.cdist([words[k] for k in slips], table, scorer=OSA.distance, score_cutoff=1,
+                                 workers=-1) <= 1
+            for row, k in enumerate(slips):
+                for column in np.flatnonzero(near[row]).tolist():
+                    reach[k] = reach[k] | frozenset(forms[table[column]])
+        slipped = np.zeros(len(words) + 1, bool)  # the last entry: missing
+        slipped[[k for k in slips if len(reach[k]) > 1]] = True
+        return reach, slipped
+
+    @cached_property
+    def _words(self) -> tuple[list[frozenset[str]], np.ndarray, np.ndarray]:
+        """Each value's set of words, whether it has one word only, and a code of that word."""
+        words = [frozenset(v.split()) for v in self.values.tolist()]
+        single = np.array([len(w) == 1 for w in words] + [False])
+        word_code = np.append(pd.factorize(np.array([next(iter(w)) if len(w) == 1 else None for w in words],
+                                                    dtype=object))[0], -1)
+        return words, single, word_code
+
     def words_within(self, i: np.ndarray, j: np.ndarray) -> np.ndarray:
         """Whether all words of one value are among the other's ('smith jones' / 'jones').
 
         The same as rapidfuzz's token_set_ratio reaching 100, without scoring: two one-word
         values compare by their word, and only pairs with a longer value compare word sets.
         """
-        words = [frozenset(v.split()) for v in self.values.tolist()]
-        single = np.array([len(w) == 1 for w in words] + [False])
-        word_code = np.append(pd.factorize(np.array([next(iter(w)) if len(w) == 1 else None for w in words],
-                                                    dtype=object))[0], -1)
+        words, single, word_code = self._words
         a, b = self.codes[i], self.codes[j]
         out = single[a] & single[b] & (word_code[a] == word_code[b])
         longer = (a >= 0) & (b >= 0) & ~(single[a] & single[b])
@@ -198,6 +225,8 @@ class _Columns:
         self.names = names  # the person-name fields
         self._coded: dict[str, Coded] = {}
         self._roots: dict[str, np.ndarray] = {}
+        self._numbers: dict[str, np.ndarray] = {}
+        self._together: dict[tuple[str, str], Coded] = {}
 
     def roots(self, name: str) -> list[np.ndarray]:
         """Codes of a name field's two formal-name columns, coded together with every other name
@@ -215,7 +244,17 @@ class _Columns:
         return self._coded[column]
 
     def numbers(self, column: str) -> np.ndarray:
-        return pd.to_numeric(self.prepared[column], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+        if column not in self._numbers:
+            self._numbers[column] = pd.to_numeric(self.prepared[column], errors="coerce").to_numpy(
+                dtype=float, na_value=np.nan)
+        return self._numbers[column]
+
+    def together(self, first: str, second: str) -> Coded:
+        """Two columns coded as one (first's records, then second's), so values compare across them."""
+        if (first, second) not in self._together:
+            self._together[first, second] = Coded(pd.concat([self.prepared[first], self.prepared[second]],
+                                                            ignore_index=True))
+        return self._together[first, second]
 
 
 _ACCOUNT_MARKS = frozenset("0123456789._-+")
@@ -318,20 +357,8 @@ def _slip_of_a_form(first: Coded, i: np.ndarray, j: np.ndarray) -> np.ndarray:
     """Whether the first words of two given names stand for one formal name once a slip is
     undone: a rare word not in the name table stands for the formal names of the table's names
     one keystroke from it ('ndy' -> 'andy' -> andrew). Worked out once per distinct word."""
-    forms = given_name_forms()
-    table = list(forms)
-    words = first.values.tolist()
-    rare = rare_words(first.counts[:-1])
-    reach: list[frozenset[str]] = [frozenset(forms.get(w, (w,))) for w in words]
-    slips = [k for k, w in enumerate(words) if rare[k] and w not in forms and len(w) >= 3]
-    if slips and table:
-        near = process.cdist([words[k] for k in slips], table, scorer=OSA.distance, score_cutoff=1,
-                             workers=-1) <= 1
-        for row, k in enumerate(slips):
-            for column in np.flatnonzero(near[row]).tolist():
-                reach[k] = reach[k] | frozenset(forms[table[column]])
-    slipped = np.zeros(len(words) + 1, bool)  # the last entry: missing
-    slipped[[k for k in slips if len(reach[k]) > 1]] = True
+    reach, slipped = first.form_slips
+    words = first.values
     a, b = first.codes[i], first.codes[j]
     both = (a >= 0) & (b >= 0) & (slipped[a] | slipped[b])
     out = np.zeros(len(i), bool)
@@ -388,7 +415,7 @@ def _swap_names(grades: dict[str, np.ndarray], cols: _Columns, names: list[str],
     of the two crossings is only fairly alike."""
     first, second = names[:2]
     # code both name columns together so that a given name can equal a family name
-    both = Coded(pd.concat([cols.prepared[first], cols.prepared[second]], ignore_index=True))
+    both = cols.together(first, second)
     n = len(cols.prepared)
 
     def alike(x: np.ndarray, y: np.ndarray, x_field: str, y_field: str) -> tuple[np.ndarray, np.ndarray]:
@@ -415,7 +442,8 @@ def _swap_names(grades: dict[str, np.ndarray], cols: _Columns, names: list[str],
                                 np.where(perhaps, np.maximum(grades[name], 2), grades[name]))
 
 
-def compare(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchema) -> pd.DataFrame:
+def compare(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchema, *,
+            columns: _Columns | None = None) -> pd.DataFrame:
     """Agreement grades for every candidate pair and compared field.
 
     Returns:
@@ -431,8 +459,7 @@ def compare(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSch
     """
     i = pairs["i"].to_numpy()
     j = pairs["j"].to_numpy()
-    cols = _Columns(prepared, [n for n, spec in canonical.fields.items()
-                               if spec.is_compared() and spec.type == "person_name"])
+    cols = columns if columns is not None else coded_columns(prepared, canonical)
     grades: dict[str, np.ndarray] = {}
     names: list[str] = []
     for name, spec in canonical.fields.items():
@@ -460,6 +487,12 @@ def compare(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSch
     return pd.DataFrame({k: v.astype(np.int8) for k, v in grades.items()}, index=pairs.index)
 
 
+def coded_columns(prepared: pd.DataFrame, canonical: CanonicalSchema) -> _Columns:
+    """The prepared columns as ``compare`` codes them, to share between calls on one frame."""
+    return _Columns(prepared, [n for n, spec in canonical.fields.items()
+                               if spec.is_compared() and spec.type == "person_name"])
+
+
 CHUNK_BYTES_PER_PAIR = 600  # about what comparing one pair holds at once (grades, scores, codes)
 
 
@@ -485,8 +518,9 @@ def compare_in_chunks(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: Ca
             count(len(pairs), len(pairs), "pairs")
         return out
     parts = []
+    columns = coded_columns(prepared, canonical)  # coded once: each chunk coded them all again
     for start in range(0, len(pairs), size):
-        parts.append(compare(prepared, pairs.iloc[start:start + size], canonical))
+        parts.append(compare(prepared, pairs.iloc[start:start + size], canonical, columns=columns))
         if count is not None:
             count(min(start + size, len(pairs)), len(pairs), "pairs")
     return pd.concat(parts)

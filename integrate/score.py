@@ -43,6 +43,7 @@ TF_TYPES = frozenset({"person_name", "date", "identifier"})
 # person-name grades from "close" up (close, equivalent) also weigh by how common the name is
 NAME_NEAR = 2
 SEED = 20261202
+WEIGH_SLICE = 1_000_000  # pairs weighed at once (memory for the work in flight, not the result)
 
 
 @dataclass
@@ -198,10 +199,38 @@ def random_pairs(n: int, count: int, groups: np.ndarray | None = None, seed: int
 def pattern_codes(matrix: np.ndarray) -> np.ndarray:
     """A code per row of a small-integer matrix, equal for equal rows, numbered in order of first
     appearance (a hash per column, so no sort of the rows)."""
-    codes = np.zeros(len(matrix), np.int64)
-    for column in matrix.T:
-        codes = pd.factorize(codes * (column.max(initial=0) - column.min(initial=0) + 1) + column)[0]
-    return codes
+    return column_pattern_codes(list(matrix.T), len(matrix))
+
+
+def _rows(columns: list[np.ndarray], rows: np.ndarray) -> np.ndarray:
+    """The matrix of ``columns`` at ``rows`` only, as int64."""
+    out = np.empty((len(rows), len(columns)), np.int64)
+    for k, column in enumerate(columns):
+        out[:, k] = column[rows]
+    return out
+
+
+# A row's mixed-radix number must stay below this to fit an int64 (with room for one more step)
+_RADIX_LIMIT = 2 ** 62
+
+
+def column_pattern_codes(columns: list[np.ndarray], rows: int) -> np.ndarray:
+    """``pattern_codes`` of the matrix whose columns are ``columns`` (each ``rows`` long), without
+    building it: each row's values become one mixed-radix number, factorised once (and in between
+    only when the number would outgrow an int64). Millions of pairs' grades stay one int8 column
+    per field instead of a copy as an int64 matrix, and rows are hashed once, not once per column.
+    The numbering is the same: by first appearance of each distinct row."""
+    codes = np.zeros(rows, np.int64)
+    span = 1  # codes lie in 0 .. span - 1
+    for column in columns:
+        low, high = int(column.min(initial=0)), int(column.max(initial=0))
+        width = high - low + 1
+        if span * width >= _RADIX_LIMIT:
+            codes = pd.factorize(codes)[0]
+            span = int(codes.max(initial=-1)) + 1
+        codes = codes * width + (column.astype(np.int64) - low)
+        span *= width
+    return pd.factorize(codes)[0].astype(np.int64, copy=False)
 
 
 def _level_freq(grades: np.ndarray, levels: int) -> np.ndarray:
@@ -330,18 +359,25 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
     """
     names = list(grades.columns)
     marks = np.zeros(len(grades), np.int8) if labels is None else np.asarray(labels, np.int8)
-    rows = [np.column_stack([grades[names].to_numpy(np.int64), marks])]
-    if background is not None and len(background) and background_weight > 0:
-        rows.append(np.column_stack([background[names].to_numpy(np.int64), np.zeros(len(background), np.int64)]))
-    stacked = np.concatenate(rows)
-    codes = pattern_codes(stacked)  # distinct (grades, label) rows, in order of first appearance
+    # the candidate pairs' rows, then the background's: one column per field plus the label,
+    # kept in the grades' own (small) dtype
+    with_background = background is not None and len(background) > 0 and background_weight > 0
+    columns = [grades[f].to_numpy() for f in names] + [marks]
+    if with_background:
+        assert background is not None
+        columns = [np.concatenate([column, extra]) for column, extra in
+                   zip(columns, [background[f].to_numpy() for f in names] + [np.zeros(len(background), np.int8)],
+                       strict=True)]
+    # distinct (grades, label) rows, in order of first appearance
+    codes = column_pattern_codes(columns, len(columns[0]))
     # candidate pairs count 1 each, background pairs background_weight each
     counts = np.bincount(codes[:len(grades)], weights=counts, minlength=codes.max(initial=-1) + 1).astype(float)
     candidates = float(counts.sum())
-    if len(rows) > 1:
+    if with_background:
         counts += background_weight * np.bincount(codes[len(grades):], minlength=len(counts))
     first = np.flatnonzero(np.diff(np.maximum.accumulate(codes), prepend=-1) > 0)  # each pattern's first row
-    G, label = stacked[first, :-1], stacked[first, -1]
+    G, label = _rows(columns[:-1], first), columns[-1][first].astype(np.int64)
+    del columns, codes
     theta, shares, free = _initial_classes(types, u_random)
     if start is not None:
         theta = {k: {f: v.copy() for f, v in profile.items()} for k, profile in start._theta.items()}
@@ -563,12 +599,20 @@ def weigh(prepared: pd.DataFrame, pairs: pd.DataFrame, grades: pd.DataFrame, fie
         rarity += adjust
         out["tf_" + column] = adjust.astype(np.float32)
     if len(joint):
-        matrix = joint[names].to_numpy(np.int64)
-        codes = pattern_codes(matrix)
+        columns = [joint[f].to_numpy() for f in names]
+        codes = column_pattern_codes(columns, len(joint))
         representative = np.empty(codes.max() + 1, np.int64)
         representative[codes] = np.arange(len(codes))  # any row of a pattern stands for it
-        log_f = {k: v[codes] for k, v in model.class_log_likelihoods(matrix[representative], names).items()}
-        total = model.weigh_classes(log_f, rarity, family_rarity(tf, field_types))
+        patterns = _rows(columns, representative)
+        per_pattern = model.class_log_likelihoods(patterns, names)
+        shared = family_rarity(tf, field_types)
+        # pair by pair from the patterns' likelihoods, a slice at a time: the per-class arrays of
+        # every pair at once cost some 100 bytes a pair
+        total = np.empty(len(codes))
+        for start in range(0, len(codes), WEIGH_SLICE):
+            part = slice(start, start + WEIGH_SLICE)
+            total[part] = model.weigh_classes({k: v[codes[part]] for k, v in per_pattern.items()}, rarity[part],
+                                              None if shared is None else shared[part])
     else:
         total = np.zeros(0)
     for f, fm in model.fields.items():
@@ -579,8 +623,13 @@ def weigh(prepared: pd.DataFrame, pairs: pd.DataFrame, grades: pd.DataFrame, fie
         out["g_" + f] = grades[f].to_numpy()
     out["weight"] = total
     out["probability"] = 1.0 / (1.0 + np.exp2(-(total + model.prior_weight)))
-    out["decision"] = np.select(
-        [out["probability"] >= thresholds.link, out["probability"] >= thresholds.review],
-        [LINK, POSSIBLE], NON_LINK,
-    )
+    out["decision"] = decisions(out["probability"].to_numpy(), thresholds)
     return out
+
+
+def decisions(probability: np.ndarray, thresholds: Thresholds) -> np.ndarray:
+    """``LINK`` from the link threshold up, ``POSSIBLE`` from the review threshold, else
+    ``NON_LINK``: an object array holding the three label strings themselves (no string made per
+    pair, as np.select's fixed-width text array and its conversion made)."""
+    level = np.where(probability >= thresholds.link, 2, np.where(probability >= thresholds.review, 1, 0))
+    return np.array([NON_LINK, POSSIBLE, LINK], dtype=object)[level]

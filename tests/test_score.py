@@ -68,6 +68,30 @@ def test_pattern_codes_number_distinct_rows_in_order_of_first_appearance() -> No
         range(len(unique)))
 
 
+def test_pattern_codes_of_wide_rows_past_an_int64_mixed_radix_number() -> None:
+    # 30 columns of 31 levels: 31**30 does not fit an int64, so the codes are compressed on the
+    # way; reference again numpy's distinct rows, numbered by first appearance
+    from integrate.score import column_pattern_codes
+
+    rng = np.random.default_rng(11)
+    base = rng.integers(-1, 30, size=(300, 30)).astype(np.int8)
+    rows = base[rng.integers(0, len(base), size=3000)]  # repeated rows
+    codes = column_pattern_codes(list(rows.T), len(rows))
+    _, first, inverse = np.unique(rows, axis=0, return_index=True, return_inverse=True)
+    order = np.argsort(first)  # distinct rows in order of first appearance
+    number = np.empty(len(order), np.int64)
+    number[order] = np.arange(len(order))
+    assert codes.tolist() == number[inverse.reshape(-1)].tolist()
+
+
+def test_decisions_follow_the_thresholds_from_link_down() -> None:
+    from integrate.mapping.spec import Thresholds
+    from integrate.score import LINK, NON_LINK, POSSIBLE, decisions
+
+    out = decisions(np.array([0.05, 0.2, 0.5, 0.8, 0.99, np.nan]), Thresholds(link=0.8, review=0.2))
+    assert out.tolist() == [NON_LINK, POSSIBLE, POSSIBLE, LINK, LINK, NON_LINK]
+
+
 def test_relatives_may_share_a_birth_date_but_learn_nothing_else_about_it() -> None:
     # The relatives' class keeps personal fields at the random-pair profile, except that a fixed
     # share of relatives' pairs are twins (TWIN_SHARE; a birth in 60 is a twin birth, common
