@@ -75,8 +75,8 @@ def add_review_routes(app: FastAPI, contexts: dict[str, Any], auth: Any, ctx_of:
         payload["decision"] = _row(standing) if standing else None
         return payload
 
-    def known(ctx: Any, key: tuple[str, str, str, str]) -> None:
-        if key not in ctx.review_data().pairs.index:
+    def known(data: Any, key: tuple[str, str, str, str]) -> None:
+        if key not in data.pairs.index:
             raise api_error(404, "unknown_pair", "no such candidate pair in the last run")
 
     # -- the page ---------------------------------------------------------------------------
@@ -186,7 +186,7 @@ def add_review_routes(app: FastAPI, contexts: dict[str, Any], auth: Any, ctx_of:
         ctx = ctx_of(ws)
         auth.check(request, ctx, "reader")
         key = ordered_pair(source_a, record_id_a, source_b, record_id_b)
-        known(ctx, key)
+        known(ctx.review_data(), key)
         return item(ctx, key, queue)
 
     @app.get(f"{base}/decisions", response_model=DecisionList, responses=ERRORS, tags=["review"])
@@ -219,8 +219,7 @@ def add_review_routes(app: FastAPI, contexts: dict[str, Any], auth: Any, ctx_of:
         who = auth.check(request, ctx, "reviewer")
         data = ctx.fresh_review_data() or await asyncio.to_thread(ctx.review_data)
         key = ordered_pair(body.source_a, body.record_id_a, body.source_b, body.record_id_b)
-        if key not in data.pairs.index:
-            raise api_error(404, "unknown_pair", "no such candidate pair in the last run")
+        known(data, key)
         new = NewDecision(**dict(zip(KEY_COLUMNS, key)), decision=body.decision, reviewer=who.name,
                           note=body.note, origin=body.queue, **scores_snapshot(data, key))
         try:  # stored by the workspace's writer thread, with the decisions that arrive meanwhile
