@@ -30,6 +30,13 @@ EM_TOLERANCE = 1e-7  # relative change of the log-likelihood that ends EM ...
 # classes may keep trading mass along a flat ridge of the likelihood long after; that hardly moves
 # a match probability, and these are what decide links.)
 PARAM_TOLERANCE = 1e-4
+# At most this many matching pairs per record on average: the match share times all pairs is held at
+# or below MAX_MATCHES_PER_RECORD x records (a record has few true duplicates, so matches grow with
+# the records, while candidate and background pairs grow faster). A round general bound, not fitted
+# (FEBRL3, with the most duplicates of the sets tried, has 1.3 per record); it never binds on the
+# demo, the second seed, 100,000 generated people or FEBRL, and without it the match class took 42 %
+# of all pairs at 300,000 generated people (7.5M links, one component of 517,136 records).
+MAX_MATCHES_PER_RECORD = 2.0
 PSEUDO_COUNT = 0.5  # added to every level's count so no probability is exactly 0 or 1
 # Share of relatives' pairs (one household or family) born on the same day. About one birth in 60
 # is a twin birth in the UK (common practice, recalled from memory), so roughly 3 in 100 sibling
@@ -341,7 +348,7 @@ def model_grades(grades: pd.DataFrame, types: dict[str, str]) -> tuple[pd.DataFr
 def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np.ndarray],
              background: pd.DataFrame | None = None, background_weight: float = 0.0, *,
              labels: np.ndarray | None = None, start: ScoreModel | None = None,
-             counts: np.ndarray | None = None) -> ScoreModel:
+             counts: np.ndarray | None = None, records: int | None = None) -> ScoreModel:
     """EM for the class profiles and shares over the distinct grade patterns of all record pairs.
 
     A latent-class mixture (Winkler's EM generalised to more than two classes): each class has
@@ -356,6 +363,9 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
         start: a fitted model whose profiles and shares start EM (default: the sensible guesses).
         counts: how many candidate pairs each row of ``grades`` stands for (default: 1 each), so
             a distributed engine can pass distinct patterns with counts reduced across workers.
+        records: how many records the pairs are of; when given, the match share is held to at most
+            ``MAX_MATCHES_PER_RECORD`` matches per record (an M-step under that bound) and the model
+            warns when the bound holds it.
     """
     names = list(grades.columns)
     marks = np.zeros(len(grades), np.int8) if labels is None else np.asarray(labels, np.int8)
@@ -400,6 +410,7 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
     for col in range(len(names)):
         present = G[:, col] != MISSING
         design[np.flatnonzero(present), offset[col] + G[present, col]] = 1.0
+    bound = None if not records else min(1.0, MAX_MATCHES_PER_RECORD * records / float(counts.sum()))
     converged = False
     previous = -np.inf
     previous_params = None
@@ -427,6 +438,10 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
                     continue
                 new = level_counts[offset[col]:offset[col + 1], c] + PSEUDO_COUNT
                 theta[k][f] = new / new.sum()
+        if bound is not None and shares[MATCH] > bound:
+            # the M-step for the shares under the bound: the match share at it, the others in proportion
+            rest = sum(v for k, v in shares.items() if k != MATCH)
+            shares = {k: bound if k == MATCH else v * (1 - bound) / rest for k, v in shares.items()}
     non = [k for k in classes if k != MATCH]
     total_non = sum(shares[k] for k in non)
     fields = {}
@@ -436,6 +451,10 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
                                theta[RELATED][f].tolist() if RELATED in theta else None)
     model = ScoreModel(fields, shares[MATCH], iteration, converged, dict(shares), _theta=theta)
     model.warnings.extend(_plausibility(model))
+    if bound is not None and shares[MATCH] >= bound * (1 - 1e-6):
+        model.warnings.append(f"the match share is held at its bound ({MAX_MATCHES_PER_RECORD:g} matches per record, "
+                              f"{bound * float(counts.sum()):,.0f} matches): the fit wanted more, which is what "
+                              "a match class that looks like the non-matches does; check the links")
     return model
 
 
@@ -573,7 +592,7 @@ def score(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchem
         # a run with review decisions passes its own estimator (integrate.review.learn), which
         # also sees the pairs so it can hold decided pairs to their decision
         fit = estimate if estimator is None else partial(estimator, pairs)
-        model = fit(joint, types, u_random, random_joint, n_other / max(len(random_joint), 1))
+        model = fit(joint, types, u_random, random_joint, n_other / max(len(random_joint), 1), records=len(prepared))
     else:
         theta, shares, _ = _initial_classes(types, u_random)
         model = ScoreModel({f: FieldModel(f, types[f], theta[MATCH][f].tolist(), u_random[f].tolist(),

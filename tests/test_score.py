@@ -235,3 +235,26 @@ def test_the_plausibility_check_reads_both_names_agreeing_for_the_joint_name_fie
     assert _plausibility(model) == []
     model.fields["n"].m, model.fields["n"].u = list(u / u.sum()), list(m / m.sum())
     assert len(_plausibility(model)) == 1
+
+
+def test_the_match_share_is_held_to_a_few_matches_per_record() -> None:
+    """With ``records`` given, EM's match share times all pairs stays at most MAX_MATCHES_PER_RECORD x
+    records (an M-step under that bound), the other shares keep their proportions, and the model warns
+    when the bound holds it; a bound that does not bind changes nothing."""
+    from integrate.score import MAX_MATCHES_PER_RECORD
+
+    m = {"id_a": [0.05, 0.10, 0.85], "kind": [0.08, 0.92], "code": [0.15, 0.85]}
+    u = {"id_a": [0.90, 0.08, 0.02], "kind": [0.60, 0.40], "code": [0.95, 0.05]}
+    types = {"id_a": "identifier", "kind": "category", "code": "category"}
+    grades = _synthetic(100_000, 0.15, m, u, seed=11)  # 15,000 matching pairs
+    start = {f: np.full(len(v), 1.0 / len(v)) for f, v in u.items()}
+    free = estimate(grades, types, start)
+    loose = estimate(grades, types, start, records=1_000_000)  # bound far above 15,000 matches
+    assert loose.prior == free.prior and not any("bound" in w for w in loose.warnings)
+    records = 2_500  # the bound: 2 x 2,500 = 5,000 matches, a third of the 15,000 drawn
+    held = estimate(grades, types, start, records=records)
+    limit = MAX_MATCHES_PER_RECORD * records / len(grades)
+    assert free.prior > 2 * limit
+    assert held.prior <= limit * (1 + 1e-9) and held.prior == pytest.approx(limit, rel=1e-6)
+    assert sum(held.class_shares.values()) == pytest.approx(1.0)
+    assert any("held at its bound" in w for w in held.warnings)

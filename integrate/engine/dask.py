@@ -192,7 +192,7 @@ class DaskEngine:
         else:
             n_other = max(all_pairs_count(n, group_codes) - done, 0)
             model = estimate(patterns, types, u_random, random_joint, n_other / max(len(random_joint), 1),
-                             counts=pattern_counts)
+                             counts=pattern_counts, records=n)
         scored_parts = [client.submit(weigh, records, p, g, field_types, model, canonical.thresholds)
                         for p, g in zip(pairs, grades)]
         scored = pd.concat(client.gather(scored_parts), ignore_index=True)

@@ -24,7 +24,7 @@ SAME, DIFFERENT = fs.LABEL_SAME, fs.LABEL_DIFFERENT  # label codes for decided p
 
 def estimate_with_labels(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np.ndarray],
                          labels: np.ndarray, start: ScoreModel, background: pd.DataFrame | None = None,
-                         background_weight: float = 0.0) -> ScoreModel:
+                         background_weight: float = 0.0, records: int | None = None) -> ScoreModel:
     """EM over grade patterns with decided pairs held to their class (see the module docstring).
 
     Args:
@@ -32,9 +32,10 @@ def estimate_with_labels(grades: pd.DataFrame, types: dict[str, str], u_random: 
         labels: per candidate pair 0 (undecided), ``SAME`` or ``DIFFERENT``.
         start: the model fitted without decisions; its class profiles and shares start EM.
         background, background_weight: the random record pairs standing for the pairs blocking
-            did not propose, as in ``score.estimate``.
+            did not propose, as in ``score.estimate``; records: as there (the bound on matches).
     """
-    return fs.estimate(grades, types, u_random, background, background_weight, labels=labels, start=start)
+    return fs.estimate(grades, types, u_random, background, background_weight, labels=labels, start=start,
+                       records=records)
 
 
 class DecisionEstimator:
@@ -57,8 +58,8 @@ class DecisionEstimator:
 
     def __call__(self, pairs: pd.DataFrame, grades: pd.DataFrame, types: dict[str, str],
                  u_random: dict[str, np.ndarray], background: pd.DataFrame | None = None,
-                 background_weight: float = 0.0) -> ScoreModel:
-        self.base = fs.estimate(grades, types, u_random, background, background_weight)
+                 background_weight: float = 0.0, records: int | None = None) -> ScoreModel:
+        self.base = fs.estimate(grades, types, u_random, background, background_weight, records=records)
         i, j = pairs["i"].to_numpy(np.int64), pairs["j"].to_numpy(np.int64)
         keyed = pd.DataFrame({"i": np.minimum(i, j), "j": np.maximum(i, j)})
         labels = keyed.merge(self.decided, on=["i", "j"], how="left")["_label"].fillna(0).to_numpy(np.int8)
@@ -67,7 +68,7 @@ class DecisionEstimator:
         if min(self.labelled_same, self.labelled_different) < self.min_each:
             return self.base
         self.learned = estimate_with_labels(grades, types, u_random, labels, self.base, background,
-                                            background_weight)
+                                            background_weight, records=records)
         return self.learned
 
 
