@@ -172,10 +172,8 @@ class ResultsCache:
 
     def fresh(self) -> OutputSet | None:
         """The loaded set when it is known to be current without asking anything (cheap: for the event loop)."""
-        checked, current = self._checked, self._current
-        if checked is None or current is None or time.monotonic() - checked[0] >= self.RECHECK:
-            return None
-        return current if current.stamp == checked[2] else None
+        stamp, current = self.known_stamp(), self._current
+        return current if stamp is not None and current is not None and current.stamp == stamp else None
 
     def get(self) -> OutputSet:
         folder, stamp = self.stamp()
