@@ -161,31 +161,43 @@ def read_crosswalk_file(path: str | Path) -> pd.DataFrame:
 def hard_negatives(records: pd.DataFrame, prepared: pd.DataFrame, candidates: pd.DataFrame,
                    entity_ids: np.ndarray, truth: pd.DataFrame, *, given: str, family: str,
                    contact: list[str]) -> pd.DataFrame:
-    """How the hardest non-matches fared: candidate pairs of different true people who share
-    a family name and a contact detail (relatives), or a full name (namesakes).
+    """How the hardest non-matches fared: candidate pairs of different true people who are twins
+    (when the truth marks them), share a family name and a contact detail (relatives), or a full
+    name (namesakes).
 
-    Returns one row per kind: pairs of that kind among the candidates and how many of them ended
-    up in one entity (a wrong merge).
+    Twins are marked by an optional truth column ``twins``: one label shared by the records of
+    the twins of one family, blank for everyone else. A twins' pair counts as twins only, not
+    also as relatives or namesakes. Returns one row per kind: pairs of that kind among the
+    candidates and how many of them ended up in one entity (a wrong merge).
     """
     key = pd.MultiIndex.from_arrays([records["_source"].astype(str), records["_record_id"].astype(str)])
-    true_entity = truth.assign(source=truth["source"].astype(str), record_id=truth["record_id"].astype(str)) \
-        .set_index(["source", "record_id"])["entity_id"].reindex(key).to_numpy()
+    indexed = truth.assign(source=truth["source"].astype(str), record_id=truth["record_id"].astype(str)) \
+        .set_index(["source", "record_id"])
+    true_entity = indexed["entity_id"].reindex(key).to_numpy()
     i, j = candidates["i"].to_numpy(), candidates["j"].to_numpy()
     different = (true_entity[i] != true_entity[j]) & pd.notna(true_entity[i]) & pd.notna(true_entity[j])
 
-    def same(column: str) -> np.ndarray:
-        codes = pd.factorize(prepared[column], use_na_sentinel=True)[0]
+    def same_code(values) -> np.ndarray:
+        codes = pd.factorize(values, use_na_sentinel=True)[0]
         return (codes[i] == codes[j]) & (codes[i] >= 0)
 
+    def same(column: str) -> np.ndarray:
+        return same_code(prepared[column])
+
+    twins = np.zeros(len(i), bool)
+    if "twins" in indexed.columns:
+        labels = indexed["twins"].reindex(key)
+        twins = different & same_code(labels.where(labels.astype(str).str.strip() != "").to_numpy())
     same_family = same(family)
     shares_contact = np.zeros(len(i), bool)
     for column in contact:
         shares_contact |= same(column)
-    kinds = {
-        "relatives (same family name and a shared contact detail, different given name)":
-            different & same_family & shares_contact & ~same(given),
-        "namesakes (same given and family name)": different & same_family & same(given),
-    }
+    kinds = {}
+    if "twins" in indexed.columns:
+        kinds["twins (marked in the truth: same family, birth date and home)"] = twins
+    kinds["relatives (same family name and a shared contact detail, different given name)"] = \
+        different & ~twins & same_family & shares_contact & ~same(given)
+    kinds["namesakes (same given and family name)"] = different & ~twins & same_family & same(given)
     merged = entity_ids[i] == entity_ids[j]
     rows = [{"kind": kind, "candidate pairs": int(mask.sum()), "wrongly merged": int((mask & merged).sum())}
             for kind, mask in kinds.items()]
