@@ -10,14 +10,15 @@ The generator builds about 5,000 true people living in households, lets each of
 them appear in one to four department exports (sometimes twice in the same
 one), damages every record at realistic rates (typos, nicknames, swapped name
 order, missing values, moved addresses, changed phones, day/month swaps, dropped
-accents, case and spacing noise) and writes:
+accents, case and spacing noise, phones in each desk's formats, a relative's e-mail
+and phone, records left with two or three fields) and writes:
 
     membership.xlsx   Membership office, sheet "Members"
     webshop.csv       Web shop customers
     rentals.jsonl     Rentals desk, one JSON object per line
     events.sqlite     Events team, table "signups"
     rates.csv         invented dated exchange rates (EUR/USD -> GBP)
-    truth/crosswalk.csv      which record belongs to which true person
+    truth/crosswalk.csv      which record belongs to which true person (twins marked)
     truth/entities.csv       the true people, including money totals in GBP
     truth/record_faults.csv  which faults were applied to each record
 
