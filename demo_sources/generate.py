@@ -1161,18 +1161,13 @@ def thin_out(rec: Record, dice: Dice) -> None:
                 row[column] = ""
         row["date_of_birth"] = ""
     elif rec.source == "rentals":
-        name, contact = row["name"], row["contact"]
-        others = [c for c in ("first", "phone", "dob")
-                  if (name["first"] if c == "first" else contact["phone"] if c == "phone" else row["dob"])]
+        places = {"first": row["name"], "phone": row["contact"], "dob": row}  # nested JSON
+        others = [c for c, place in places.items() if place[c]]
         kept = set(dice.choose_many(len(others), min(len(others), dice.integer(1, 2)))) if others else set()
-        blank = {c for index, c in enumerate(others) if index not in kept}
-        if "first" in blank:
-            name["first"] = None
-        if "phone" in blank:
-            contact["phone"] = None
-        if "dob" in blank:
-            row["dob"] = None
-        name["title"] = None
+        for index, column in enumerate(others):
+            if index not in kept:
+                places[column][column] = None
+        row["name"]["title"] = None
         row["height_in"] = row["weight_lb"] = None
     else:
         others = [c for c in ("given", "email", "birth_year") if row[c]]
