@@ -146,6 +146,32 @@ def evaluate(crosswalk: pd.DataFrame, truth: pd.DataFrame, candidates: pd.DataFr
                       reduction)
 
 
+def _pairs_in_groups(frame: pd.DataFrame, keys: list[str]) -> int:
+    sizes = frame.value_counts(keys).to_numpy(np.int64)
+    return int((sizes * (sizes - 1) // 2).sum())
+
+
+def scores_by_source_kind(crosswalk: pd.DataFrame, truth: pd.DataFrame) -> dict[str, Scores]:
+    """Pairwise precision/recall/F1 for record pairs within one source and pairs across sources.
+
+    A predicted pair counts where both records are in one predicted entity, a true pair where
+    they are one true person; records missing from the truth are ignored, as in ``evaluate``.
+    """
+    key = ["source", "record_id"]
+    pred = crosswalk[key + ["entity_id"]].astype({"source": str, "record_id": str})
+    true = truth[key + ["entity_id"]].astype({"source": str, "record_id": str})
+    joined = pred.merge(true, on=key, suffixes=("_pred", "_true"), how="inner")
+    counts = {}
+    for within, extra in (("within", ["source"]), ("all", [])):
+        counts[within] = (_pairs_in_groups(joined, ["entity_id_pred", "entity_id_true"] + extra),
+                          _pairs_in_groups(joined, ["entity_id_pred"] + extra),
+                          _pairs_in_groups(joined, ["entity_id_true"] + extra))
+    tp_w, pred_w, true_w = counts["within"]
+    tp_a, pred_a, true_a = (a - w for a, w in zip(counts["all"], counts["within"], strict=True))
+    return {"within one source": Scores.from_counts(tp_w, pred_w - tp_w, true_w - tp_w),
+            "across sources": Scores.from_counts(tp_a, pred_a - tp_a, true_a - tp_a)}
+
+
 def read_crosswalk_file(path: str | Path) -> pd.DataFrame:
     """A crosswalk CSV (source, record_id, entity_id), checked."""
     if not Path(path).exists():

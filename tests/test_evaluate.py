@@ -81,3 +81,17 @@ def test_hard_negatives_count_twins_marked_in_the_truth_as_their_own_kind() -> N
     # (0,1) twins, not also relatives; (1,4) one twin's two records: a true pair, no kind;
     # (0,3), (1,3) relatives; (0,2) namesakes
     assert counts == {"twins": (1, 1), "relatives": (2, 0), "namesakes": (1, 0)}
+
+
+def test_scores_within_one_source_and_across_sources() -> None:
+    from integrate.evaluate import scores_by_source_kind
+
+    truth = pd.DataFrame({"source": ["a", "a", "b", "b", "a"], "record_id": ["1", "2", "1", "2", "3"],
+                          "entity_id": ["x", "x", "x", "y", "z"]})
+    # predicted: a1+a2 together (right), b1 apart (missed twice across), b2 with a3 (wrong, across)
+    crosswalk = truth.assign(entity_id=["e1", "e1", "e2", "e3", "e3"])
+    scores = scores_by_source_kind(crosswalk, truth)
+    within, across = scores["within one source"], scores["across sources"]
+    assert (within.precision, within.recall) == (1.0, 1.0)  # (a1, a2): the one true pair in a source
+    # across: true pairs (a1,b1), (a2,b1) both missed; the one predicted pair (a3,b2) is wrong
+    assert (across.precision, across.recall) == (0.0, 0.0)
