@@ -10,14 +10,15 @@ The generator builds about 5,000 true people living in households, lets each of
 them appear in one to four department exports (sometimes twice in the same
 one), damages every record at realistic rates (typos, nicknames, swapped name
 order, missing values, moved addresses, changed phones, day/month swaps, dropped
-accents, case and spacing noise) and writes:
+accents, case and spacing noise, phones in each desk's formats, a relative's e-mail
+and phone, records left with two or three fields) and writes:
 
     membership.xlsx   Membership office, sheet "Members"
     webshop.csv       Web shop customers
     rentals.jsonl     Rentals desk, one JSON object per line
     events.sqlite     Events team, table "signups"
     rates.csv         invented dated exchange rates (EUR/USD -> GBP)
-    truth/crosswalk.csv      which record belongs to which true person
+    truth/crosswalk.csv      which record belongs to which true person (twins marked)
     truth/entities.csv       the true people, including money totals in GBP
     truth/record_faults.csv  which faults were applied to each record
 
@@ -94,6 +95,28 @@ FAULTS = {
         "email_case": 0.04,
     },
 }
+# Share of records (per source) that hold only two or three of the person fields: a walk-in
+# sign-up, a guest order, a desk booking taken over the phone.  The membership office checks a
+# document, so its records are rarely that thin.
+SPARSE = {"membership": 0.01, "webshop": 0.04, "rentals": 0.03, "events": 0.05}
+# How each desk writes a phone number (style: weight; see phone_format).  A person's number
+# therefore looks different from one department to the next.
+PHONE_STYLES = {
+    "membership": {"local": 0.80, "local_compact": 0.08, "dashes": 0.07, "intl_trunk": 0.05},
+    "webshop": {"intl": 0.55, "intl_compact": 0.20, "local": 0.10, "intl_trunk": 0.10, "intl_00": 0.05},
+    "rentals": {"local": 0.20, "local_compact": 0.20, "intl": 0.15, "parens": 0.15, "intl_00": 0.10,
+                "dashes": 0.08, "dots": 0.06, "no_trunk": 0.06},
+}
+# Household members whose records sometimes give another member's e-mail and phone (a child
+# booking with a parent's contact details, a partner with the other's): the chance that a person
+# borrows a contact at all, and the chance per record that a borrower's record shows it.
+BORROWS_CONTACT = {"partner": 0.12, "child": 0.30, "twin": 0.45}
+BORROWED_PER_RECORD = 0.5        # when the person has an e-mail or mobile of their own
+BORROWED_PER_RECORD_NONE = 0.85  # when they have neither
+# Twins: the chance that a family with children has a pair of twins among them, and the chance
+# that twins share the first given name (told apart by their second given names).
+TWIN_FAMILY = 0.36
+TWIN_SAME_FIRST_NAME = 0.05
 MEMBERSHIP_INCH_SLIPS = 3  # membership heights typed in inches
 RENTALS_CM_SLIPS = 2       # rentals heights typed in centimetres
 
@@ -390,10 +413,6 @@ def phone_e164(nsn: str) -> str:
     return "+44" + nsn
 
 
-def phone_local(nsn: str) -> str:
-    return "0" + " ".join(phone_groups(nsn))
-
-
 def phone_format(nsn: str, style: str) -> str:
     groups = phone_groups(nsn)
     return {
@@ -403,7 +422,16 @@ def phone_format(nsn: str, style: str) -> str:
         "intl_compact": "+44" + nsn,
         "intl_00": "0044 " + " ".join(groups),
         "parens": f"(0{groups[0]}) " + " ".join(groups[1:]),
+        "intl_trunk": "+44 (0)" + " ".join(groups),
+        "dashes": "0" + "-".join(groups),
+        "dots": "0" + ".".join(groups),
+        "no_trunk": " ".join(groups),
     }[style]
+
+
+def phone_style(source: str, dice: Dice) -> str:
+    styles = PHONE_STYLES[source]
+    return list(styles)[_weighted_index(list(styles.values()), dice.gen.random())]
 
 
 # --------------------------------------------------------------------------
@@ -521,6 +549,14 @@ class Person:
     mobile: str | None = None
     old_mobile: str | None = None
     mobile_change: dt.date | None = None
+    twin: Person | None = None        # the other twin, for twins
+    contact_of: Person | None = None  # a household member whose e-mail and phone this person's
+    #                                   records sometimes give (see BORROWS_CONTACT)
+
+    @property
+    def twin_label(self) -> str:
+        """The same label for both twins (one pair per household at most), else ''."""
+        return f"T{self.household.hid:06d}" if self.twin else ""
 
     @property
     def first_given(self) -> str:
@@ -670,22 +706,41 @@ class World:
             partner = self._add_person(household, self.draw_given(partner_sex, tuple(taken)),
                                        partner_family, partner_sex, partner_birth)
             taken.append(partner.first_given)
+            if dice.chance(BORROWS_CONTACT["partner"]):
+                partner.contact_of = head
         child_family = family
         if partner and partner.family != family and dice.chance(0.25):
             child_family = f"{family}-{partner.family}"  # double-barrelled
         # the child after `twin_of` (if any) is a twin of that child
-        twin_of = dice.integer(0, n_children - 2) if n_children >= 2 and dice.chance(0.3) else None
-        previous_birth = None
+        twin_of = (dice.integer(0, n_children - 2) if n_children >= 2 and dice.chance(TWIN_FAMILY)
+                   else None)
+        parents = [head] + ([partner] if partner else [])
+        previous = None
         for i in range(n_children):
             sex = self.draw_sex()
-            if twin_of is not None and i == twin_of + 1:
-                birth = previous_birth  # twin of the previous child
+            is_twin = twin_of is not None and i == twin_of + 1
+            if is_twin:
+                birth = previous.birth
+                given = self.draw_given(sex, tuple(taken))
+                if dice.chance(TWIN_SAME_FIRST_NAME):
+                    # told apart by their second given names only
+                    names = {"F": self.given_f, "M": self.given_m, "X": self.given_x}[sex]
+                    middles = [names.draw(dice) for _ in range(2)]
+                    if middles[0] != middles[1] and previous.first_given not in middles:
+                        previous.given = f"{previous.first_given} {middles[0]}"
+                        given = f"{previous.first_given} {middles[1]}"
             else:
                 birth = self.draw_birth(head_birth.year + 22, head_birth.year + 40)
-            child = self._add_person(household, self.draw_given(sex, tuple(taken)),
-                                     child_family, sex, birth)
+                given = self.draw_given(sex, tuple(taken))
+            child = self._add_person(household, given, child_family, sex, birth)
             taken.append(child.first_given)
-            previous_birth = birth
+            if is_twin:
+                child.twin, previous.twin = previous, child
+            if is_twin and dice.chance(BORROWS_CONTACT["twin"]):
+                child.contact_of = previous
+            elif dice.chance(BORROWS_CONTACT["child"]):
+                child.contact_of = dice.pick(parents)
+            previous = child
 
     # -- bodies, e-mails, phones ---------------------------------------------
 
@@ -890,6 +945,19 @@ def messy_email(person: Person, day: dt.date, rates: dict, dice: Dice,
     return email
 
 
+def contact_person(person: Person, dice: Dice, faults: list[str]) -> Person:
+    """Whose e-mail address and phone a record gives: the person's own, or for some household
+    members now and then another member's (a parent's, a partner's, a twin's)."""
+    other = person.contact_of
+    if other is None:
+        return person
+    own = person.email or person.mobile
+    if dice.chance(BORROWED_PER_RECORD if own else BORROWED_PER_RECORD_NONE):
+        faults.append("contact_of_relative")
+        return other
+    return person
+
+
 def note_history(person: Person, day: dt.date, faults: list[str]) -> None:
     if person.household.move_date and day < person.household.move_date:
         faults.append("old_address")
@@ -908,7 +976,8 @@ def render_membership(rec: Record, dice: Dice) -> None:
         faults.append("extra_spaces")
     birth = messy_birth(person, rates, dice, faults)
 
-    phone = person.main_phone_on(rec.day)
+    contact = contact_person(person, dice, faults)
+    phone = contact.main_phone_on(rec.day)
     landline = person.household.landline_on(rec.day)
     if landline and phone != landline and dice.chance(rates["landline_instead"]):
         phone = landline
@@ -950,7 +1019,7 @@ def render_membership(rec: Record, dice: Dice) -> None:
         "Name": name,
         "Born": birth.strftime("%d/%m/%Y") if birth else None,
         "Joined": dt.datetime.combine(rec.day, dt.time()),
-        "Phone": phone_local(phone) if phone else None,
+        "Phone": phone_format(phone, phone_style("membership", dice)) if phone else None,
         # the office keeps the address in one cell: "street, postcode"
         "Address": ", ".join(part for part in (street, postcode) if part) or None,
         "Height (cm)": height,
@@ -970,9 +1039,10 @@ def render_webshop(rec: Record, dice: Dice, rates_table: Rates) -> None:
             family = extra_spaces(family, dice)
         faults.append("extra_spaces")
     birth = messy_birth(person, rates, dice, faults)
-    email = messy_email(person, rec.day, rates, dice, faults)
+    contact = contact_person(person, dice, faults)
+    email = messy_email(contact, rec.day, rates, dice, faults)
 
-    phone = person.mobile_on(rec.day)
+    phone = contact.mobile_on(rec.day)
     if phone is None and dice.chance(rates["landline_in_mobile"]):
         phone = person.household.landline_on(rec.day)
     if phone and dice.chance(rates["missing_phone"]):
@@ -995,8 +1065,7 @@ def render_webshop(rec: Record, dice: Dice, rates_table: Rates) -> None:
         "first_name": given,
         "last_name": family,
         "email": email or "",
-        "mobile": phone_format(phone, "intl" if dice.chance(0.7) else "intl_compact")
-        if phone else "",
+        "mobile": phone_format(phone, phone_style("webshop", dice)) if phone else "",
         "date_of_birth": birth.isoformat() if birth else "",
         "lifetime_spend": decimal_comma(spend),  # the shop's platform writes decimal commas
         "last_order": rec.day.isoformat(),
@@ -1018,10 +1087,10 @@ def render_rentals(rec: Record, dice: Dice, rates_table: Rates) -> None:
     if not dice.chance(rates["missing_title"]):
         title = "Dr" if dice.chance(0.06) else {"F": "Ms", "M": "Mr", "X": None}[person.sex]
 
-    phone = person.main_phone_on(rec.day)
+    phone = contact_person(person, dice, faults).main_phone_on(rec.day)
     if phone and dice.chance(rates["missing_phone"]):
         phone = None
-    style = dice.pick(("local", "local_compact", "intl", "parens", "intl_00"))
+    style = phone_style("rentals", dice)
 
     height = None if dice.chance(rates["missing_height"]) else round(person.height_cm / 2.54, 1)
     weight = (None if dice.chance(rates["missing_weight"])
@@ -1057,7 +1126,7 @@ def render_events(rec: Record, dice: Dice) -> None:
         family = extra_spaces(family, dice)
         faults.append("extra_spaces")
     birth = messy_birth(person, rates, dice, faults)
-    email = messy_email(person, rec.day, rates, dice, faults)
+    email = messy_email(contact_person(person, dice, faults), rec.day, rates, dice, faults)
     name, day, fee = rec.event
     if fee > 0 and dice.chance(0.08):
         fee = Decimal("0.00")  # volunteers take part for free
@@ -1071,6 +1140,42 @@ def render_events(rec: Record, dice: Dice) -> None:
         "event_name": name,
         "event_date": day.isoformat(),
     }
+
+
+def thin_out(rec: Record, dice: Dice) -> None:
+    """Sometimes (SPARSE) leave a record with two or three person fields: the family name and
+    one or two others; the rest, body measures and titles included, blank."""
+    if not dice.chance(SPARSE[rec.source]):
+        return
+    row = rec.row
+    if rec.source == "membership":  # the name cell stays whole; at most one of phone and address
+        keep = dice.pick(("Phone", "Address", None))
+        for column in ("Born", "Phone", "Address", "Height (cm)"):
+            if column != keep:
+                row[column] = None
+    elif rec.source == "webshop":
+        others = [c for c in ("first_name", "email", "mobile", "ship_postcode") if row[c]]
+        kept = set(dice.choose_many(len(others), min(len(others), dice.integer(1, 2)))) if others else set()
+        for index, column in enumerate(others):
+            if index not in kept:
+                row[column] = ""
+        row["date_of_birth"] = ""
+    elif rec.source == "rentals":
+        places = {"first": row["name"], "phone": row["contact"], "dob": row}  # nested JSON
+        others = [c for c, place in places.items() if place[c]]
+        kept = set(dice.choose_many(len(others), min(len(others), dice.integer(1, 2)))) if others else set()
+        for index, column in enumerate(others):
+            if index not in kept:
+                places[column][column] = None
+        row["name"]["title"] = None
+        row["height_in"] = row["weight_lb"] = None
+    else:
+        others = [c for c in ("given", "email", "birth_year") if row[c]]
+        kept = set(dice.choose_many(len(others), min(len(others), dice.integer(1, 2)))) if others else set()
+        for index, column in enumerate(others):
+            if index not in kept:
+                row[column] = None
+    rec.faults.append("sparse")
 
 
 # --------------------------------------------------------------------------
@@ -1310,18 +1415,25 @@ def entity_rows(world: World, records: list[Record], rates: Rates):
                person.birth.isoformat(), person.email or "",
                phone_e164(phone) if phone else "", person.household.street,
                person.household.postcode, f"{person.height_cm:.1f}",
-               f"{person.weight_kg:.1f}", fee, spend, deposits, event_fees)
+               f"{person.weight_kg:.1f}", fee, spend, deposits, event_fees,
+               f"H{person.household.hid:06d}", person.twin.entity_id if person.twin else "")
 
 
 ENTITY_COLUMNS = ("entity_id", "given_name", "family_name", "sex", "birth_date", "email", "phone",
                   "street", "postcode", "height_cm", "weight_kg", "annual_fee_gbp",
-                  "lifetime_spend_gbp", "deposits_gbp", "event_fees_gbp")
+                  "lifetime_spend_gbp", "deposits_gbp", "event_fees_gbp", "household_id", "twin_of")
+# The truth crosswalk's columns: ``twins`` is one label shared by the records of a pair of twins
+# (blank for everyone else), so that evaluation can count twins' pairs as a kind of their own.
+CROSSWALK_COLUMNS = ("source", "record_id", "entity_id", "twins")
+
+
+def crosswalk_rows(records: list[Record]):
+    return ((r.source, r.record_id, r.person.entity_id, r.person.twin_label) for r in records)
 
 
 def write_truth(folder: Path, world: World, records: list[Record], rates: Rates) -> None:
     folder.mkdir(parents=True, exist_ok=True)
-    write_csv(folder / "crosswalk.csv", ("source", "record_id", "entity_id"),
-              ((r.source, r.record_id, r.person.entity_id) for r in records))
+    write_csv(folder / "crosswalk.csv", CROSSWALK_COLUMNS, crosswalk_rows(records))
     write_csv(folder / "entities.csv", ENTITY_COLUMNS, entity_rows(world, records, rates))
     write_csv(folder / "record_faults.csv", ("source", "record_id", "faults"),
               ((r.source, r.record_id, ";".join(r.faults)) for r in records))
@@ -1361,6 +1473,15 @@ def summarise(world: World, records: list[Record]) -> None:
           f"all true matching pairs: {all_pairs}")
     fault_counts = Counter(f for r in records for f in r.faults)
     print("faults:", dict(sorted(fault_counts.items())))
+    twins = sum(1 for p in world.people if p.twin)
+    borrowers = Counter("twin" if p.contact_of is p.twin and p.twin else
+                        "partner or child" for p in world.people if p.contact_of)
+    families = [h for h in world.households if h.size >= 2]
+    print(f"people with a twin: {twins} ({twins / len(world.people):.1%}); people whose records "
+          f"may give a relative's contact details: {dict(borrowers)}; records that do: "
+          f"{fault_counts['contact_of_relative']}; sparse records: {fault_counts['sparse']} "
+          f"({fault_counts['sparse'] / len(records):.1%}); households of 2+ that moved together: "
+          f"{sum(1 for h in families if h.move_date)} of {len(families)}")
 
 
 def generate(out: Path) -> None:
@@ -1378,6 +1499,7 @@ def generate(out: Path) -> None:
             render_rentals(rec, dice, rates)
         else:
             render_events(rec, dice)
+        thin_out(rec, dice)
     assign_ids(records, dice)
     plant_unit_slips(records, dice)
     records.sort(key=record_sort_key)
@@ -1569,7 +1691,7 @@ class BigWriters:
             "CREATE TABLE signups (signup_id INTEGER PRIMARY KEY, given TEXT, surname TEXT, "
             "email TEXT, birth_year INTEGER, fee REAL, event_name TEXT, event_date TEXT)")
         self.truth = {}
-        for name, header in (("crosswalk", ("source", "record_id", "entity_id")),
+        for name, header in (("crosswalk", CROSSWALK_COLUMNS),
                              ("entities", ENTITY_COLUMNS),
                              ("record_faults", ("source", "record_id", "faults"))):
             handle = open(out / "truth" / f"{name}.csv", "w", encoding="utf-8", newline="")
@@ -1590,7 +1712,7 @@ class BigWriters:
             [(int(rec.record_id), rec.row["given"], rec.row["surname"], rec.row["email"],
               rec.row["birth_year"], rec.row["fee"], rec.row["event_name"], rec.row["event_date"])
              for rec in records if rec.source == "events"])
-        self.truth["crosswalk"][1].writerows((r.source, r.record_id, r.person.entity_id) for r in records)
+        self.truth["crosswalk"][1].writerows(crosswalk_rows(records))
         self.truth["record_faults"][1].writerows((r.source, r.record_id, ";".join(r.faults)) for r in records)
         self.truth["entities"][1].writerows(entity_rows(_People(people), records, rates))
 
@@ -1748,7 +1870,7 @@ def render_records(records: list[Record], dice: Dice, rates: Rates) -> None:
             render_rentals(rec, dice, rates)
         else:
             render_events(rec, dice)
-
+        thin_out(rec, dice)
 
 
 def main() -> None:

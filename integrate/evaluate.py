@@ -146,6 +146,32 @@ def evaluate(crosswalk: pd.DataFrame, truth: pd.DataFrame, candidates: pd.DataFr
                       reduction)
 
 
+def _pairs_in_groups(frame: pd.DataFrame, keys: list[str]) -> int:
+    sizes = frame.value_counts(keys).to_numpy(np.int64)
+    return int((sizes * (sizes - 1) // 2).sum())
+
+
+def scores_by_source_kind(crosswalk: pd.DataFrame, truth: pd.DataFrame) -> dict[str, Scores]:
+    """Pairwise precision/recall/F1 for record pairs within one source and pairs across sources.
+
+    A predicted pair counts where both records are in one predicted entity, a true pair where
+    they are one true person; records missing from the truth are ignored, as in ``evaluate``.
+    """
+    key = ["source", "record_id"]
+    pred = crosswalk[key + ["entity_id"]].astype({"source": str, "record_id": str})
+    true = truth[key + ["entity_id"]].astype({"source": str, "record_id": str})
+    joined = pred.merge(true, on=key, suffixes=("_pred", "_true"), how="inner")
+    counts = {}
+    for within, extra in (("within", ["source"]), ("all", [])):
+        counts[within] = (_pairs_in_groups(joined, ["entity_id_pred", "entity_id_true"] + extra),
+                          _pairs_in_groups(joined, ["entity_id_pred"] + extra),
+                          _pairs_in_groups(joined, ["entity_id_true"] + extra))
+    tp_w, pred_w, true_w = counts["within"]
+    tp_a, pred_a, true_a = (a - w for a, w in zip(counts["all"], counts["within"], strict=True))
+    return {"within one source": Scores.from_counts(tp_w, pred_w - tp_w, true_w - tp_w),
+            "across sources": Scores.from_counts(tp_a, pred_a - tp_a, true_a - tp_a)}
+
+
 def read_crosswalk_file(path: str | Path) -> pd.DataFrame:
     """A crosswalk CSV (source, record_id, entity_id), checked."""
     if not Path(path).exists():
@@ -161,31 +187,43 @@ def read_crosswalk_file(path: str | Path) -> pd.DataFrame:
 def hard_negatives(records: pd.DataFrame, prepared: pd.DataFrame, candidates: pd.DataFrame,
                    entity_ids: np.ndarray, truth: pd.DataFrame, *, given: str, family: str,
                    contact: list[str]) -> pd.DataFrame:
-    """How the hardest non-matches fared: candidate pairs of different true people who share
-    a family name and a contact detail (relatives), or a full name (namesakes).
+    """How the hardest non-matches fared: candidate pairs of different true people who are twins
+    (when the truth marks them), share a family name and a contact detail (relatives), or a full
+    name (namesakes).
 
-    Returns one row per kind: pairs of that kind among the candidates and how many of them ended
-    up in one entity (a wrong merge).
+    Twins are marked by an optional truth column ``twins``: one label shared by the records of
+    the twins of one family, blank for everyone else. A twins' pair counts as twins only, not
+    also as relatives or namesakes. Returns one row per kind: pairs of that kind among the
+    candidates and how many of them ended up in one entity (a wrong merge).
     """
     key = pd.MultiIndex.from_arrays([records["_source"].astype(str), records["_record_id"].astype(str)])
-    true_entity = truth.assign(source=truth["source"].astype(str), record_id=truth["record_id"].astype(str)) \
-        .set_index(["source", "record_id"])["entity_id"].reindex(key).to_numpy()
+    indexed = truth.assign(source=truth["source"].astype(str), record_id=truth["record_id"].astype(str)) \
+        .set_index(["source", "record_id"])
+    true_entity = indexed["entity_id"].reindex(key).to_numpy()
     i, j = candidates["i"].to_numpy(), candidates["j"].to_numpy()
     different = (true_entity[i] != true_entity[j]) & pd.notna(true_entity[i]) & pd.notna(true_entity[j])
 
-    def same(column: str) -> np.ndarray:
-        codes = pd.factorize(prepared[column], use_na_sentinel=True)[0]
+    def same_code(values) -> np.ndarray:
+        codes = pd.factorize(values, use_na_sentinel=True)[0]
         return (codes[i] == codes[j]) & (codes[i] >= 0)
 
+    def same(column: str) -> np.ndarray:
+        return same_code(prepared[column])
+
+    twins = np.zeros(len(i), bool)
+    if "twins" in indexed.columns:
+        labels = indexed["twins"].reindex(key)
+        twins = different & same_code(labels.where(labels.astype(str).str.strip() != "").to_numpy())
     same_family = same(family)
     shares_contact = np.zeros(len(i), bool)
     for column in contact:
         shares_contact |= same(column)
-    kinds = {
-        "relatives (same family name and a shared contact detail, different given name)":
-            different & same_family & shares_contact & ~same(given),
-        "namesakes (same given and family name)": different & same_family & same(given),
-    }
+    kinds = {}
+    if "twins" in indexed.columns:
+        kinds["twins (marked in the truth: same family, birth date and home)"] = twins
+    kinds["relatives (same family name and a shared contact detail, different given name)"] = \
+        different & ~twins & same_family & shares_contact & ~same(given)
+    kinds["namesakes (same given and family name)"] = different & ~twins & same_family & same(given)
     merged = entity_ids[i] == entity_ids[j]
     rows = [{"kind": kind, "candidate pairs": int(mask.sum()), "wrongly merged": int((mask & merged).sum())}
             for kind, mask in kinds.items()]

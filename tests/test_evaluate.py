@@ -62,3 +62,36 @@ def test_hard_negatives_count_relatives_and_namesakes() -> None:
     # (0,1): ann/bob lee sharing +1 -> relatives, merged; (0,2): two different Ann Lees -> namesakes
     assert (relatives["candidate pairs"], relatives["wrongly merged"]) == (1, 1)
     assert (namesakes["candidate pairs"], namesakes["wrongly merged"]) == (1, 0)
+
+
+def test_hard_negatives_count_twins_marked_in_the_truth_as_their_own_kind() -> None:
+    from integrate.evaluate import hard_negatives
+
+    records = pd.DataFrame({"_source": ["a"] * 5, "_record_id": ["1", "2", "3", "4", "5"]})
+    prepared = pd.DataFrame({"given": ["ann", "bea", "ann", "cat", "bea"], "family": ["lee"] * 5,
+                             "phone": ["+1", "+1", "+1", "+1", None]})
+    # p1 and p2 are twins (records 1, 2 and 5); p3 is a namesake of p1, p4 a sister
+    truth = records.rename(columns={"_source": "source", "_record_id": "record_id"}).assign(
+        entity_id=["p1", "p2", "p3", "p4", "p2"], twins=["T1", "T1", None, "", "T1"])
+    candidates = pd.DataFrame({"i": [0, 0, 0, 1, 1], "j": [1, 2, 3, 3, 4]})
+    merged_as = np.array(["e1", "e1", "e2", "e3", "e1"])  # the twins' (0,1) wrongly merged
+    table = hard_negatives(records, prepared, candidates, merged_as, truth, given="given", family="family",
+                           contact=["phone"]).set_index("kind")
+    counts = {kind.split(" ")[0]: (row["candidate pairs"], row["wrongly merged"]) for kind, row in table.iterrows()}
+    # (0,1) twins, not also relatives; (1,4) one twin's two records: a true pair, no kind;
+    # (0,3), (1,3) relatives; (0,2) namesakes
+    assert counts == {"twins": (1, 1), "relatives": (2, 0), "namesakes": (1, 0)}
+
+
+def test_scores_within_one_source_and_across_sources() -> None:
+    from integrate.evaluate import scores_by_source_kind
+
+    truth = pd.DataFrame({"source": ["a", "a", "b", "b", "a"], "record_id": ["1", "2", "1", "2", "3"],
+                          "entity_id": ["x", "x", "x", "y", "z"]})
+    # predicted: a1+a2 together (right), b1 apart (missed twice across), b2 with a3 (wrong, across)
+    crosswalk = truth.assign(entity_id=["e1", "e1", "e2", "e3", "e3"])
+    scores = scores_by_source_kind(crosswalk, truth)
+    within, across = scores["within one source"], scores["across sources"]
+    assert (within.precision, within.recall) == (1.0, 1.0)  # (a1, a2): the one true pair in a source
+    # across: true pairs (a1,b1), (a2,b1) both missed; the one predicted pair (a3,b2) is wrong
+    assert (across.precision, across.recall) == (0.0, 0.0)

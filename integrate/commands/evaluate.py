@@ -14,12 +14,15 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def main(args: argparse.Namespace) -> int:
-    from ..evaluate import evaluate, read_crosswalk_file
+    from ..evaluate import evaluate, read_crosswalk_file, scores_by_source_kind
     from ..outputs.publish import current_output_folder
 
     crosswalk_path = args.crosswalk or str(current_output_folder(args.workspace) / "crosswalk.csv")
-    result = evaluate(read_crosswalk_file(crosswalk_path), read_crosswalk_file(args.truth))
+    crosswalk, truth = read_crosswalk_file(crosswalk_path), read_crosswalk_file(args.truth)
+    result = evaluate(crosswalk, truth)
     for name, scores in (("pairwise", result.pairwise), ("B-cubed", result.bcubed)):
         print(f"{name:<9} precision {scores.precision:.4f}  recall {scores.recall:.4f}  F1 {scores.f1:.4f}")
     print(f"true pairs {result.true_pairs}, predicted pairs {result.predicted_pairs}")
+    for name, scores in scores_by_source_kind(crosswalk, truth).items():
+        print(f"pairs {name:<17} precision {scores.precision:.4f}  recall {scores.recall:.4f}  F1 {scores.f1:.4f}")
     return 0
