@@ -23,7 +23,7 @@ class Explanation:
     record_b: str
     table: pd.DataFrame  # field, value_a, value_b, grade, weight (bits)
     total_weight: float
-    prior_weight: float
+    prior_weight: float  # log2 prior odds of the pair's evidence stratum
     probability: float
     decision: str
     candidate: bool  # whether blocking proposed the pair
@@ -77,4 +77,4 @@ def explain_pair(records: pd.DataFrame, match: MatchResult, canonical: Canonical
                              "value_b": "", "grade": "", "weight": float(together)})
     candidate = bool(((match.pairs["i"] == i) & (match.pairs["j"] == j)).any())
     return Explanation(reference_a, reference_b, pd.DataFrame(rows), float(scored["weight"]),
-                       match.model.prior_weight, float(scored["probability"]), str(scored["decision"]), candidate)
+                       float(scored["prior_weight"]), float(scored["probability"]), str(scored["decision"]), candidate)

@@ -89,7 +89,7 @@ def model_to_json(model: ScoreModel) -> str:
         "fields": {n: {"type": f.type, "m": f.m, "u": f.u, "u_random": f.u_random, "related": f.related}
                    for n, f in model.fields.items()},
         "prior": model.prior, "iterations": model.iterations, "converged": model.converged,
-        "class_shares": model.class_shares,
+        "class_shares": model.class_shares, "strata": {str(k): v for k, v in model.strata.items()},
         "theta": {k: {f: np.asarray(v, float).tolist() for f, v in t.items()} for k, t in model._theta.items()},
     })
 
@@ -99,7 +99,8 @@ def model_from_json(text: str) -> ScoreModel:
     fields = {n: FieldModel(n, f["type"], f["m"], f["u"], f["u_random"], f["related"]) for n, f in d["fields"].items()}
     theta = {k: {f: np.asarray(v, float) for f, v in t.items()} for k, t in d["theta"].items()}
     return ScoreModel(fields, float(d["prior"]), int(d["iterations"]), bool(d["converged"]),
-                      {k: float(v) for k, v in d["class_shares"].items()}, [], _theta=theta)
+                      {k: float(v) for k, v in d["class_shares"].items()}, [], _theta=theta,
+                      strata={int(k): float(v) for k, v in d.get("strata", {}).items()})
 
 
 # ---- what a run leaves -------------------------------------------------------------------------

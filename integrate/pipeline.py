@@ -218,6 +218,8 @@ def pairs_frame(records: pd.DataFrame, match: MatchResult, types: dict[str, str]
         elif column.startswith("tf_"):
             out["value_frequency_" + column[3:]] = p[column].round(3).to_numpy()
     out["weight"] = p["weight"].round(3).to_numpy()
+    if "prior_weight" in p:
+        out["prior_weight"] = p["prior_weight"].round(3).to_numpy()
     out["probability"] = p["probability"].to_numpy()
     out["decision"] = p["decision"].to_numpy()
     return out

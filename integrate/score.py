@@ -50,6 +50,11 @@ TF_TYPES = frozenset({"person_name", "date", "identifier"})
 # person-name grades from "close" up (close, equivalent) also weigh by how common the name is
 NAME_NEAR = 2
 SEED = 20261202
+# A stratum's match share is drawn towards the overall share as if the stratum held this many more
+# pairs at the overall share, so a stratum of a few pairs borrows its prior from the rest. Strata of
+# real inputs hold millions of pairs, and results on the demo and the second seed did not move for
+# any value from 100 to 100,000 (common practice for shrinking small groups; not tuned).
+STRATUM_PRIOR_PAIRS = 10_000
 WEIGH_SLICE = 1_000_000  # pairs weighed at once (memory for the work in flight, not the result)
 
 
@@ -84,10 +89,27 @@ class ScoreModel:
     class_shares: dict[str, float] = field(default_factory=dict)
     warnings: list[str] = field(default_factory=list)
     _theta: dict[str, dict[str, np.ndarray]] = field(default_factory=dict, repr=False)
+    # the match share per evidence stratum (``evidence_strata``: which fields both records of a pair
+    # have), where it differs from ``prior``; a stratum not listed takes ``prior``
+    strata: dict[int, float] = field(default_factory=dict)
 
     @property
     def prior_weight(self) -> float:
+        """log2 of the prior odds of a match over all pairs."""
         return float(np.log2(self.prior / (1 - self.prior)))
+
+    def prior_weights(self, grades: np.ndarray) -> np.ndarray:
+        """log2 prior odds of a match for rows of model grades (columns in the order of ``fields``):
+        the share of matches among all pairs that can compare the same fields."""
+        strata = evidence_strata(grades)
+        if not self.strata:
+            return np.full(len(strata), self.prior_weight)
+        known, shares = np.array(list(self.strata), np.int64), np.array(list(self.strata.values()))
+        order = np.argsort(known)
+        known, shares = known[order], shares[order]
+        at = np.clip(np.searchsorted(known, strata), 0, len(known) - 1)  # self.strata is not empty here
+        share = np.where(known[at] == strata, shares[at], self.prior)
+        return np.log2(share / (1 - share))
 
     def class_log_likelihoods(self, grades: np.ndarray, names: list[str]) -> dict[str, np.ndarray]:
         """ln P(pattern | class) per class for rows of grades (columns = names)."""
@@ -135,6 +157,16 @@ MATCH, RELATED, NEIGHBOUR, UNRELATED = "match", "shares contact details", "same 
 # mistaking a household for a match (the usual failure of two-class EM on people data).
 CONTACT_TYPES = frozenset({"email", "phone", "postcode", "text"})
 PERSONAL_TYPES = frozenset({"date", "quantity", "identifier"})
+
+
+def evidence_strata(grades: np.ndarray) -> np.ndarray:
+    """Per row of grades, which fields can be compared at all: bit c is set when column c is not
+    missing. Pairs of sparse records, or of two sources that hold different fields, compare little
+    and fall in strata of their own."""
+    out = np.zeros(len(grades), np.int64)
+    for c in range(grades.shape[1]):
+        out |= (grades[:, c] != MISSING).astype(np.int64) << c
+    return out
 
 
 def _levels(ftype: str) -> int:
@@ -353,9 +385,20 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
 
     A latent-class mixture (Winkler's EM generalised to more than two classes): each class has
     one probability per field and grade, fields independent within a class. The pairs blocking
-    did not propose are represented by a random sample (``background``), each standing for
-    ``background_weight`` pairs; without it the model describes the candidate pairs alone, whose
-    non-matches agree far more often than random pairs because blocking chose them for it.
+    did not propose are represented by a random sample of them (``background``: random pairs that
+    are not candidate pairs), each standing for ``background_weight`` pairs; without it the model
+    describes the candidate pairs alone, whose non-matches agree far more often than random pairs
+    because blocking chose them for it. Background pairs are non-matches: a match blocking did not
+    propose can never be linked, and counted as one, each stood for hundreds of matches, so the
+    match class grew to three times the true matches on the demo and took in households and
+    namesakes (a fully different given name became 9 % of its name profile, against 0.02 % among
+    the true pairs).
+
+    Classes' shares differ by evidence stratum (``evidence_strata``: which fields a pair can
+    compare at all): among pairs of two sources that share only names and birth dates, or of a
+    sparse record, matches are a different share than among pairs that can compare everything.
+    Each stratum's share of matches is estimated with the rest (drawn towards the overall share by
+    ``STRATUM_PRIOR_PAIRS``); the non-match classes keep one mix among themselves.
 
     Args:
         labels: per candidate pair 0 (undecided), ``LABEL_SAME`` or ``LABEL_DIFFERENT``: decided
@@ -376,7 +419,8 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
     if with_background:
         assert background is not None
         columns = [np.concatenate([column, extra]) for column, extra in
-                   zip(columns, [background[f].to_numpy() for f in names] + [np.zeros(len(background), np.int8)],
+                   zip(columns, [background[f].to_numpy() for f in names]
+                       + [np.full(len(background), LABEL_DIFFERENT, np.int8)],
                        strict=True)]
     # distinct (grades, label) rows, in order of first appearance
     codes = column_pattern_codes(columns, len(columns[0]))
@@ -389,9 +433,12 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
     G, label = _rows(columns[:-1], first), columns[-1][first].astype(np.int64)
     del columns, codes
     theta, shares, free = _initial_classes(types, u_random)
+    strata, stratum_sizes = _strata_of(G, counts)
+    start_strata: dict[int, float] = {}
     if start is not None:
         theta = {k: {f: v.copy() for f, v in profile.items()} for k, profile in start._theta.items()}
         shares = dict(start.class_shares)
+        start_strata = start.strata
     elif background is not None and background_weight > 0:
         # matches and relatives are a small share of all pairs: start them near the candidate count
         base = min(0.5, 0.3 * candidates / counts.sum())
@@ -411,14 +458,17 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
         present = G[:, col] != MISSING
         design[np.flatnonzero(present), offset[col] + G[present, col]] = 1.0
     bound = None if not records else min(1.0, MAX_MATCHES_PER_RECORD * records / float(counts.sum()))
+    match = classes.index(MATCH)
+    # class shares per stratum (classes x strata): the match share, the rest in the overall mix
+    per_stratum = _stratum_shares(classes, shares, np.array([start_strata.get(int(k), shares[MATCH])
+                                                             for k in stratum_sizes.index]))
     converged = False
     previous = -np.inf
     previous_params = None
     iteration = 0
     for iteration in range(1, EM_MAX_ITER + 1):  # noqa: B007 - the count is reported
         log_theta = np.column_stack([np.concatenate([np.log(theta[k][f]) for f in names]) for k in classes])
-        log_shares = np.log([shares[k] for k in classes])
-        log_f = (design @ log_theta).T + log_shares[:, None]
+        log_f = (design @ log_theta).T + np.log(per_stratum[:, strata])
         log_f = np.where(allowed, log_f, -np.inf)
         log_total = np.logaddexp.reduce(log_f, axis=0)
         post = np.exp(log_f - log_total)
@@ -442,6 +492,13 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
             # the M-step for the shares under the bound: the match share at it, the others in proportion
             rest = sum(v for k, v in shares.items() if k != MATCH)
             shares = {k: bound if k == MATCH else v * (1 - bound) / rest for k, v in shares.items()}
+        sizes_now = stratum_sizes.to_numpy()
+        matched = np.bincount(strata, weights=weighted[match], minlength=len(sizes_now))
+        in_stratum = (matched + STRATUM_PRIOR_PAIRS * shares[MATCH]) / (sizes_now + STRATUM_PRIOR_PAIRS)
+        overall = float((in_stratum * sizes_now).sum() / sizes_now.sum())
+        if overall > shares[MATCH]:  # the bound (or the shrinking) holds the total where the shares put it
+            in_stratum *= shares[MATCH] / overall
+        per_stratum = _stratum_shares(classes, shares, np.clip(in_stratum, 1e-12, 1 - 1e-9))
     non = [k for k in classes if k != MATCH]
     total_non = sum(shares[k] for k in non)
     fields = {}
@@ -449,13 +506,28 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
         u = sum(shares[k] * theta[k][f] for k in non) / total_non
         fields[f] = FieldModel(f, types[f], theta[MATCH][f].tolist(), u.tolist(), u_random[f].tolist(),
                                theta[RELATED][f].tolist() if RELATED in theta else None)
-    model = ScoreModel(fields, shares[MATCH], iteration, converged, dict(shares), _theta=theta)
+    model = ScoreModel(fields, shares[MATCH], iteration, converged, dict(shares), _theta=theta,
+                       strata={int(k): float(v) for k, v in zip(stratum_sizes.index, per_stratum[match])})
     model.warnings.extend(_plausibility(model))
     if bound is not None and shares[MATCH] >= bound * (1 - 1e-6):
         model.warnings.append(f"the match share is held at its bound ({MAX_MATCHES_PER_RECORD:g} matches per record, "
                               f"{bound * float(counts.sum()):,.0f} matches): the fit wanted more, which is what "
                               "a match class that looks like the non-matches does; check the links")
     return model
+
+
+def _strata_of(G: np.ndarray, counts: np.ndarray) -> tuple[np.ndarray, pd.Series]:
+    """Each pattern's stratum number, and the pairs per stratum indexed by its ``evidence_strata`` key."""
+    number, keys = pd.factorize(evidence_strata(G))
+    return number, pd.Series(np.bincount(number, weights=counts, minlength=len(keys)), index=np.asarray(keys))
+
+
+def _stratum_shares(classes: list[str], shares: dict[str, float], match_share: np.ndarray) -> np.ndarray:
+    """Classes x strata: the match share of each stratum, the other classes in their overall mix."""
+    others = np.array([0.0 if k == MATCH else shares[k] for k in classes])
+    out = np.outer(others / others.sum(), 1.0 - match_share)
+    out[classes.index(MATCH)] = match_share
+    return out
 
 
 def _exact_level(ftype: str) -> int:
@@ -559,11 +631,22 @@ def full_name_rarity(first: pd.Series, second: pd.Series) -> np.ndarray:
     return out
 
 
-def random_sample_grades(prepared: pd.DataFrame, canonical: CanonicalSchema,
-                         groups: np.ndarray | None = None) -> pd.DataFrame:
-    """Grades of the random record pairs that estimate u (every engine draws the same ones)."""
-    return compare(prepared, random_pairs(len(prepared), RANDOM_PAIRS, groups, hashes=record_hashes(prepared)),
-                   canonical)
+def random_sample(prepared: pd.DataFrame, groups: np.ndarray | None = None) -> pd.DataFrame:
+    """The random record pairs that estimate u and stand for the pairs blocking did not propose
+    (every engine draws the same ones)."""
+    return random_pairs(len(prepared), RANDOM_PAIRS, groups, hashes=record_hashes(prepared))
+
+
+def candidate_mask(sample: pd.DataFrame, pairs: pd.DataFrame) -> np.ndarray:
+    """Per sampled pair, whether it is among ``pairs`` (either order): such a pair is counted as a
+    candidate already, so it must not stand for background pairs as well."""
+    if len(pairs) == 0 or len(sample) == 0:
+        return np.zeros(len(sample), bool)
+    i, j = pairs["i"].to_numpy(np.int64), pairs["j"].to_numpy(np.int64)
+    size = int(max(i.max(), j.max(), sample["j"].max(), sample["i"].max())) + 1
+    known = np.minimum(i, j) * size + np.maximum(i, j)
+    a, b = sample["i"].to_numpy(np.int64), sample["j"].to_numpy(np.int64)
+    return np.isin(np.minimum(a, b) * size + np.maximum(a, b), known)
 
 
 def score(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchema,
@@ -585,14 +668,16 @@ def score(prepared: pd.DataFrame, pairs: pd.DataFrame, canonical: CanonicalSchem
     if model is not None:
         return weigh(prepared, pairs, grades, field_types, model, thresholds), model
     joint, types = model_grades(grades, field_types)
-    random_joint, _ = model_grades(random_sample_grades(prepared, canonical, groups), field_types)
+    sample = random_sample(prepared, groups)
+    random_joint, _ = model_grades(compare(prepared, sample, canonical), field_types)
     u_random = {f: _level_freq(random_joint[f].to_numpy(np.int64), _levels(types[f])) for f in joint.columns}
     if len(joint):
         n_other = max(all_pairs_count(len(prepared), groups) - len(joint), 0)
+        background = random_joint[~candidate_mask(sample, pairs)].reset_index(drop=True)
         # a run with review decisions passes its own estimator (integrate.review.learn), which
         # also sees the pairs so it can hold decided pairs to their decision
         fit = estimate if estimator is None else partial(estimator, pairs)
-        model = fit(joint, types, u_random, random_joint, n_other / max(len(random_joint), 1), records=len(prepared))
+        model = fit(joint, types, u_random, background, n_other / max(len(background), 1), records=len(prepared))
     else:
         theta, shares, _ = _initial_classes(types, u_random)
         model = ScoreModel({f: FieldModel(f, types[f], theta[MATCH][f].tolist(), u_random[f].tolist(),
@@ -606,7 +691,8 @@ def weigh(prepared: pd.DataFrame, pairs: pd.DataFrame, grades: pd.DataFrame, fie
     """Weights, match probability and decision of pairs under an estimated model.
 
     Returns the pairs plus ``g_<field>`` grades, ``w_<field>`` weights of the model's fields,
-    ``tf_<field>`` value-frequency adjustments, ``weight``, ``probability`` and ``decision``.
+    ``tf_<field>`` value-frequency adjustments, ``weight``, ``prior_weight`` (the log2 prior odds of
+    the pair's evidence stratum), ``probability`` and ``decision``.
     """
     joint, _ = model_grades(grades, field_types)
     out = pairs.copy()
@@ -624,6 +710,7 @@ def weigh(prepared: pd.DataFrame, pairs: pd.DataFrame, grades: pd.DataFrame, fie
         representative[codes] = np.arange(len(codes))  # any row of a pattern stands for it
         patterns = _rows(columns, representative)
         per_pattern = model.class_log_likelihoods(patterns, names)
+        prior = model.prior_weights(patterns)[codes]
         shared = family_rarity(tf, field_types)
         # pair by pair from the patterns' likelihoods, a slice at a time: the per-class arrays of
         # every pair at once cost some 100 bytes a pair
@@ -633,7 +720,7 @@ def weigh(prepared: pd.DataFrame, pairs: pd.DataFrame, grades: pd.DataFrame, fie
             total[part] = model.weigh_classes({k: v[codes[part]] for k, v in per_pattern.items()}, rarity[part],
                                               None if shared is None else shared[part])
     else:
-        total = np.zeros(0)
+        total = prior = np.zeros(0)
     for f, fm in model.fields.items():
         g = joint[f].to_numpy(np.int64)
         table = np.asarray(fm.weights)
@@ -641,7 +728,8 @@ def weigh(prepared: pd.DataFrame, pairs: pd.DataFrame, grades: pd.DataFrame, fie
     for f in field_types:
         out["g_" + f] = grades[f].to_numpy()
     out["weight"] = total
-    out["probability"] = 1.0 / (1.0 + np.exp2(-(total + model.prior_weight)))
+    out["prior_weight"] = prior.astype(np.float32)
+    out["probability"] = 1.0 / (1.0 + np.exp2(-(total + prior)))
     out["decision"] = decisions(out["probability"].to_numpy(), thresholds)
     return out
 

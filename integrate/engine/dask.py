@@ -35,10 +35,11 @@ from ..score import (
     _level_freq,
     _levels,
     all_pairs_count,
+    candidate_mask,
     estimate,
     model_grades,
     pattern_codes,
-    random_sample_grades,
+    random_sample,
     weigh,
 )
 
@@ -162,7 +163,8 @@ class DaskEngine:
         pieces = [[client.submit(operator.getitem, client.submit(operator.getitem, r, 0), k) for r in by_rule]
                   for k in range(parts)]
         pairs = [client.submit(_join_partition, n, *row) for row in pieces]
-        sample = client.submit(random_sample_grades, records, canonical, group_codes)
+        sample_pairs = client.submit(random_sample, records, group_codes)
+        sample = client.submit(compare, records, sample_pairs, canonical)
         reports = client.gather([client.submit(lambda r: r[1:], r) for r in by_rule])
         progress("compare")
         grades = [client.submit(compare, records, p, canonical) for p in pairs]
@@ -191,7 +193,10 @@ class DaskEngine:
                              estimator=estimator)
         else:
             n_other = max(all_pairs_count(n, group_codes) - done, 0)
-            model = estimate(patterns, types, u_random, random_joint, n_other / max(len(random_joint), 1),
+            # the sampled pairs some partition holds are candidates, not background (see estimate)
+            held = np.logical_or.reduce(client.gather([client.submit(candidate_mask, sample_pairs, p) for p in pairs]))
+            background = random_joint[~held].reset_index(drop=True)
+            model = estimate(patterns, types, u_random, background, n_other / max(len(background), 1),
                              counts=pattern_counts, records=n)
         scored_parts = [client.submit(weigh, records, p, g, field_types, model, canonical.thresholds)
                         for p, g in zip(pairs, grades)]

@@ -24,7 +24,10 @@ from .tables import write_text_atomic
 if TYPE_CHECKING:
     from ..pipeline import RunResult
     from ..review.apply import ReviewSummary
+    from ..score import ScoreModel
     from ..workspace import Workspace
+
+STRATA_SHOWN = 30  # evidence strata listed in the report
 
 CAUTIONS = [
     "Merged records are suggestions, not facts. Review merges, above all the possible links and large "
@@ -308,11 +311,20 @@ def _with_contents(body: str) -> str:
     return body.replace("<!--toc-->", toc, 1)
 
 
-def _weight_markers(result: RunResult, thresholds: Thresholds) -> list[Marker]:
-    """The link and review thresholds as total weights: p = 1 / (1 + 2^-(w + prior weight))."""
-    prior = result.model.prior_weight
-    return [Marker(float(np.log2(t / (1 - t)) - prior), f"{name} {t:g}", colour)
+def _weight_markers(thresholds: Thresholds) -> list[Marker]:
+    """The link and review thresholds as log2 odds: p = 1 / (1 + 2^-(weight + prior weight))."""
+    return [Marker(float(np.log2(t / (1 - t))), f"{name} {t:g}", colour)
             for name, t, colour in (("link", thresholds.link, "#b00020"), ("review", thresholds.review, "#8a6d00"))]
+
+
+def _strata_table(model: ScoreModel) -> str:
+    """The share of matches per evidence stratum (which fields a pair can compare), largest first."""
+    names = list(model.fields)
+    rows = [{"fields both records have": ", ".join(f for c, f in enumerate(names) if (key >> c) & 1) or "none",
+             "share of matches": f"{share:.6f}", "prior weight (bits)": f"{np.log2(share / (1 - share)):+.2f}"}
+            for key, share in sorted(model.strata.items(), key=lambda kv: -kv[1])[:STRATA_SHOWN]]
+    return ("<details><summary>Prior by evidence stratum: pairs that can compare different fields start from "
+            "different odds</summary>" + _table(pd.DataFrame(rows)) + "</details>")
 
 
 def render_report(result: RunResult, ws: Workspace | None = None) -> str:
@@ -367,14 +379,17 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
     add("<h2>Scores</h2>")
     add(_table(decisions.rename_axis("decision").reset_index(name="pairs"), ("pairs",)))
     weights = result.pairs["weight"].to_numpy(float)
+    if "prior_weight" in result.pairs:
+        weights = weights + result.pairs["prior_weight"].to_numpy(float)
     if len(weights):
         counts, edges = np.histogram(weights, bins=40)
-        add("<figure>" + histogram_chart(edges, counts, "Candidate pairs by total weight", "total weight (bits)",
-                                         "candidate pairs", log_scale=True,
-                                         markers=_weight_markers(result, thresholds))
-            + "<figcaption>Candidate pairs by total weight in bits (log scale): matches gather on the right, "
-              "non-matches on the left; the dashed lines are the link and review thresholds, and the pairs "
-              "between them are the possible links.</figcaption></figure>")
+        add("<figure>" + histogram_chart(edges, counts, "Candidate pairs by log odds of a match",
+                                         "total weight + prior weight (bits)", "candidate pairs", log_scale=True,
+                                         markers=_weight_markers(thresholds))
+            + "<figcaption>Candidate pairs by the log2 odds of a match, their total weight plus the prior weight "
+              "of their evidence stratum (log scale): matches gather on the right, non-matches on the left; "
+              "the dashed lines are the link and review thresholds, and the pairs between them are the "
+              "possible links.</figcaption></figure>")
         counts, edges = np.histogram(result.pairs["probability"].to_numpy(float), bins=20, range=(0.0, 1.0))
         add("<figure>" + histogram_chart(edges, counts, "Candidate pairs by match probability", "match probability",
                                          "candidate pairs", log_scale=True, x_format="{:.2f}",
@@ -389,6 +404,8 @@ def render_report(result: RunResult, ws: Workspace | None = None) -> str:
         f"λ = {model.prior:.6f}. Besides matches, the model has classes for pairs that are not the same person "
         f"but share something: " + ", ".join(f"{_e(k)} ({v:.6f})" for k, v in model.class_shares.items()
                                              if k not in ("match",)) + ".</p>")
+    if model.strata:
+        add(_strata_table(model))
     rows = []
     for fm in model.fields.values():
         for level, (m, u, ur, w) in enumerate(zip(fm.m, fm.u, fm.u_random, fm.weights)):

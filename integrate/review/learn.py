@@ -104,6 +104,6 @@ def compare_models(scored: pd.DataFrame, estimator: DecisionEstimator, threshold
     frames = []
     for label, model in (("without decisions", estimator.base), ("with decisions", estimator.learned)):
         weight = model.pattern_weight(G, names, bonus, shared)
-        probability = 1.0 / (1.0 + np.exp2(-(weight + model.prior_weight)))
+        probability = 1.0 / (1.0 + np.exp2(-(weight + model.prior_weights(G))))
         frames.append(threshold_estimates(probability, thresholds).assign(model=label))
     return pd.concat(frames, ignore_index=True)
