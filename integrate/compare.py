@@ -347,6 +347,15 @@ def _name_grades(cols: _Columns, name: str, i: np.ndarray, j: np.ndarray, *, par
     known = ~partial & col.both_established(i, j)
     grade = np.where(known & ((grade == 2) | (grade == 3)), grade - 1, grade)
     if not part_is_close:
+        # the same first word and two different further names ('ryan robert' / 'ryan frederick'): a
+        # dropped middle name is the same name ('anna' / 'anna marie'), but a different one is what
+        # twins or a parent and child who share a first name look like; fairly close, or close where
+        # the whole names are alike (a slip in the middle name: 'mary ann' / 'mary anne')
+        other_middle = (first.equal(i, j) & ~equal & col.several_words(i) & col.several_words(j)
+                        & ~col.words_within(i, j))
+        if other_middle.any():
+            alike = col.scores(i, j, JaroWinkler.normalized_similarity, where=other_middle) >= JW_CLOSE
+            grade = np.where(other_middle, np.where(alike, 2, 1), grade)
         # a slip on top of a short form ('ndy' / 'Andrew', 'Peggr' / 'Margaret') is close
         unsure = np.flatnonzero((grade == 0) & ~col.missing(i, j))
         grade[unsure[_slip_of_a_form(first, i[unsure], j[unsure])]] = 2
