@@ -17,7 +17,7 @@ from functools import partial
 import numpy as np
 import pandas as pd
 
-from .compare import GRADE_NAMES, MISSING, NAME_BUCKETS, NAME_PAIR, compare, name_pair_grades
+from .compare import APART, GRADE_NAMES, MISSING, NAME_BUCKETS, NAME_PAIR, compare, name_pair_grades
 from .mapping.spec import CanonicalSchema, Thresholds
 
 LINK, POSSIBLE, NON_LINK = "link", "possible link", "non-link"
@@ -487,6 +487,8 @@ def estimate(grades: pd.DataFrame, types: dict[str, str], u_random: dict[str, np
                 if f not in free[k]:
                     continue
                 new = level_counts[offset[col]:offset[col + 1], c] + PSEUDO_COUNT
+                if k in (RELATED, NEIGHBOUR) and APART in GRADE_NAMES[types[f]]:
+                    new = _apart_as_random(new, u_random[f], GRADE_NAMES[types[f]].index(APART))
                 theta[k][f] = new / new.sum()
         if bound is not None and shares[MATCH] > bound:
             # the M-step for the shares under the bound: the match share at it, the others in proportion
@@ -527,6 +529,17 @@ def _stratum_shares(classes: list[str], shares: dict[str, float], match_share: n
     others = np.array([0.0 if k == MATCH else shares[k] for k in classes])
     out = np.outer(others / others.sum(), 1.0 - match_share)
     out[classes.index(MATCH)] = match_share
+    return out
+
+
+def _apart_as_random(counts: np.ndarray, random_profile: np.ndarray, apart: int) -> np.ndarray:
+    """Counts whose "different" and "different, records years apart" levels are split as among random
+    pairs: whether two records are years apart does not depend on whether the two people are
+    relatives or neighbours, so those classes may not learn it."""
+    out = counts.copy()
+    unequal = counts[0] + counts[apart]
+    share = random_profile[apart] / max(random_profile[0] + random_profile[apart], 1e-12)
+    out[apart], out[0] = unequal * share, unequal * (1 - share)
     return out
 
 

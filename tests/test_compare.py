@@ -278,3 +278,17 @@ def test_comparing_in_chunks_gives_the_grades_of_one_pass() -> None:
     assert seen[-1] == (len(pairs), len(pairs)) and len(seen) == -(-len(pairs) // 997)
     assert chunk_size(10**9, available=8 * 10**9) == 8 * 10**9 // 8 // 600
     assert chunk_size(50, available=10**12) == 50
+
+
+def test_the_same_first_name_with_another_middle_name_is_not_the_same_name() -> None:
+    # 'Ryan Robert' / 'Ryan Frederick' is what twins or a parent and child sharing a first name
+    # look like: fairly close. A dropped middle name stays equivalent, and a slip in the middle
+    # name is close (Jaro–Winkler from rapidfuzz, the reference library, at or above JW_CLOSE).
+    other = _grades({"given_name": "Ryan Robert", "family_name": "Patel", "birth_date": None},
+                    {"given_name": "Ryan Frederick", "family_name": "Patel", "birth_date": None})
+    dropped = _grades({"given_name": "Anna", "family_name": "Patel", "birth_date": None},
+                      {"given_name": "Anna Marie", "family_name": "Patel", "birth_date": None})
+    assert JaroWinkler.normalized_similarity("mary ann", "mary anne") >= JW_CLOSE
+    slip = _grades({"given_name": "Mary Ann", "family_name": "Patel", "birth_date": None},
+                   {"given_name": "Mary Anne", "family_name": "Patel", "birth_date": None})
+    assert (other["given_name"], dropped["given_name"], slip["given_name"]) == (1, 3, 2)

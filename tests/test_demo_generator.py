@@ -69,7 +69,7 @@ def source_record_ids() -> dict[str, list[str]]:
 def test_crosswalk_covers_every_record_exactly_once() -> None:
     crosswalk = pd.read_csv(DEMO / "truth" / "crosswalk.csv", dtype=str,
                             keep_default_na=False)
-    assert list(crosswalk.columns) == ["source", "record_id", "entity_id"]
+    assert list(crosswalk.columns) == ["source", "record_id", "entity_id", "twins"]
     assert not crosswalk.duplicated(["source", "record_id"]).any()
     ids = source_record_ids()
     assert set(crosswalk["source"]) == set(ids)
