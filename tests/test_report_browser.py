@@ -75,10 +75,10 @@ def test_report_reads_at_both_widths(hostile_report: Path, browser, width: int) 
     # no horizontal scrolling of the page (wide tables scroll inside their own box)
     assert page.evaluate("document.documentElement.scrollWidth") <= width + 1
     # charts carry axes and tick labels; the thresholds are drawn on the weight histogram
-    weight_chart = page.locator("svg[aria-label='Candidate pairs by total weight']")
+    weight_chart = page.locator("svg[aria-label='Candidate pairs by log odds of a match']")
     assert weight_chart.locator("text", has_text="link 0.8").count() == 1
     assert weight_chart.locator("text", has_text="review 0.2").count() == 1
-    assert weight_chart.locator("text", has_text="total weight (bits)").count() == 1
+    assert weight_chart.locator("text", has_text="total weight + prior weight (bits)").count() == 1
     assert page.locator("svg[aria-label='Candidate pairs by match probability']").count() == 1
     # self-contained: the page fetched nothing but itself
     assert requests == [hostile_report.as_uri()]
