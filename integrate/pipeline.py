@@ -18,7 +18,7 @@ import numpy as np
 import pandas as pd
 
 from .block import BlockingReport
-from .cluster import Split, cluster_table, splits_frame
+from .cluster import Split, cluster_table, near_certain_pairs_cut, splits_frame
 from .columns import RECORD_ID, SOURCE
 from .compare import grade_name
 from .errors import InputError, InputErrors
@@ -94,6 +94,7 @@ class RunResult:
     quality: RunQuality | None = None  # against the schema's 'truth' crosswalk, when one is given
     missing: pd.DataFrame | None = None  # per field: missing before / after merging (outputs/missing.py)
     incremental: IncrementalSummary | None = None  # what an incremental run reused (incremental.py)
+    near_certain_cut: int = 0  # compared pairs at probability >= 0.99 that ended in two entities (goal: 0)
 
 
 @dataclass
@@ -409,7 +410,7 @@ def _run(ws: Workspace, progress: Progress, *, write: bool, output_dir: Path | N
         warnings=list(match.model.warnings), review=review, splits=match.splits,
         clusters=cluster_table(match.entities, records), changes=changes, entity_changes=entity_changes,
         conflict_pairs=conflict_pairs, quality=judge_against_truth(ws, records, match, crosswalk),
-        incremental=summary,
+        incremental=summary, near_certain_cut=near_certain_pairs_cut(match.pairs, match.entities["entity_id"]),
     )
     result.warnings += notes
     result.warnings += [no_records_text(m.name) for m in mapped if m.frame.empty]

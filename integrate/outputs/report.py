@@ -126,7 +126,7 @@ CHANGE_LABELS = {  # change-summary fields as the report words them
 
 def _clusters_section(result: RunResult) -> str:
     """Cuts made by constraints and the chaining guard, and the clusters that deserve a look first."""
-    from ..cluster import CHAINING_GUARD, CONTRADICTION, DIFFERENT_BELOW, SPLIT_REASONS
+    from ..cluster import CHAINING_GUARD, CONTRADICTION, DIFFERENT_BELOW, NEAR_CERTAIN, SPLIT_REASONS
 
     parts = ["<h3>Cuts and constraints</h3>"]
     splits = [sp for sp in result.splits if sp.reason in SPLIT_REASONS]
@@ -139,7 +139,9 @@ def _clusters_section(result: RunResult) -> str:
         f"into the parts that keep the most evidence together (the sum of the log-odds of the compared "
         f"pairs kept in one part). Cuts: {counts[SPLIT_REASONS[0]]} for different decisions, "
         f"{counts[SPLIT_REASONS[1]]} for one record per person, {counts[CHAINING_GUARD]} by the chaining "
-        f"guard, which touched {touched} clusters.</p>")
+        f"guard, which touched {touched} clusters. Compared pairs with a match probability of at least "
+        f"{NEAR_CERTAIN:g} that ended in two entities: {result.near_certain_cut:,} (the goal is none: a cut "
+        f"should never separate near-certain evidence).</p>")
     keys = (result.records["_source"].astype(str) + ":" + result.records["_record_id"].astype(str)).to_numpy()
     listed = splits + [sp for sp in result.splits if sp.reason == CONTRADICTION]
     if listed:
