@@ -8,13 +8,36 @@ The public API:
 - ``load_workspace``, ``IntegrateError``, ``InputError``.
 """
 
-from .errors import InputError, InputErrors, IntegrateError
-from .evaluate import evaluate
-from .frames import deduplicate, link
-from .pipeline import RunResult, run_pipeline
-from .workspace import load_workspace
+from __future__ import annotations
 
-run = run_pipeline
+from importlib import import_module
+from typing import TYPE_CHECKING, Any
+
+from .errors import InputError, InputErrors, IntegrateError
+
+if TYPE_CHECKING:
+    from .evaluate import evaluate
+    from .frames import deduplicate, link
+    from .pipeline import RunResult, run_pipeline
+    from .workspace import load_workspace
+
+    run = run_pipeline
+
+# Each name is imported when first used, so a notebook that only matches DataFrames does not pay
+# for the workspace pipeline's imports (the state store's database layer, the report, the sources).
+_LAZY = {"evaluate": ("evaluate", "evaluate"), "deduplicate": ("frames", "deduplicate"),
+         "link": ("frames", "link"), "RunResult": ("pipeline", "RunResult"),
+         "run_pipeline": ("pipeline", "run_pipeline"), "run": ("pipeline", "run_pipeline"),
+         "load_workspace": ("workspace", "load_workspace")}
+
+
+def __getattr__(name: str) -> Any:
+    if name not in _LAZY:
+        raise AttributeError(f"module 'integrate' has no attribute '{name}'")
+    module, attribute = _LAZY[name]
+    value = getattr(import_module(f".{module}", __name__), attribute)
+    globals()[name] = value
+    return value
 
 __all__ = [
     "run",
