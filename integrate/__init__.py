@@ -15,8 +15,11 @@ from typing import TYPE_CHECKING, Any
 
 from .errors import InputError, InputErrors, IntegrateError
 
+# ``evaluate`` is both a submodule and a function: imported lazily, the first ``import integrate.evaluate``
+# anywhere would bind the package attribute to the submodule, so the function is bound here, once.
+from .evaluate import evaluate
+
 if TYPE_CHECKING:
-    from .evaluate import evaluate
     from .frames import deduplicate, link
     from .pipeline import RunResult, run_pipeline
     from .workspace import load_workspace
@@ -25,7 +28,7 @@ if TYPE_CHECKING:
 
 # Each name is imported when first used, so a notebook that only matches DataFrames does not pay
 # for the workspace pipeline's imports (the state store's database layer, the report, the sources).
-_LAZY = {"evaluate": ("evaluate", "evaluate"), "deduplicate": ("frames", "deduplicate"),
+_LAZY = {"deduplicate": ("frames", "deduplicate"),
          "link": ("frames", "link"), "RunResult": ("pipeline", "RunResult"),
          "run_pipeline": ("pipeline", "run_pipeline"), "run": ("pipeline", "run_pipeline"),
          "load_workspace": ("workspace", "load_workspace")}

